@@ -19,7 +19,7 @@ from functools import lru_cache
 
 from .errors import QuantityError
 
-__all__ = ["Measured", "parse_quantity", "format_value_error"]
+__all__ = ["Measured", "format_value_error", "parse_quantity"]
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,636 @@
+"""Campaign loading: ``campaign.toml`` plus its data tables into validated, frozen objects.
+
+The contract (kept stable; see README):
+
+.. code-block:: toml
+
+    [campaign]
+    title = "…"
+    [instrument]
+    layout = "talbot-lau"              # or "beam-profile", "time-domain"
+    grating_period = "250 nm"
+    grating_positions = ["0 m", "0.6 m", "1.2 m"]
+    [deflector]
+    model = "uniform"                  # or "two-wire", "field-map"
+    entrance = "0.52 ± 0.001 m"
+    length = "0.05 ± 0.0005 m"
+    field_factor = "1.21e5 ± 600 m^-3"
+    [data]
+    shifts = "shifts.csv"
+    compounds = "compounds.csv"
+
+Structural problems raise :class:`~polarbeam.errors.InputError`; a bad value in a data row is
+kept with its compound (``CompoundData.problem``) so that only that compound fails.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .constants import AMU, alpha_si_from_a3, si_from_debye
+from .deflectors import (
+    DEFLECTOR_MODELS,
+    FieldMapDeflector,
+    SwitchedField,
+    TwoWireDeflector,
+    UniformDeflector,
+)
+from .errors import CompoundError, InputError, QuantityError
+from .layouts import LAYOUTS, BeamProfile, TalbotLau, TimeDomain
+from .quantities import Measured, parse_quantity
+from .tables import Table, read_table
+
+__all__ = [
+    "AnalysisSettings",
+    "Campaign",
+    "CompoundData",
+    "SeriesData",
+    "load_campaign",
+]
+
+# key -> expected SI unit (pint syntax); None marks a non-quantity key
+_SCHEMA: dict[str, dict[str, str | None]] = {
+    "campaign": {"title": None, "description": None},
+    "instrument": {
+        "layout": None,
+        "grating_period": "m",
+        "grating_positions": "m",
+        "detector_position": "m",
+        "pulse_times": "s",
+    },
+    "deflector": {
+        "model": None,
+        "entrance": "m",
+        "length": "m",
+        "field_factor": "m^-3",
+        "field_per_volt": "m^-1",
+        "line_half_spacing": "m",
+        "convex_crossing": "m",
+        "concave_crossing": "m",
+        "beam_height": "m",
+        "field_map": None,
+        "field_scale": "",
+        "field_on": "s",
+        "field_duration": "s",
+        "waveform": None,
+    },
+    "data": {"shifts": None, "compounds": None},
+    "analysis": {
+        "velocity_nodes": None,
+        "fit_offset": None,
+        "scale_errors": None,
+        "upper_limit_cl": None,
+        "dipole_significance": None,
+        "orientation_warning": None,
+    },
+}
+
+_LAYOUT_KEYS = {
+    "talbot-lau": {"grating_period", "grating_positions"},
+    "beam-profile": {"detector_position"},
+    "time-domain": {"grating_period", "pulse_times"},
+}
+_MODEL_KEYS = {
+    "uniform": ({"field_factor"}, {"field_per_volt"}),
+    "two-wire": ({"line_half_spacing", "convex_crossing", "concave_crossing"}, {"beam_height"}),
+    "field-map": ({"field_map"}, {"field_scale", "field_per_volt"}),
+}
+_SPATIAL_KEYS = ({"entrance"}, {"length"})
+_TIME_KEYS = ({"field_on"}, {"field_duration", "waveform"})
+
+SHIFT_COLUMNS_COMMON = (
+    "compound",
+    "temperature_K",
+    "temperature_err_K",
+    "velocity_m_s",
+    "velocity_err_m_s",
+    "velocity_spread_m_s",
+    "voltage_V",
+)
+OBSERVABLE_COLUMNS = {
+    "talbot-lau": ("phase_rad", "phase_err_rad"),
+    "time-domain": ("phase_rad", "phase_err_rad"),
+    "beam-profile": ("shift_m", "shift_err_m"),
+}
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """Options of the ``[analysis]`` table (all optional)."""
+
+    velocity_nodes: int = 48
+    fit_offset: bool = True
+    scale_errors: str = "never"  # "never" | "birge" (inflate by sqrt(χ²/ν) when > 1)
+    upper_limit_cl: float = 0.95
+    dipole_significance: float = 2.0
+    orientation_warning: float = 0.2  # warn when μE/kT exceeds this at the largest field
+
+    def __post_init__(self):
+        if self.scale_errors not in ("never", "birge"):
+            raise InputError(
+                "[analysis] scale_errors: expected one of 'never', 'birge', "
+                f"found {self.scale_errors!r}"
+            )
+        if not (isinstance(self.velocity_nodes, int) and 4 <= self.velocity_nodes <= 400):
+            raise InputError(
+                f"[analysis] velocity_nodes: expected an integer 4..400, found "
+                f"{self.velocity_nodes!r}"
+            )
+        if not 0.5 < self.upper_limit_cl < 1:
+            raise InputError(
+                f"[analysis] upper_limit_cl: expected 0.5 < cl < 1, found {self.upper_limit_cl!r}"
+            )
+        if not self.dipole_significance > 0:
+            raise InputError(
+                f"[analysis] dipole_significance: expected > 0, found {self.dipole_significance!r}"
+            )
+
+
+@dataclass(frozen=True)
+class SeriesData:
+    """Points of one compound at one source temperature."""
+
+    compound: str
+    temperature: Measured
+    velocity: Measured
+    velocities: np.ndarray
+    spreads: np.ndarray
+    voltages: np.ndarray
+    values: np.ndarray
+    errors: np.ndarray
+    lines: tuple[int, ...]
+    covariance: np.ndarray | None = None
+    visibility: np.ndarray | None = None
+    visibility_err: np.ndarray | None = None
+
+    @property
+    def label(self) -> str:
+        return f"{self.compound} @ {self.temperature.value:g} K"
+
+    @property
+    def n_points(self) -> int:
+        return int(self.voltages.size)
+
+
+@dataclass(frozen=True)
+class CompoundData:
+    """A compound: its mass, its series, its extra columns and any row problem found."""
+
+    name: str
+    mass: Measured | None
+    series: tuple[SeriesData, ...] = ()
+    extra: dict[str, str] = field(default_factory=dict)
+    problem: str | None = None
+    alpha_known: Measured | None = None
+    dipole_known: Measured | None = None
+
+
+@dataclass(frozen=True)
+class Campaign:
+    """A loaded campaign: instrument description, stated inputs with errors, and compounds."""
+
+    path: Path
+    title: str
+    layout: str
+    model: str
+    stated: dict[str, Measured]
+    settings: AnalysisSettings
+    compounds: tuple[CompoundData, ...]
+    unmeasured: tuple[str, ...] = ()
+    field_map: tuple[tuple[float, ...], tuple[float, ...]] | None = None
+    waveform: tuple[tuple[float, ...], tuple[float, ...]] | None = None
+    raw: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def observable(self) -> str:
+        return OBSERVABLE_COLUMNS[self.layout][0]
+
+    def nominal(self) -> dict[str, float]:
+        return {k: m.value for k, m in self.stated.items()}
+
+    def build(self, values: dict[str, float] | None = None):
+        """(layout, deflector) for the given parameter values (nominal when omitted)."""
+        v = self.nominal() if values is None else values
+        return build_layout(self.layout, v), build_deflector(self, v)
+
+
+def build_layout(name: str, v: dict[str, float]):
+    if name == "talbot-lau":
+        return TalbotLau(
+            v["instrument.grating_positions[0]"],
+            v["instrument.grating_positions[1]"],
+            v["instrument.grating_positions[2]"],
+            v["instrument.grating_period"],
+        )
+    if name == "beam-profile":
+        return BeamProfile(v["instrument.detector_position"])
+    return TimeDomain(
+        v["instrument.pulse_times[0]"],
+        v["instrument.pulse_times[1]"],
+        v["instrument.pulse_times[2]"],
+        v["instrument.grating_period"],
+    )
+
+
+def build_deflector(c: Campaign, v: dict[str, float]):
+    g = v.get
+    if c.layout == "time-domain":
+        if c.model != "uniform":
+            raise InputError(
+                f"{c.path.name} [deflector] model: the time-domain layout expects 'uniform', "
+                f"found {c.model!r}"
+            )
+        return SwitchedField(
+            v["deflector.field_factor"],
+            v["deflector.field_on"],
+            g("deflector.field_duration"),
+            c.waveform,
+            g("deflector.field_per_volt"),
+        )
+    if c.model == "uniform":
+        return UniformDeflector(
+            v["deflector.field_factor"],
+            v["deflector.entrance"],
+            v["deflector.length"],
+            g("deflector.field_per_volt"),
+        )
+    if c.model == "two-wire":
+        a = v["deflector.line_half_spacing"]
+        return TwoWireDeflector(
+            a,
+            v["deflector.convex_crossing"],
+            v["deflector.concave_crossing"],
+            g("deflector.beam_height", 1.2 * a),
+            v["deflector.entrance"],
+            v["deflector.length"],
+        )
+    z, gz = c.field_map
+    return FieldMapDeflector(
+        z,
+        gz,
+        v["deflector.entrance"],
+        g("deflector.length"),
+        g("deflector.field_scale", 1.0),
+        g("deflector.field_per_volt"),
+    )
+
+
+def _check_keys(doc: dict, fname: str) -> None:
+    unknown = [k for k in doc if k not in _SCHEMA]
+    if unknown:
+        raise InputError(
+            f"{fname}: unknown table(s) {', '.join(repr(k) for k in unknown)}; expected "
+            f"{', '.join(_SCHEMA)}"
+        )
+    for table, keys in _SCHEMA.items():
+        sub = doc.get(table, {})
+        if not isinstance(sub, dict):
+            raise InputError(f"{fname}: [{table}] expected a table, found {type(sub).__name__}")
+        bad = [k for k in sub if k not in keys]
+        if bad:
+            raise InputError(
+                f"{fname}: unknown key(s) in [{table}]: {', '.join(repr(k) for k in bad)}; "
+                f"expected one of {', '.join(keys)}"
+            )
+
+
+def _require_str(table: dict, key: str, where: str, choices=None) -> str:
+    if key not in table:
+        raise InputError(f"{where} {key}: required key missing")
+    val = table[key]
+    if not isinstance(val, str):
+        raise InputError(f"{where} {key}: expected a string, found {val!r}")
+    if choices is not None and val not in choices:
+        raise InputError(f"{where} {key}: expected one of {', '.join(choices)}, found {val!r}")
+    return val
+
+
+def _stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, Measured]:
+    stated: dict[str, Measured] = {}
+    inst, defl = doc.get("instrument", {}), doc.get("deflector", {})
+
+    def quantity(table: str, key: str, raw):
+        unit = _SCHEMA[table][key]
+        return parse_quantity(raw, unit or "", where=f"{fname} [{table}] {key}")
+
+    need = _LAYOUT_KEYS[layout]
+    other = set().union(*_LAYOUT_KEYS.values()) - need
+    for k in sorted(other & set(inst)):
+        raise InputError(f"{fname} [instrument] {k}: not used by layout {layout!r}; remove it")
+    for k in sorted(need):
+        if k not in inst:
+            raise InputError(f"{fname} [instrument] {k}: required for layout {layout!r}")
+        raw = inst[k]
+        if k in ("grating_positions", "pulse_times"):
+            if not (isinstance(raw, list) and len(raw) == 3):
+                raise InputError(
+                    f"{fname} [instrument] {k}: expected a list of three quantities, found {raw!r}"
+                )
+            for i, item in enumerate(raw):
+                stated[f"instrument.{k}[{i}]"] = quantity("instrument", k, item)
+        else:
+            stated[f"instrument.{k}"] = quantity("instrument", k, raw)
+
+    timing = layout == "time-domain"
+    req_m, opt_m = _MODEL_KEYS[model]
+    req_s, opt_s = _TIME_KEYS if timing else _SPATIAL_KEYS
+    allowed = {"model"} | req_m | opt_m | req_s | opt_s
+    for k in sorted(set(defl) - allowed):
+        why = (
+            f"layout {layout!r}"
+            if k in (_SPATIAL_KEYS[0] | _SPATIAL_KEYS[1] | _TIME_KEYS[0] | _TIME_KEYS[1])
+            else f"model {model!r}"
+        )
+        raise InputError(f"{fname} [deflector] {k}: not used by {why}; remove it")
+    for k in sorted(req_m | req_s):
+        if k not in defl:
+            raise InputError(f"{fname} [deflector] {k}: required for model {model!r}")
+    if model == "field-map" and timing:
+        raise InputError(f"{fname} [deflector] model: 'field-map' is not used by layout {layout!r}")
+    if timing and "field_duration" not in defl and "waveform" not in defl:
+        raise InputError(f"{fname} [deflector] field_duration: required (or a waveform)")
+    for k, raw in defl.items():
+        if k in ("model", "field_map", "waveform"):
+            continue
+        stated[f"deflector.{k}"] = quantity("deflector", k, raw)
+    return stated
+
+
+def _read_profile(path: Path, cols: tuple[str, str], what: str):
+    table = read_table(path, cols, what)
+    xs, ys = [], []
+    for i in range(len(table.rows)):
+        try:
+            xs.append(table.number(i, cols[0]))
+            ys.append(table.number(i, cols[1]))
+        except CompoundError as exc:  # a bad map is structural: it concerns every compound
+            raise InputError(str(exc)) from exc
+    order = np.argsort(xs)
+    return tuple(np.asarray(xs)[order]), tuple(np.asarray(ys)[order])
+
+
+def _settings(doc: dict, fname: str) -> AnalysisSettings:
+    a = doc.get("analysis", {})
+    kinds: dict[str, Callable] = {
+        "velocity_nodes": int,
+        "fit_offset": bool,
+        "scale_errors": str,
+        "upper_limit_cl": float,
+        "dipole_significance": float,
+        "orientation_warning": float,
+    }
+    kw = {}
+    for k, v in a.items():
+        want = kinds[k]
+        ok = isinstance(v, want) and not (want is int and isinstance(v, bool))
+        if want is float and isinstance(v, int) and not isinstance(v, bool):
+            v, ok = float(v), True
+        if not ok:
+            raise InputError(f"{fname} [analysis] {k}: expected {want.__name__}, found {v!r}")
+        kw[k] = v
+    try:
+        return AnalysisSettings(**kw)
+    except InputError as exc:
+        raise InputError(f"{fname} {exc}") from None
+
+
+def _data_path(base: Path, doc: dict, key: str, fname: str, required=True) -> Path | None:
+    data = doc.get("data", {})
+    if key not in data:
+        if required:
+            raise InputError(f"{fname} [data] {key}: required key missing")
+        return None
+    val = data[key]
+    if not isinstance(val, str):
+        raise InputError(f"{fname} [data] {key}: expected a file path string, found {val!r}")
+    return (base / val).resolve()
+
+
+def _optional_measured(table: Table, i: int, col: str, errcol: str, convert) -> Measured | None:
+    raw = table.rows[i].get(col, "").strip()
+    if not raw:
+        return None
+    val = table.number(i, col)
+    err = table.number(i, errcol, nonnegative=True, default=0.0)
+    return Measured(convert(val), abs(convert(err)))
+
+
+def _load_compounds(path: Path):
+    table = read_table(path, ("compound", "mass_u"), "compounds")
+    info: dict[str, dict] = {}
+    for i, row in enumerate(table.rows):
+        name = row.get("compound", "").strip()
+        entry: dict[str, Any] = {"extra": {k: v for k, v in row.items() if k != "__bad__"}}
+        try:
+            if "__bad__" in row:
+                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
+            if not name:
+                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            if name in info:
+                raise CompoundError(
+                    f"{table.name} line {table.lines[i]}: compound {name!r} listed twice"
+                )
+            m = table.number(i, "mass_u", positive=True)
+            dm = table.number(i, "mass_err_u", nonnegative=True, default=0.0)
+            entry["mass"] = Measured(m * AMU, dm * AMU)
+            entry["alpha_known"] = _optional_measured(
+                table, i, "alpha_known_A3", "alpha_known_err_A3", alpha_si_from_a3
+            )
+            entry["dipole_known"] = _optional_measured(
+                table, i, "dipole_known_D", "dipole_known_err_D", si_from_debye
+            )
+        except CompoundError as exc:
+            if name in info and "problem" not in info[name]:
+                info[name]["problem"] = str(exc)
+                continue
+            entry["problem"] = str(exc)
+        info.setdefault(name, entry)
+    return info
+
+
+def _load_shifts(path: Path, layout: str):
+    obs, obs_err = OBSERVABLE_COLUMNS[layout]
+    required = SHIFT_COLUMNS_COMMON + (obs, obs_err)
+    if layout == "time-domain":
+        required = tuple(c for c in required if not c.startswith("velocity"))
+    table = read_table(path, required, "shifts")
+    groups: dict[str, dict[float, list]] = {}
+    problems: dict[str, str] = {}
+    for i, row in enumerate(table.rows):
+        name = row.get("compound", "").strip()
+        if name in problems:
+            continue
+        try:
+            if "__bad__" in row:
+                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
+            if not name:
+                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            num = table.number
+            if layout == "time-domain":
+                v = num(i, "velocity_m_s", positive=True, default=1.0)
+                dv = num(i, "velocity_err_m_s", nonnegative=True, default=0.0)
+                sv = num(i, "velocity_spread_m_s", nonnegative=True, default=0.0)
+            else:
+                v = num(i, "velocity_m_s", positive=True)
+                dv = num(i, "velocity_err_m_s", nonnegative=True)
+                sv = num(i, "velocity_spread_m_s", nonnegative=True)
+            rec = (
+                num(i, "voltage_V"),
+                num(i, obs),
+                num(i, obs_err, positive=True),
+                v,
+                dv,
+                sv,
+                num(i, "temperature_err_K", nonnegative=True),
+                table.lines[i],
+            )
+            temp = num(i, "temperature_K", positive=True)
+        except CompoundError as exc:
+            problems[name] = str(exc)
+            groups.pop(name, None)
+            continue
+        groups.setdefault(name, {}).setdefault(temp, []).append(rec)
+    series: dict[str, list[SeriesData]] = {}
+    for name, by_t in groups.items():
+        out = []
+        for temp, recs in sorted(by_t.items()):
+            arr = np.array([r[:7] for r in recs], dtype=float)
+            volts = arr[:, 0]
+            if np.unique(np.round(volts**2, 9)).size < 2:
+                problems[name] = (
+                    f"{table.name}: series {name} @ {temp:g} K expected at least two different "
+                    f"voltages (|V|), found {np.unique(np.abs(volts)).size}"
+                )
+                break
+            out.append(
+                SeriesData(
+                    compound=name,
+                    temperature=Measured(temp, float(np.mean(arr[:, 6]))),
+                    velocity=Measured(float(np.mean(arr[:, 3])), float(np.mean(arr[:, 4]))),
+                    velocities=arr[:, 3],
+                    spreads=arr[:, 5],
+                    voltages=volts,
+                    values=arr[:, 1],
+                    errors=arr[:, 2],
+                    lines=tuple(r[7] for r in recs),
+                )
+            )
+        else:
+            series[name] = out
+    return series, problems
+
+
+def load_campaign(path: str | Path) -> Campaign:
+    """Load and validate ``campaign.toml`` and its data files.
+
+    Raises
+    ------
+    InputError
+        For any structural problem (the message names file, key, expected and found).
+    """
+    path = Path(path)
+    fname = path.name
+    if not path.is_file():
+        raise InputError(f"{path}: campaign file not found")
+    try:
+        doc = tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{fname}: invalid TOML ({exc})") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"{path}: cannot read campaign file ({exc.__class__.__name__})") from None
+    _check_keys(doc, fname)
+    inst = doc.get("instrument", {})
+    defl = doc.get("deflector", {})
+    layout = _require_str(inst, "layout", f"{fname} [instrument]", LAYOUTS)
+    model = _require_str(defl, "model", f"{fname} [deflector]", DEFLECTOR_MODELS)
+    title = doc.get("campaign", {}).get("title", path.stem)
+    if not isinstance(title, str):
+        raise InputError(f"{fname} [campaign] title: expected a string, found {title!r}")
+    stated = _stated_inputs(doc, fname, layout, model)
+    settings = _settings(doc, fname)
+    base = path.parent
+    field_map = waveform = None
+    if model == "field-map" and layout != "time-domain":
+        fm = defl["field_map"]
+        if not isinstance(fm, str):
+            raise InputError(f"{fname} [deflector] field_map: expected a file path, found {fm!r}")
+        field_map = _read_profile((base / fm).resolve(), ("z_m", "field_factor_m3"), "field map")
+    if "waveform" in defl:
+        wf = defl["waveform"]
+        if not isinstance(wf, str):
+            raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
+        waveform = _read_profile((base / wf).resolve(), ("t_s", "amplitude"), "waveform")
+    shifts_path = _data_path(base, doc, "shifts", fname)
+    compounds_path = _data_path(base, doc, "compounds", fname)
+    info = _load_compounds(compounds_path)
+    series, problems = _load_shifts(shifts_path, layout)
+
+    camp = Campaign(
+        path=path,
+        title=title,
+        layout=layout,
+        model=model,
+        stated=stated,
+        settings=settings,
+        compounds=(),
+        field_map=field_map,
+        waveform=waveform,
+        raw=doc,
+    )
+    # validate the nominal geometry once: bad geometry is structural
+    try:
+        camp.build()
+    except QuantityError:
+        raise
+    except InputError as exc:
+        raise InputError(f"{fname} {exc}") from None
+
+    compounds = []
+    measured_names = list(dict.fromkeys(list(series) + list(problems)))
+    for name in measured_names:
+        entry = info.get(name)
+        problem = problems.get(name)
+        if entry is None:
+            problem = problem or (
+                f"{compounds_path.name}: compound {name!r} measured in {shifts_path.name} but not "
+                "listed (expected a row with its mass_u)"
+            )
+            compounds.append(CompoundData(name, None, problem=problem))
+            continue
+        problem = entry.get("problem") or problem
+        compounds.append(
+            CompoundData(
+                name,
+                entry.get("mass"),
+                tuple(series.get(name, ())) if problem is None else (),
+                entry["extra"],
+                problem,
+                entry.get("alpha_known"),
+                entry.get("dipole_known"),
+            )
+        )
+    unmeasured = tuple(n for n in info if n not in series and n not in problems)
+    return Campaign(
+        path=path,
+        title=title,
+        layout=layout,
+        model=model,
+        stated=stated,
+        settings=settings,
+        compounds=tuple(compounds),
+        unmeasured=unmeasured,
+        field_map=field_map,
+        waveform=waveform,
+        raw=doc,
+    )
+
+
+def finite(x) -> bool:
+    return x is not None and math.isfinite(x)
