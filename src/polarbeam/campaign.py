@@ -129,7 +129,7 @@ class AnalysisSettings:
     fit_offset: bool = True
     scale_errors: str = "never"  # "never" | "birge" (inflate by sqrt(χ²/ν) when > 1)
     upper_limit_cl: float = 0.95
-    dipole_significance: float = 2.0
+    dipole_significance: float = 3.0
     orientation_warning: float = 0.2  # warn when μE/kT exceeds this at the largest field
 
     def __post_init__(self):

@@ -48,6 +48,7 @@ def _ureg():
 
 
 _PM = re.compile(r"\s*(?:±|\+/-|\+-)\s*")
+_UNIT_CHARS = re.compile(r"^[A-Za-zµμÅΩ°][A-Za-z0-9µμÅΩ°^*/ .()-]*$")
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
 
@@ -59,6 +60,10 @@ def _split_number(text: str, where: str, original: str) -> tuple[float, str]:
 
 
 def _to_si(number: float, unit: str, expected: str, where: str, original: str) -> float:
+    if unit and not _UNIT_CHARS.match(unit):
+        raise QuantityError(
+            f"{where}: unknown unit {unit!r} in {original!r} (expected a unit of {expected or '1'})"
+        )
     ureg = _ureg()
     target = ureg.parse_units(expected) if expected else ureg.dimensionless
     try:

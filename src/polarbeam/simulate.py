@@ -265,7 +265,13 @@ def _toml(spec: InstrumentSpec, title: str) -> str:
     )
 
 
-def random_campaign(out_dir: str | Path, rng: np.random.Generator) -> SimulationTruth:
+def random_campaign(
+    out_dir: str | Path,
+    rng: np.random.Generator,
+    *,
+    dipole_range_D: tuple[float, float] = (0.0, 4.0),
+    n_temperatures: tuple[int, int] = (1, 4),
+) -> SimulationTruth:
     """One randomised campaign for round-trip tests: both layouts, spreads up to 15 %,
     dipoles 0–4 D, 1–4 temperatures, all systematics drawn from their stated errors."""
     layout = rng.choice(["talbot-lau", "beam-profile"])
@@ -276,13 +282,13 @@ def random_campaign(out_dir: str | Path, rng: np.random.Generator) -> Simulation
         if layout == "talbot-lau"
         else InstrumentSpec.beam_profile(model, rel)
     )
-    n_t = int(rng.integers(1, 5))
+    n_t = int(rng.integers(n_temperatures[0], n_temperatures[1] + 1))
     temps = tuple(float(t) for t in np.sort(rng.choice(np.arange(300, 801, 50), n_t, False)))
     comp = CompoundTruth(
         name="sample",
         mass_u=float(rng.uniform(60, 900)),
         alpha_A3=float(rng.uniform(5, 150)),
-        dipole_D=float(rng.uniform(0, 4)),
+        dipole_D=float(rng.uniform(*dipole_range_D)),
         temperatures_K=temps,
         mass_err_u=float(rng.choice([0.0, 0.05])),
     )
