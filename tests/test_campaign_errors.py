@@ -175,9 +175,9 @@ def test_single_temperature_leaves_alpha_empty_with_reason(camp, tmp_path):
     res = analyze(camp, tmp_path / "out")
     single = next(c for c in res.compounds if c.compound == "single-three")
     assert single.alpha is None and "single source temperature" in single.message
-    row = [
+    row = next(
         ln
         for ln in (tmp_path / "out" / "properties.csv").read_text().splitlines()
         if ln.startswith("single-three")
-    ][0]
+    )
     assert row.split(",")[1] == ""  # alpha_A3 empty

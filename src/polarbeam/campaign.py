@@ -457,7 +457,7 @@ def _load_compounds(path: Path):
 
 def _load_shifts(path: Path, layout: str):
     obs, obs_err = OBSERVABLE_COLUMNS[layout]
-    required = SHIFT_COLUMNS_COMMON + (obs, obs_err)
+    required = (*SHIFT_COLUMNS_COMMON, obs, obs_err)
     if layout == "time-domain":
         required = tuple(c for c in required if not c.startswith("velocity"))
     table = read_table(path, required, "shifts")

@@ -18,8 +18,8 @@ Models
 For the ``time-domain`` layout the same field factor acts between ``field_on`` and
 ``field_on + field_duration`` (or with a waveform of relative amplitude a(t), F ∝ a(t)²).
 
-:func:`overlap` returns ∫ w(s) g(s) ds for a layout's weight w: the single number that turns α_eff·V²
-into a shift (divided by m v² for spatial layouts, by m for the time domain).
+:func:`overlap` returns ∫ w(s) g(s) ds for a layout's weight w: the single number that turns
+α_eff·V² into a shift (divided by m v² for spatial layouts, by m for the time domain).
 """
 
 from __future__ import annotations
@@ -48,7 +48,7 @@ DEFLECTOR_MODELS = ("uniform", "two-wire", "field-map")
 
 
 def two_wire_potential(x, z, a: float, z1: float, z2: float, voltage: float = 1.0):
-    """Potential K·arg((w − a)/(w + a)), w = x + iz, scaled so the electrodes differ by ``voltage``."""
+    """Potential K·arg((w − a)/(w + a)), w = x + iz; the electrodes differ by ``voltage``."""
     k = voltage / (2.0 * (math.atan(a / z1) - math.atan(a / z2)))
     w = np.asarray(x, dtype=float) + 1j * np.asarray(z, dtype=float)
     return k * np.angle((w - a) / (w + a))
