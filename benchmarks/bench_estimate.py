@@ -27,13 +27,55 @@ from polarbeam.structure import _fast, estimate_table
 
 # Fragments combined into R1-L-R2(-S) molecules.  Plain organic building blocks.
 _R = [
-    "C", "CC", "CCC", "CC(C)", "CCCC", "CC(C)(C)", "C1CC1", "C1CCCC1", "C1CCCCC1",
-    "c1ccccc1", "c1ccc(C)cc1", "c1ccc(Cl)cc1", "c1ccc(F)cc1", "c1ccc(Br)cc1", "c1ccncc1",
-    "c1ccoc1", "c1ccsc1", "c1ccc2ccccc2c1", "c1cc[nH]c1", "C=C", "C#C", "CC=C", "C(F)(F)F",
-    "CCl", "CI", "COC", "CCOC", "c1cnccn1", "C1CCOC1", "C1CCNCC1",
+    "C",
+    "CC",
+    "CCC",
+    "CC(C)",
+    "CCCC",
+    "CC(C)(C)",
+    "C1CC1",
+    "C1CCCC1",
+    "C1CCCCC1",
+    "c1ccccc1",
+    "c1ccc(C)cc1",
+    "c1ccc(Cl)cc1",
+    "c1ccc(F)cc1",
+    "c1ccc(Br)cc1",
+    "c1ccncc1",
+    "c1ccoc1",
+    "c1ccsc1",
+    "c1ccc2ccccc2c1",
+    "c1cc[nH]c1",
+    "C=C",
+    "C#C",
+    "CC=C",
+    "C(F)(F)F",
+    "CCl",
+    "CI",
+    "COC",
+    "CCOC",
+    "c1cnccn1",
+    "C1CCOC1",
+    "C1CCNCC1",
 ]
-_L = ["", "O", "S", "N", "N(C)", "C(=O)", "C(=O)O", "OC(=O)", "C(=O)N", "NC(=O)", "C=C", "C#C",
-      "CC", "S(=O)(=O)", "C(=O)C", "OCCO"]
+_L = [
+    "",
+    "O",
+    "S",
+    "N",
+    "N(C)",
+    "C(=O)",
+    "C(=O)O",
+    "OC(=O)",
+    "C(=O)N",
+    "NC(=O)",
+    "C=C",
+    "C#C",
+    "CC",
+    "S(=O)(=O)",
+    "C(=O)C",
+    "OCCO",
+]
 _S = ["", "", "", "O", "Cl", "F", "C#N", "[N+](=O)[O-]", "C(=O)C", "OC"]
 
 _BANNED = [
@@ -102,11 +144,16 @@ def main(n: int = 10_000) -> None:
     print(f"molecules: {n}  (ok {stats['ok']}, failed {stats['failed']})")
     print(f"baseline parse + Crippen.MolMR      : {t_base:7.3f} s")
     print(f"baseline Crippen.MolMR (pre-parsed) : {t_mr:7.3f} s")
-    print(f"polarbeam hot path (parse+estimate) : {t_fast:7.3f} s   "
-          f"ratio {t_fast / t_base:5.2f}x vs parse+MolMR, {t_fast / t_mr:5.2f}x vs MolMR alone")
-    print(f"polarbeam estimate_table (CSV->CSV) : {t_table:7.3f} s   "
-          f"ratio {t_table / t_base:5.2f}x vs parse+MolMR, {t_table / t_mr:5.2f}x vs MolMR alone")
-    print("target: estimate_table <= 3x parse+MolMR: " + ("met" if t_table <= 3 * t_base else "NOT met"))
+    print(
+        f"polarbeam hot path (parse+estimate) : {t_fast:7.3f} s   "
+        f"ratio {t_fast / t_base:5.2f}x vs parse+MolMR, {t_fast / t_mr:5.2f}x vs MolMR alone"
+    )
+    print(
+        f"polarbeam estimate_table (CSV->CSV) : {t_table:7.3f} s   "
+        f"ratio {t_table / t_base:5.2f}x vs parse+MolMR, {t_table / t_mr:5.2f}x vs MolMR alone"
+    )
+    verdict = "met" if t_table <= 3 * t_base else "NOT met"
+    print(f"target: estimate_table <= 3x parse+MolMR: {verdict}")
 
 
 if __name__ == "__main__":
