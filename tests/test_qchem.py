@@ -96,7 +96,7 @@ def test_water_b3lyp_against_experiment(water_b3lyp):
     # common practice); the dipole within 5 % of CCCBDB (B3LYP overestimates μ slightly).
     assert res.alpha_A3 == pytest.approx(WATER_ALPHA_A3, rel=0.05)
     assert res.dipole_D == pytest.approx(WATER_DIPOLE_D, rel=0.05)
-    assert res.n_basis == 39  # def2-SVPD: O 9s... contracted to 21 + 2 × H 9 (PySCF spherical)
+    assert res.n_basis == 39  # def2-SVPD, spherical functions: O 23 + 2 × H 8
     # water is an asymmetric top: three different principal values, Δα small vs ᾱ
     p = res.principal_A3
     assert p[0] < p[1] < p[2] and 0 < res.anisotropy_A3 < 0.2 * res.alpha_A3
@@ -264,6 +264,48 @@ def test_d4_estimate_for_water():
     assert d4.alpha_A3 == pytest.approx(WATER_ALPHA_A3, rel=0.10)
     row = results_table([d4]).iloc[0]
     assert row["method"] == "D4" and math.isnan(row["anisotropy_A3"])
+
+
+def test_dipole_of_an_ion_is_about_the_centre_of_mass(cache):
+    # hydroxide: the dipole of an ion depends on the origin; polarbeam uses the centre of mass,
+    # so shifting the whole molecule must not change it
+    g = geometry_from_smiles("[OH-]")
+    shifted = Geometry(
+        g.symbols,
+        tuple((x + 3.0, y - 2.0, z + 1.0) for x, y, z in g.coords_angstrom),
+        g.charge,
+        g.label,
+        "shifted",
+    )
+    a = compute_properties(g, "hf", "def2-svpd", cache_dir=cache)
+    b = compute_properties(shifted, "hf", "def2-svpd", cache_dir=cache)
+    assert g.charge == -1 and a.cache_key != b.cache_key
+    assert b.dipole_D == pytest.approx(a.dipole_D, rel=1e-6)
+    assert b.alpha_A3 == pytest.approx(a.alpha_A3, rel=1e-6)
+
+
+def test_sdf_and_mol_files(tmp_path):
+    from rdkit import Chem
+    from rdkit.Chem import AllChem
+
+    mol = Chem.AddHs(Chem.MolFromSmiles("C=O"))
+    AllChem.EmbedMolecule(mol, randomSeed=7)
+    sdf = tmp_path / "methanal.sdf"
+    Chem.MolToMolFile(mol, str(sdf))
+    g = qchem.load_geometry(str(sdf))
+    assert g.label == "C=O" and g.symbols == ("C", "O", "H", "H")
+    assert g.coords_angstrom[0] == pytest.approx(
+        tuple(mol.GetConformer().GetAtomPosition(0)), abs=1e-4
+    )
+    # a 2D MOL block is embedded and optimised like a SMILES
+    flat = Chem.MolFromSmiles("C=O")
+    AllChem.Compute2DCoords(flat)
+    mol2d = tmp_path / "flat.mol"
+    Chem.MolToMolFile(flat, str(mol2d))
+    g2 = qchem.load_geometry(mol2d)
+    assert len(g2.symbols) == 4 and "ETKDGv3" in g2.source
+    with pytest.raises(InputError, match=r"missing.sdf: structure file not found"):
+        qchem.load_geometry(tmp_path / "missing.sdf")
 
 
 def test_geometry_validates():

@@ -66,6 +66,7 @@ __all__ = [
     "cpscf_polarizability",
     "d4_polarizability",
     "default_cache_dir",
+    "dipole_au",
     "estimate_cost",
     "finite_field_polarizability",
     "geometry_from_file",
@@ -543,6 +544,24 @@ def finite_field_polarizability(mf, field_au: float = DEFAULT_FIELD_AU) -> np.nd
     return 0.5 * (alpha + alpha.T)
 
 
+def dipole_au(mf) -> np.ndarray:
+    """Dipole vector (atomic units) of an SCF solution about the centre of mass.
+
+    μ = Σ_A Z_A (R_A − R_cm) − tr(D r_cm).  For a neutral molecule the origin does not matter;
+    for an ion the centre of mass is the point the molecule rotates about in a beam.
+    """
+    mol = mf.mol
+    masses = np.asarray(mol.atom_mass_list(isotope_avg=True), dtype=float)
+    coords = mol.atom_coords()
+    com = masses @ coords / masses.sum()
+    with mol.with_common_orig(com):
+        r = mol.intor_symmetric("int1e_r", comp=3)
+    dm = mf.make_rdm1()
+    electronic = np.einsum("xij,ji->x", r, dm).real
+    nuclear = mol.atom_charges() @ (coords - com)
+    return nuclear - electronic
+
+
 def _make_scf(mol, method: str):
     scf = require("pyscf.scf", "computing polarizabilities with PySCF")
     dft = require("pyscf.dft", "computing polarizabilities with PySCF")
@@ -597,7 +616,7 @@ def _run_pyscf(
         say(f"polarizability ({scheme})")
         alpha = cpscf_polarizability(mf)
     t2 = time.perf_counter()
-    dip = np.asarray(mf.dip_moment(unit="au", verbose=0), dtype=float)
+    dip = dipole_au(mf)
     return {
         "energy_hartree": float(mf.e_tot),
         "dipole_au": dip.tolist(),
@@ -938,8 +957,8 @@ def d4_polarizability(
 
     D4 sums charge- and coordination-dependent atomic static polarizabilities (fitted to
     TD-DFT reference values); it gives no tensor and no dipole.  A fast first estimate for
-    molecules too big for :func:`compute_properties`, typically within ~5–10 % for organic
-    molecules (common practice; check on your set with :func:`polarbeam.computed.parity_table`).
+    molecules too big for :func:`compute_properties`; its accuracy depends on the class of
+    molecule, so check it on your set with :func:`polarbeam.computed.parity_table`.
     """
     iface = require("dftd4.interface", "the D4 polarizability estimate")
     geom = load_geometry(structure, charge=charge, seed=seed)
