@@ -322,3 +322,20 @@ def test_read_outputs_through_cclib(tmp_path):
     assert "junk.out: not a format cclib recognises" in text
     assert "nodip.out: no dipole moment" in text
     assert "missing/*.log: no file matched" in text
+
+
+def test_missing_cclib_gives_one_line_install_hint(monkeypatch, tmp_path):
+    import importlib
+
+    from polarbeam.qc_compat import MissingExtraError
+
+    real = importlib.import_module
+
+    def no_cclib(name, *args, **kwargs):
+        if name.split(".")[0] == "cclib":
+            raise ImportError("No module named 'cclib'")
+        return real(name, *args, **kwargs)
+
+    monkeypatch.setattr(importlib, "import_module", no_cclib)
+    with pytest.raises(MissingExtraError, match=r"needs cclib, .*pip install 'polarbeam\[qc\]'"):
+        read_outputs(["*.out"], tmp_path)

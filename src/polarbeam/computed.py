@@ -415,6 +415,8 @@ def read_outputs(patterns: Sequence[str], base_dir=".") -> tuple[pd.DataFrame, l
     """
     cclib = require("cclib", "reading quantum-chemistry output files")
     require("cclib.io", "reading quantum-chemistry output files")
+    if isinstance(patterns, str | os.PathLike):
+        patterns = [str(patterns)]
     base = Path(base_dir)
     notes: list[str] = []
     files: list[Path] = []
