@@ -1,0 +1,701 @@
+"""Computed polarizabilities and dipoles: import, tabulate, compare with the measurement.
+
+This module is the "computed chemistry" stage without any quantum-chemistry dependency:
+
+* :func:`read_computed` reads a CSV of values computed elsewhere
+  (``compound, method, alpha, alpha_unit, dipole_D`` and optional ``alpha_xx, alpha_yy, alpha_zz``)
+  and converts them to polarizability volumes in Å³.
+* :func:`read_outputs` reads quantum-chemistry output files through cclib (optional extra
+  ``polarbeam[qc]``) where cclib exposes a polarizability tensor.
+* :func:`compare` puts computed and measured static polarizabilities side by side;
+  :func:`compare_series` compares the computed α + μ²/(3kT) (Langevin–Debye) with every measured
+  effective polarizability of a temperature series; :func:`parity_table` condenses a comparison
+  into per-method statistics ("method X underestimates our set by 4 %").
+
+Tables carry Å³ and debye because they are edges (files a person reads); the physics helpers are
+plain functions of floats/arrays.  Read :data:`ELECTRONIC_VS_VIBRATIONAL_NOTE` before drawing
+conclusions from a parity table.
+"""
+
+from __future__ import annotations
+
+import csv
+import glob
+import logging
+import math
+import os
+from collections.abc import Iterable, Sequence
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .constants import (
+    ANGSTROM3_SI,
+    AU_POLARIZABILITY_SI,
+    alpha_a3_from_si,
+    langevin_debye_si,
+    si_from_debye,
+)
+from .errors import InputError, RowValueError
+from .qc_compat import require
+
+__all__ = [
+    "ALPHA_UNITS",
+    "COMPARISON_COLUMNS",
+    "COMPUTED_COLUMNS",
+    "ELECTRONIC_VS_VIBRATIONAL_NOTE",
+    "PARITY_COLUMNS",
+    "SERIES_COMPARISON_COLUMNS",
+    "alpha_a3_from_unit",
+    "anisotropy",
+    "compare",
+    "compare_series",
+    "isotropic_average",
+    "orientational_a3",
+    "parity_table",
+    "read_computed",
+    "read_outputs",
+]
+
+#: Caveat to print next to every computed-vs-measured comparison.
+ELECTRONIC_VS_VIBRATIONAL_NOTE = (
+    "A static-field deflection measures the full static polarizability, which includes the "
+    "vibrational (nuclear-relaxation) contribution as well as the electronic one; "
+    "refractive-index values and most computed values (CPHF/CPKS at a fixed geometry, D4) are "
+    "electronic only. Expect measured > computed by the vibrational part (a few per cent for "
+    "small rigid molecules, more for floppy or ionic-bonded ones) even for an exact method."
+)
+
+#: Polarizability unit strings accepted in a computed-values CSV → factor to Å³.
+#: ``bohr3`` is the atomic unit of polarizability e²a0²/Eh read as a volume (4πε0·a0³).
+ALPHA_UNITS: dict[str, float] = {
+    "A3": 1.0,
+    "bohr3": AU_POLARIZABILITY_SI / ANGSTROM3_SI,
+    "C m2/V": 1.0 / ANGSTROM3_SI,
+}
+
+#: Columns of a computed-values table (from :func:`read_computed`, :func:`read_outputs` or
+#: :func:`polarbeam.qchem.results_table`).
+COMPUTED_COLUMNS = [
+    "compound",
+    "method",
+    "alpha_computed_A3",
+    "dipole_computed_D",
+    "alpha_xx_A3",
+    "alpha_yy_A3",
+    "alpha_zz_A3",
+    "anisotropy_A3",
+    "source",
+]
+
+#: Columns of :func:`compare` (``comparison.csv``), in order; optional extras follow.
+COMPARISON_COLUMNS = [
+    "compound",
+    "method",
+    "alpha_computed_A3",
+    "dipole_computed_D",
+    "alpha_measured_A3",
+    "alpha_measured_err_A3",
+    "alpha_diff_A3",
+    "alpha_diff_err_A3",
+]
+
+#: Columns of :func:`compare_series`.
+SERIES_COMPARISON_COLUMNS = [
+    "compound",
+    "method",
+    "temperature_K",
+    "alpha_computed_A3",
+    "dipole_computed_D",
+    "orientational_computed_A3",
+    "alpha_eff_computed_A3",
+    "alpha_eff_measured_A3",
+    "alpha_eff_measured_err_A3",
+    "alpha_eff_diff_A3",
+    "alpha_eff_diff_err_A3",
+]
+
+#: Columns of :func:`parity_table`.
+PARITY_COLUMNS = [
+    "method",
+    "n_compounds",
+    "mean_signed_dev_A3",
+    "mean_signed_dev_pct",
+    "mean_abs_dev_A3",
+    "mean_abs_dev_pct",
+    "rms_dev_A3",
+    "max_abs_dev_A3",
+    "n_within_2sigma",
+    "verdict",
+]
+
+_REQUIRED = ("compound", "method", "alpha", "alpha_unit", "dipole_D")
+_COMPONENTS = ("alpha_xx", "alpha_yy", "alpha_zz")
+#: Relative mismatch allowed between ``alpha`` and the mean of the given diagonal components.
+_TRACE_TOLERANCE = 0.01
+
+
+# --------------------------------------------------------------------------------------------
+# physics helpers (plain floats / arrays)
+# --------------------------------------------------------------------------------------------
+
+
+def alpha_a3_from_unit(value, unit: str):
+    """Convert a polarizability given in one of :data:`ALPHA_UNITS` to Å³.
+
+    Raises
+    ------
+    InputError
+        If ``unit`` is not one of the accepted strings (the message lists them).
+    """
+    try:
+        factor = ALPHA_UNITS[unit]
+    except KeyError:
+        valid = ", ".join(repr(u) for u in ALPHA_UNITS)
+        raise InputError(f"alpha unit: expected one of {valid}, found {unit!r}") from None
+    return np.asarray(value, dtype=float) * factor if np.ndim(value) else float(value) * factor
+
+
+def isotropic_average(tensor) -> float:
+    """Isotropic polarizability ᾱ = tr(α)/3 of a 3×3 tensor (any consistent unit)."""
+    t = np.asarray(tensor, dtype=float)
+    if t.shape != (3, 3):
+        raise ValueError(f"polarizability tensor: expected shape (3, 3), found {t.shape}")
+    return float(np.trace(t) / 3.0)
+
+
+def anisotropy(tensor) -> float:
+    """Polarizability anisotropy Δα of a 3×3 tensor (any consistent unit).
+
+    Δα² = ½[(αxx−αyy)² + (αyy−αzz)² + (αzz−αxx)² + 6(αxy² + αyz² + αzx²)], the rotational
+    invariant used for Rayleigh depolarisation and Kerr-effect work (common practice); for a
+    tensor in its principal axes only the diagonal terms remain.  The tensor is symmetrised
+    first.
+    """
+    t = np.asarray(tensor, dtype=float)
+    if t.shape != (3, 3):
+        raise ValueError(f"polarizability tensor: expected shape (3, 3), found {t.shape}")
+    t = 0.5 * (t + t.T)
+    xx, yy, zz = t[0, 0], t[1, 1], t[2, 2]
+    off = t[0, 1] ** 2 + t[1, 2] ** 2 + t[2, 0] ** 2
+    val = 0.5 * ((xx - yy) ** 2 + (yy - zz) ** 2 + (zz - xx) ** 2 + 6.0 * off)
+    return float(math.sqrt(max(val, 0.0)))
+
+
+def orientational_a3(dipole_d, temperature_k):
+    """Orientational polarizability volume μ²/(3kT) in Å³ for a dipole in debye.
+
+    Uses :func:`polarbeam.constants.langevin_debye_si` (high-temperature, rigid-rotor limit).
+    """
+    mu_si = si_from_debye(np.asarray(dipole_d, dtype=float))
+    out = alpha_a3_from_si(langevin_debye_si(mu_si, np.asarray(temperature_k, dtype=float)))
+    return float(out) if np.ndim(out) == 0 else out
+
+
+# --------------------------------------------------------------------------------------------
+# CSV of computed values
+# --------------------------------------------------------------------------------------------
+
+
+def _number(text: str, where: str, column: str, *, allow_blank: bool) -> float:
+    s = text.strip()
+    if not s:
+        if allow_blank:
+            return math.nan
+        raise RowValueError(f"{where}, column {column}: expected a number, found an empty cell")
+    try:
+        value = float(s)
+    except ValueError:
+        raise RowValueError(f"{where}, column {column}: expected a number, found {s!r}") from None
+    if not math.isfinite(value):
+        raise RowValueError(f"{where}, column {column}: expected a finite number, found {s!r}")
+    return value
+
+
+def _parse_row(cells: dict[str, str], where: str) -> dict:
+    compound = cells["compound"].strip()
+    method = cells["method"].strip()
+    if not compound:
+        raise RowValueError(f"{where}, column compound: expected a name, found an empty cell")
+    if not method:
+        raise RowValueError(f"{where}, column method: expected a method name, found empty")
+    unit = cells["alpha_unit"].strip()
+    if unit not in ALPHA_UNITS:
+        valid = ", ".join(repr(u) for u in ALPHA_UNITS)
+        raise RowValueError(f"{where}, column alpha_unit: expected one of {valid}, found {unit!r}")
+    factor = ALPHA_UNITS[unit]
+    comps = [_number(cells.get(c, ""), where, c, allow_blank=True) for c in _COMPONENTS]
+    given = [math.isfinite(c) for c in comps]
+    if any(given) and not all(given):
+        missing = ", ".join(c for c, g in zip(_COMPONENTS, given, strict=True) if not g)
+        raise RowValueError(
+            f"{where}, columns alpha_xx/alpha_yy/alpha_zz: expected all three or none, "
+            f"found {missing} empty"
+        )
+    alpha = _number(cells["alpha"], where, "alpha", allow_blank=all(given))
+    if math.isnan(alpha):
+        alpha = sum(comps) / 3.0
+    if alpha <= 0:
+        raise RowValueError(f"{where}, column alpha: expected a value > 0, found {alpha!r}")
+    aniso = math.nan
+    comps_a3 = [math.nan] * 3
+    if all(given):
+        mean = sum(comps) / 3.0
+        if abs(mean - alpha) > _TRACE_TOLERANCE * abs(alpha):
+            raise RowValueError(
+                f"{where}, column alpha: expected the mean of alpha_xx, alpha_yy, alpha_zz "
+                f"({mean:.6g}) within {_TRACE_TOLERANCE:.0%}, found {alpha:.6g}"
+            )
+        comps_a3 = [c * factor for c in comps]
+        aniso = anisotropy(np.diag(comps_a3))
+    dipole = _number(cells["dipole_D"], where, "dipole_D", allow_blank=True)
+    if dipole < 0:
+        raise RowValueError(
+            f"{where}, column dipole_D: expected a magnitude >= 0 debye, found {dipole!r}"
+        )
+    return {
+        "compound": compound,
+        "method": method,
+        "alpha_computed_A3": alpha * factor,
+        "dipole_computed_D": dipole,
+        "alpha_xx_A3": comps_a3[0],
+        "alpha_yy_A3": comps_a3[1],
+        "alpha_zz_A3": comps_a3[2],
+        "anisotropy_A3": aniso,
+    }
+
+
+def read_computed(path, failures: list[str] | None = None) -> pd.DataFrame:
+    """Read a CSV of computed polarizabilities and dipoles into a table in Å³ and debye.
+
+    Parameters
+    ----------
+    path
+        CSV with a header row holding at least ``compound, method, alpha, alpha_unit, dipole_D``
+        and optionally ``alpha_xx, alpha_yy, alpha_zz`` (diagonal components, principal axes,
+        same unit as ``alpha``).  ``alpha_unit`` is one of ``A3``, ``bohr3`` (atomic units) or
+        ``C m2/V``.  ``alpha`` may be left empty when the three components are given (it is then
+        their mean); a blank ``dipole_D`` means "not computed".  Lines starting with ``#`` and
+        blank lines are skipped; other columns are ignored.  Several methods per compound are
+        allowed; the same (compound, method) twice is an error.
+    failures
+        If a list is given, a bad row does not stop the reading: its one-line message is
+        appended (it names the file, line, compound and column) and the good rows are returned.
+        If ``None`` (default) the first bad row raises :class:`~polarbeam.errors.RowValueError`.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns :data:`COMPUTED_COLUMNS`; ``anisotropy_A3`` is Δα from the diagonal components
+        (NaN when they are not given); ``source`` is ``"<file>:<line>"``.
+
+    Raises
+    ------
+    InputError
+        Missing or unreadable file, no header, missing required columns.
+    RowValueError
+        A bad value in a row (only when ``failures`` is ``None``).
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"{path}: computed-values file not found")
+    rows: list[dict] = []
+    seen: dict[tuple[str, str], int] = {}
+    try:
+        handle = path.open(newline="", encoding="utf-8-sig")
+    except OSError as exc:
+        raise InputError(f"{path}: cannot read computed-values file ({exc.strerror})") from None
+    with handle:
+        reader = csv.reader(handle)
+        header: list[str] | None = None
+        for record in reader:
+            line = reader.line_num
+            if not record or all(not c.strip() for c in record) or record[0].lstrip()[:1] == "#":
+                continue
+            if header is None:
+                header = [c.strip() for c in record]
+                missing = [c for c in _REQUIRED if c not in header]
+                if missing:
+                    raise InputError(
+                        f"{path}: line {line}: expected columns {', '.join(_REQUIRED)}, "
+                        f"missing {', '.join(missing)} (found {', '.join(header)})"
+                    )
+                continue
+            where = f"{path}: line {line}"
+            try:
+                if len(record) != len(header):
+                    raise RowValueError(
+                        f"{where}: expected {len(header)} fields as in the header, "
+                        f"found {len(record)}"
+                    )
+                cells = dict(zip(header, record, strict=True))
+                name = cells["compound"].strip()
+                if name:
+                    where = f"{where} (compound {name!r})"
+                row = _parse_row(cells, where)
+                key = (row["compound"], row["method"])
+                if key in seen:
+                    raise RowValueError(
+                        f"{where}, column method: expected one row per compound and method, "
+                        f"found {row['method']!r} again (first on line {seen[key]})"
+                    )
+            except RowValueError as exc:
+                if failures is None:
+                    raise
+                failures.append(str(exc))
+                continue
+            seen[key] = line
+            row["source"] = f"{path.name}:{line}"
+            rows.append(row)
+    if header is None:
+        raise InputError(f"{path}: expected a header row with {', '.join(_REQUIRED)}, found none")
+    return pd.DataFrame(rows, columns=COMPUTED_COLUMNS)
+
+
+# --------------------------------------------------------------------------------------------
+# quantum-chemistry output files through cclib
+# --------------------------------------------------------------------------------------------
+
+
+def _cclib_method(ccdata) -> str:
+    meta = getattr(ccdata, "metadata", {}) or {}
+    functional = meta.get("functional")
+    if not functional:
+        methods = meta.get("methods") or []
+        functional = methods[-1] if methods else None
+    basis = meta.get("basis_set")
+    if functional and basis:
+        return f"{functional}/{basis}"
+    return functional or (f"file/{basis}" if basis else "file")
+
+
+def _symmetric_tensor(raw) -> np.ndarray:
+    t = np.asarray(raw, dtype=float)
+    if t.shape != (3, 3):
+        raise ValueError(f"expected a 3x3 polarizability tensor, found shape {t.shape}")
+    upper = t[np.triu_indices(3, 1)]
+    lower = t[np.tril_indices(3, -1)]
+    if np.all(upper == 0) and np.any(lower != 0):  # lower triangle only
+        t = np.tril(t) + np.tril(t, -1).T
+    elif np.all(lower == 0) and np.any(upper != 0):
+        t = np.triu(t) + np.triu(t, 1).T
+    return 0.5 * (t + t.T)
+
+
+def read_outputs(patterns: Sequence[str], base_dir=".") -> tuple[pd.DataFrame, list[str]]:
+    """Read polarizabilities and dipoles from quantum-chemistry output files through cclib.
+
+    Parameters
+    ----------
+    patterns
+        Glob patterns (``"qc/*.out"``, ``"**/*.log"``) relative to ``base_dir``; absolute
+        patterns are used as they are.
+    base_dir
+        Folder the patterns are relative to (usually the campaign folder).
+
+    Returns
+    -------
+    table : pandas.DataFrame
+        Columns :data:`COMPUTED_COLUMNS`, one row per file with a polarizability.  The compound
+        is the file stem; the method is ``"<functional>/<basis>"`` from cclib's metadata when the
+        file states them, else ``"file"``.  cclib keeps polarizabilities in atomic units
+        (converted here via CODATA); its ``moments[1]`` is the dipole vector in debye -- the
+        attribute docstring of cclib 1.8 says "a.u.", but its parsers convert to debye.
+        ``alpha_xx_A3`` … are the principal values (ascending).
+    notes : list of str
+        One line per file that gave no row (unsupported format, parse failure, no
+        polarizability) or gave an incomplete one (no dipole, several tensors), and per pattern
+        that matched nothing.  No exception is raised for such files.
+
+    Raises
+    ------
+    polarbeam.qc_compat.MissingExtraError
+        If cclib is not installed (extra ``polarbeam[qc]``).
+    """
+    cclib = require("cclib", "reading quantum-chemistry output files")
+    require("cclib.io", "reading quantum-chemistry output files")
+    if isinstance(patterns, str | os.PathLike):
+        patterns = [str(patterns)]
+    base = Path(base_dir)
+    notes: list[str] = []
+    files: list[Path] = []
+    for pattern in patterns:
+        full = pattern if os.path.isabs(pattern) else str(base / pattern)
+        matched = sorted(Path(p) for p in glob.glob(full, recursive=True) if Path(p).is_file())
+        if not matched:
+            notes.append(f"{pattern}: no file matched (relative to {base})")
+        files.extend(m for m in matched if m not in files)
+    rows = []
+    seen: dict[tuple[str, str], Path] = {}
+    for path in files:
+        try:
+            data = cclib.io.ccread(str(path), loglevel=logging.CRITICAL)
+        except Exception as exc:  # cclib raises many kinds on truncated or odd files
+            notes.append(f"{path}: cclib could not parse it ({type(exc).__name__}: {exc})")
+            continue
+        if data is None:
+            notes.append(f"{path}: not a format cclib recognises; skipped")
+            continue
+        pols = getattr(data, "polarizabilities", None)
+        if not pols:
+            notes.append(f"{path}: no polarizability in the file (cclib found none); skipped")
+            continue
+        try:
+            tensor_au = _symmetric_tensor(pols[0])
+        except ValueError as exc:
+            notes.append(f"{path}: unusable polarizability ({exc}); skipped")
+            continue
+        if len(pols) > 1:
+            notes.append(
+                f"{path}: {len(pols)} polarizability tensors in the file; using the first "
+                "(the static one in the usual job layout) -- check it is static"
+            )
+        factor = ALPHA_UNITS["bohr3"]
+        tensor = tensor_au * factor
+        principal = np.sort(np.linalg.eigvalsh(tensor))
+        moments = getattr(data, "moments", None)
+        if moments is not None and len(moments) > 1 and moments[1] is not None:
+            dipole = float(np.linalg.norm(np.asarray(moments[1], dtype=float)))
+        else:
+            dipole = math.nan
+            notes.append(f"{path}: no dipole moment in the file; dipole left empty")
+        method = _cclib_method(data)
+        if (path.stem, method) in seen:
+            notes.append(
+                f"{path}: same compound and method as {seen[(path.stem, method)]}; skipped"
+            )
+            continue
+        seen[(path.stem, method)] = path
+        rows.append(
+            {
+                "compound": path.stem,
+                "method": method,
+                "alpha_computed_A3": isotropic_average(tensor),
+                "dipole_computed_D": dipole,
+                "alpha_xx_A3": float(principal[0]),
+                "alpha_yy_A3": float(principal[1]),
+                "alpha_zz_A3": float(principal[2]),
+                "anisotropy_A3": anisotropy(tensor),
+                "source": str(path),
+            }
+        )
+    return pd.DataFrame(rows, columns=COMPUTED_COLUMNS), notes
+
+
+# --------------------------------------------------------------------------------------------
+# comparison with the measurement
+# --------------------------------------------------------------------------------------------
+
+_MEASURED_ALIASES = {
+    "alpha_measured_A3": "alpha_A3",
+    "alpha_measured_err_A3": "alpha_err_A3",
+    "dipole_measured_D": "dipole_D",
+    "dipole_measured_err_D": "dipole_err_D",
+}
+
+
+def _need_columns(df: pd.DataFrame, required: Iterable[str], what: str) -> None:
+    if not isinstance(df, pd.DataFrame):
+        raise InputError(f"{what}: expected a pandas DataFrame, found {type(df).__name__}")
+    missing = [c for c in required if c not in df.columns]
+    if missing:
+        raise InputError(
+            f"{what}: expected columns {', '.join(required)}, missing {', '.join(missing)} "
+            f"(found {', '.join(map(str, df.columns))})"
+        )
+
+
+def _computed_view(computed: pd.DataFrame) -> pd.DataFrame:
+    _need_columns(
+        computed, ["compound", "method", "alpha_computed_A3", "dipole_computed_D"], "computed table"
+    )
+    dup = computed.duplicated(["compound", "method"], keep=False)
+    if dup.any():
+        first = computed.loc[dup, ["compound", "method"]].iloc[0]
+        raise InputError(
+            f"computed table: expected one row per compound and method, found "
+            f"{first['compound']!r} / {first['method']!r} more than once"
+        )
+    return computed[["compound", "method", "alpha_computed_A3", "dipole_computed_D"]].copy()
+
+
+def compare(
+    measured: pd.DataFrame, computed: pd.DataFrame, *, temperatures: Sequence[float] = ()
+) -> pd.DataFrame:
+    """Computed vs measured static polarizability, one row per (compound, method).
+
+    Parameters
+    ----------
+    measured
+        One row per compound with ``compound, alpha_A3, alpha_err_A3`` (1σ) and optionally
+        ``dipole_D, dipole_err_D``.  The names ``alpha_measured_A3`` … are accepted too.
+    computed
+        A table with at least ``compound, method, alpha_computed_A3, dipole_computed_D``
+        (:func:`read_computed`, :func:`read_outputs`, :func:`polarbeam.qchem.results_table`).
+    temperatures
+        Optional temperatures in K: for each T a column ``alpha_eff_computed_A3_<T>K`` with the
+        computed α + μ²/(3kT) is added (what a deflection at that source temperature would give).
+
+    Returns
+    -------
+    pandas.DataFrame
+        :data:`COMPARISON_COLUMNS` (``comparison.csv``), then ``dipole_measured_D``,
+        ``dipole_measured_err_D``, ``dipole_diff_D`` when the measured table has dipoles, then the
+        per-temperature columns.  Only compounds present in both tables appear.
+
+    Notes
+    -----
+    ``alpha_diff_A3`` is measured − computed.  Its error ``alpha_diff_err_A3`` is the
+    experimental 1σ only: a computed value has no statistical error, its method error is what
+    :func:`parity_table` measures over a set of compounds.  See
+    :data:`ELECTRONIC_VS_VIBRATIONAL_NOTE`.
+    """
+    measured = measured.rename(columns=_MEASURED_ALIASES)
+    _need_columns(measured, ["compound", "alpha_A3", "alpha_err_A3"], "measured table")
+    if measured["compound"].duplicated().any():
+        name = measured.loc[measured["compound"].duplicated(), "compound"].iloc[0]
+        raise InputError(f"measured table: expected one row per compound, found {name!r} twice")
+    comp = _computed_view(computed)
+    cols = ["compound", "alpha_A3", "alpha_err_A3"]
+    has_dipole = "dipole_D" in measured.columns
+    if has_dipole:
+        if "dipole_err_D" not in measured.columns:
+            measured = measured.assign(dipole_err_D=np.nan)
+        cols += ["dipole_D", "dipole_err_D"]
+    out = comp.merge(measured[cols], on="compound", how="inner", sort=False)
+    out = out.rename(
+        columns={
+            "alpha_A3": "alpha_measured_A3",
+            "alpha_err_A3": "alpha_measured_err_A3",
+            "dipole_D": "dipole_measured_D",
+            "dipole_err_D": "dipole_measured_err_D",
+        }
+    )
+    out["alpha_diff_A3"] = out["alpha_measured_A3"] - out["alpha_computed_A3"]
+    out["alpha_diff_err_A3"] = out["alpha_measured_err_A3"].astype(float)
+    order = list(COMPARISON_COLUMNS)
+    if has_dipole:
+        out["dipole_diff_D"] = out["dipole_measured_D"] - out["dipole_computed_D"]
+        order += ["dipole_measured_D", "dipole_measured_err_D", "dipole_diff_D"]
+    for t in temperatures:
+        t = float(t)
+        if not (math.isfinite(t) and t > 0):
+            raise InputError(f"compare temperatures: expected values > 0 K, found {t!r}")
+        name = f"alpha_eff_computed_A3_{t:g}K"
+        out[name] = out["alpha_computed_A3"] + orientational_a3(
+            out["dipole_computed_D"].to_numpy(float), t
+        )
+        order.append(name)
+    return out[order].reset_index(drop=True)
+
+
+def compare_series(series: pd.DataFrame, computed: pd.DataFrame) -> pd.DataFrame:
+    """Computed α + μ²/(3kT) against each measured effective polarizability of a series.
+
+    Parameters
+    ----------
+    series
+        One row per measured series: ``compound, temperature_K, alpha_eff_A3, alpha_eff_err_A3``
+        (1σ).
+    computed
+        As for :func:`compare`.
+
+    Returns
+    -------
+    pandas.DataFrame
+        :data:`SERIES_COMPARISON_COLUMNS`, one row per (series, method).
+        ``orientational_computed_A3`` = μ²/(3kT) from the computed dipole (Langevin–Debye, rigid
+        rotor, high-T limit); ``alpha_eff_diff_A3`` = measured − computed with the experimental
+        1σ as its error.  A row whose computed dipole is missing gets NaN there.
+    """
+    _need_columns(
+        series, ["compound", "temperature_K", "alpha_eff_A3", "alpha_eff_err_A3"], "series table"
+    )
+    temps = pd.to_numeric(series["temperature_K"], errors="coerce")
+    bad = ~(np.isfinite(temps) & (temps > 0))
+    if bad.any():
+        i = int(np.flatnonzero(bad.to_numpy())[0])
+        raise InputError(
+            f"series table row {i}: column temperature_K: expected a temperature > 0 K, "
+            f"found {series['temperature_K'].iloc[i]}"
+        )
+    comp = _computed_view(computed)
+    out = series[["compound", "temperature_K", "alpha_eff_A3", "alpha_eff_err_A3"]].merge(
+        comp, on="compound", how="inner", sort=False
+    )
+    out = out.rename(
+        columns={
+            "alpha_eff_A3": "alpha_eff_measured_A3",
+            "alpha_eff_err_A3": "alpha_eff_measured_err_A3",
+        }
+    )
+    out["orientational_computed_A3"] = orientational_a3(
+        out["dipole_computed_D"].to_numpy(float), out["temperature_K"].to_numpy(float)
+    )
+    out["alpha_eff_computed_A3"] = out["alpha_computed_A3"] + out["orientational_computed_A3"]
+    out["alpha_eff_diff_A3"] = out["alpha_eff_measured_A3"] - out["alpha_eff_computed_A3"]
+    out["alpha_eff_diff_err_A3"] = out["alpha_eff_measured_err_A3"].astype(float)
+    return out[SERIES_COMPARISON_COLUMNS].reset_index(drop=True)
+
+
+def parity_table(comparison: pd.DataFrame) -> pd.DataFrame:
+    """Per-method statistics of computed vs measured α over the compared set.
+
+    Deviations here are **computed − measured** (the benchmarking convention, so a negative
+    mean signed deviation means the method underestimates); note the opposite sign of
+    ``alpha_diff_A3`` in :func:`compare`.  Relative values are in per cent of the measured α.
+
+    Parameters
+    ----------
+    comparison
+        Output of :func:`compare` (needs ``method, alpha_computed_A3, alpha_measured_A3,
+        alpha_measured_err_A3``).
+
+    Returns
+    -------
+    pandas.DataFrame
+        :data:`PARITY_COLUMNS`, one row per method (rows with a missing value are left out of
+        that method's statistics).  ``n_within_2sigma`` counts compounds whose
+        |deviation| ≤ 2 × experimental σ; ``verdict`` is a sentence such as
+        ``"b3lyp/def2-svpd underestimates the set by 4.0 % on average (n=5)"``.
+    """
+    _need_columns(
+        comparison,
+        ["method", "alpha_computed_A3", "alpha_measured_A3", "alpha_measured_err_A3"],
+        "comparison table",
+    )
+    rows = []
+    for method, grp in comparison.groupby("method", sort=True):
+        c = grp["alpha_computed_A3"].to_numpy(float)
+        m = grp["alpha_measured_A3"].to_numpy(float)
+        s = grp["alpha_measured_err_A3"].to_numpy(float)
+        ok = np.isfinite(c) & np.isfinite(m) & (m != 0)
+        c, m, s = c[ok], m[ok], s[ok]
+        n = int(ok.sum())
+        if n == 0:
+            rows.append({"method": method, "n_compounds": 0, "verdict": "no usable compound"})
+            continue
+        dev = c - m
+        rel = 100.0 * dev / m
+        msd_pct = float(rel.mean())
+        if abs(msd_pct) < 0.05:
+            verdict = f"{method} matches the set within 0.05 % on average (n={n})"
+        else:
+            word = "underestimates" if msd_pct < 0 else "overestimates"
+            verdict = f"{method} {word} the set by {abs(msd_pct):.1f} % on average (n={n})"
+        rows.append(
+            {
+                "method": method,
+                "n_compounds": n,
+                "mean_signed_dev_A3": float(dev.mean()),
+                "mean_signed_dev_pct": msd_pct,
+                "mean_abs_dev_A3": float(np.abs(dev).mean()),
+                "mean_abs_dev_pct": float(np.abs(rel).mean()),
+                "rms_dev_A3": float(np.sqrt(np.mean(dev**2))),
+                "max_abs_dev_A3": float(np.abs(dev).max()),
+                "n_within_2sigma": int(np.sum(np.abs(dev) <= 2.0 * np.where(np.isfinite(s), s, 0))),
+                "verdict": verdict,
+            }
+        )
+    return pd.DataFrame(rows, columns=PARITY_COLUMNS)
