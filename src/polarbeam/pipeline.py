@@ -203,7 +203,7 @@ def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float
         method = "known alpha"
         messages.append("single temperature: μ from α_eff minus the stated alpha_known_A3")
     else:
-        messages.append(
+        warnings.append(
             "single source temperature: α and μ cannot be separated (α_eff is in series.csv); "
             "measure at more temperatures or give alpha_known_A3"
         )
