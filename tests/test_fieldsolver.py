@@ -30,6 +30,7 @@ from polarbeam.fieldsolver import (
     CrossSection,
     Polygon,
     beam_field,
+    effective_length,
     effective_length_from_map,
     field_at_beam,
     fringe_extension_numerical,
@@ -107,8 +108,13 @@ def test_two_wire_field_matches_numerical_differentiation_of_potential():
     for x, y in pts:
         r = two_wire_analytic(x, y, A, Y1, Y2, V)
         assert efield(x, y) == pytest.approx(float(r["E"]), rel=1e-6)
+        ex = -(phi(x + d, y) - phi(x - d, y)) / (2 * d)
+        ey = -(phi(x, y + d) - phi(x, y - d)) / (2 * d)
+        assert (ex, ey) == pytest.approx((float(r["Ex"]), float(r["Ey"])), rel=1e-6, abs=1e-3)
         dedy = (efield(x, y + d) - efield(x, y - d)) / (2 * d)
+        dedx = (efield(x + d, y) - efield(x - d, y)) / (2 * d)
         assert dedy == pytest.approx(float(r["dE_dy"]), rel=1e-4)
+        assert dedx == pytest.approx(float(r["dE_dx"]), rel=1e-4, abs=1e-6 * abs(dedy))
         g_num = efield(x, y) * dedy / V**2
         assert g_num == pytest.approx(float(r["field_factor"]), rel=1e-4)
 
@@ -282,8 +288,10 @@ def test_fringe_numerical_plates_shield_shortens():
         6e-3, 1e-3, h=0.1e-3, shield_distance=0.5e-3, shield_aperture=0.5e-3
     )
     assert shielded.extension_per_end < 0.5 * open_.extension_per_end
-    # open thin-ish plates: same order as Maxwell's gap/(2 pi) for ideal semi-infinite plates
+    # open plates of thickness gap/10 on this coarse grid: within 25 % of Maxwell's gap/(2 pi)
+    # for ideal thin semi-infinite plates (thickness and grid both lengthen the fringe)
     assert open_.extension_per_end == pytest.approx(maxwell_fringe_extension(1e-3), rel=0.25)
+    assert effective_length(6e-3, 1e-3).effective_length == pytest.approx(6e-3 + 1e-3 / math.pi)
 
 
 def test_effective_length_from_map_csv(tmp_path):

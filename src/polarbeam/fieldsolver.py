@@ -68,6 +68,7 @@ __all__ = [
     "Polygon",
     "ToleranceBudget",
     "beam_field",
+    "effective_length",
     "effective_length_from_map",
     "field_at_beam",
     "fringe_extension_numerical",
@@ -882,7 +883,11 @@ class FieldSolution:
         return out
 
     def field_at(self, px, py) -> dict:
-        """``E`` (V/m), ``dE_dx``, ``dE_dy`` (V/m²) and ``E_dE_dy`` (V²/m³) at points (signed)."""
+        """``E`` (V/m), ``dE_dx``, ``dE_dy`` (V/m²) and ``E_dE_dy`` (V²/m³) at points (signed).
+
+        Here ``x``, ``y`` are the cross-section axes (``y`` = deflection direction); the dict of
+        :func:`field_at_beam` names the deflection direction ``dx`` instead.
+        """
         d = self.derivatives_at(px, py)
         E = np.hypot(d["phi_x"], d["phi_y"])
         EdEy = d["phi_x"] * d["phi_xy"] + d["phi_y"] * d["phi_yy"]
@@ -1594,6 +1599,43 @@ def fringe_extension_numerical(
     return FringeResult(L, Leff, ext, 2 * ext / d, z, g_rel, method, abs(Leff - Lc))
 
 
+def effective_length(
+    length: float,
+    gap: float,
+    *,
+    method: Literal["maxwell", "numerical"] = "maxwell",
+    **numerical_options,
+) -> FringeResult:
+    """Effective deflector length ``L_eff = L + c * gap`` for an ``E**2``-weighted force.
+
+    ``method="maxwell"``: ``c = 1/pi`` (two open ends, thin plates, see
+    :func:`maxwell_fringe_extension`); ``method="numerical"``: ``c`` from
+    :func:`fringe_extension_numerical` (finite thickness, grounded box, optional shields; keyword
+    options are passed on).
+    """
+    L = _finite(length, "effective length: length")
+    d = _finite(gap, "effective length: gap")
+    if L <= 0 or d <= 0:
+        raise InputError(f"effective length: expected length > 0 and gap > 0, found {L!r}, {d!r}")
+    if method == "maxwell":
+        ext = maxwell_fringe_extension(d)
+        z = np.array([-0.5 * L - ext, -0.5 * L - ext, 0.5 * L + ext, 0.5 * L + ext])
+        return FringeResult(
+            L,
+            L + 2 * ext,
+            ext,
+            2 * ext / d,
+            z,
+            np.array([0.0, 1.0, 1.0, 0.0]),
+            "Maxwell thin-plate edge, E**2 weighted: L + gap/pi",
+        )
+    if method == "numerical":
+        return fringe_extension_numerical(L, d, **numerical_options)
+    raise InputError(
+        f"effective length method: expected 'maxwell' or 'numerical', found {method!r}"
+    )
+
+
 def effective_length_from_map(
     z, g_rel, *, reference: float | None = None, where: str = "fringe map"
 ) -> FringeResult:
@@ -1782,9 +1824,9 @@ def propagate_tolerances(
     C = _correlation_matrix(names, correlations)
     var = float(J @ C @ J)
     sigma = math.sqrt(max(var, 0.0))
-    contrib = {k: abs(J[i]) for i, k in enumerate(names)}
+    contrib = {k: float(abs(J[i])) for i, k in enumerate(names)}
     tot = float(np.sum(J**2))
-    budget = {k: (J[i] ** 2 / tot if tot > 0 else 0.0) for i, k in enumerate(names)}
+    budget = {k: (float(J[i] ** 2 / tot) if tot > 0 else 0.0) for i, k in enumerate(names)}
     return ToleranceBudget(f0, sigma, sens, contrib, budget, steps)
 
 
