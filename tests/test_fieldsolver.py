@@ -48,7 +48,7 @@ from polarbeam.fieldsolver import (
     two_wire_from_radii,
 )
 
-# The worked two-wire case of the brief: a = 2.0 mm, y1 = 1.6 mm, y2 = 3.4 mm, 10 kV.
+# Worked two-wire case (line-charge model): a = 2.0 mm, y1 = 1.6 mm, y2 = 3.4 mm, 10 kV.
 A, Y1, Y2, V = 2.0e-3, 1.6e-3, 3.4e-3, 1.0e4
 
 
