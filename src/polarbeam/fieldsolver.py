@@ -49,6 +49,7 @@ from typing import Literal, Union
 import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
+from scipy.integrate import trapezoid as _trapezoid  # np.trapezoid needs numpy >= 2
 from scipy.interpolate import RectBivariateSpline
 
 from .errors import InputError
@@ -1519,7 +1520,7 @@ def _midplane_profile(cs: CrossSection, cells: tuple[int, int], solver: str):
     E = np.abs((sol.phi[j0 + 1] - sol.phi[j0 - 1]) / (2 * sol.hy))
     Ec = float(np.interp(0.0, sol.x, E))
     g_rel = (E / Ec) ** 2
-    return sol.x, g_rel, float(np.trapezoid(g_rel, sol.x))
+    return sol.x, g_rel, float(_trapezoid(g_rel, sol.x))
 
 
 def fringe_extension_numerical(
@@ -1667,7 +1668,7 @@ def effective_length_from_map(
     ref = float(g.max()) if reference is None else _finite(reference, f"{where} reference")
     if ref <= 0:
         raise InputError(f"{where}: expected a positive reference field factor, found {ref!r}")
-    Leff = float(np.trapezoid(g, z)) / ref
+    Leff = float(_trapezoid(g, z)) / ref
     return FringeResult(math.nan, Leff, math.nan, math.nan, z, g / ref, f"map integral ({where})")
 
 
