@@ -81,7 +81,13 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "field_duration": "s",
         "waveform": None,
     },
-    "data": {"shifts": None, "compounds": None},
+    "data": {
+        "shifts": None,
+        "compounds": None,
+        "structures": None,
+        "computed": None,
+        "computed_outputs": None,
+    },
     "analysis": {
         "velocity_nodes": None,
         "fit_offset": None,
@@ -89,6 +95,9 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "upper_limit_cl": None,
         "dipole_significance": None,
         "orientation_warning": None,
+        "structure_check": None,
+        "conformers": None,
+        "conformer_seed": None,
     },
 }
 
@@ -131,6 +140,9 @@ class AnalysisSettings:
     upper_limit_cl: float = 0.95
     dipole_significance: float = 3.0
     orientation_warning: float = 0.2  # warn when μE/kT exceeds this at the largest field
+    structure_check: bool = True  # compare with structure-based predictions when possible
+    conformers: int = 10  # conformers for the predicted dipole (0: no dipole prediction)
+    conformer_seed: int = 61453
 
     def __post_init__(self):
         if self.scale_errors not in ("never", "birge"):
@@ -146,6 +158,10 @@ class AnalysisSettings:
         if not 0.5 < self.upper_limit_cl < 1:
             raise InputError(
                 f"[analysis] upper_limit_cl: expected 0.5 < cl < 1, found {self.upper_limit_cl!r}"
+            )
+        if not (isinstance(self.conformers, int) and 0 <= self.conformers <= 1000):
+            raise InputError(
+                f"[analysis] conformers: expected an integer 0..1000, found {self.conformers!r}"
             )
         if not self.dipole_significance > 0:
             raise InputError(
@@ -207,6 +223,9 @@ class Campaign:
     field_map: tuple[tuple[float, ...], tuple[float, ...]] | None = None
     waveform: tuple[tuple[float, ...], tuple[float, ...]] | None = None
     raw: dict[str, Any] = field(default_factory=dict)
+    structures: dict[str, Any] = field(default_factory=dict)  # name → RDKit Mol or error text
+    computed_paths: tuple[Path, ...] = ()
+    computed_patterns: tuple[str, ...] = ()
 
     @property
     def observable(self) -> str:
@@ -385,6 +404,9 @@ def _settings(doc: dict, fname: str) -> AnalysisSettings:
         "upper_limit_cl": float,
         "dipole_significance": float,
         "orientation_warning": float,
+        "structure_check": bool,
+        "conformers": int,
+        "conformer_seed": int,
     }
     kw = {}
     for k, v in a.items():
@@ -617,6 +639,17 @@ def load_campaign(path: str | Path) -> Campaign:
             )
         )
     unmeasured = tuple(n for n in info if n not in series and n not in problems)
+    structures = _load_structures(base, doc, fname)
+    computed = _data_path(base, doc, "computed", fname, required=False)
+    if computed is not None and not computed.is_file():
+        raise InputError(f"{computed}: computed-values file not found ([data] computed)")
+    patterns = doc.get("data", {}).get("computed_outputs", [])
+    if isinstance(patterns, str):
+        patterns = [patterns]
+    if not (isinstance(patterns, list) and all(isinstance(p, str) for p in patterns)):
+        raise InputError(
+            f"{fname} [data] computed_outputs: expected a list of glob patterns, found {patterns!r}"
+        )
     return Campaign(
         path=path,
         title=title,
@@ -629,7 +662,27 @@ def load_campaign(path: str | Path) -> Campaign:
         field_map=field_map,
         waveform=waveform,
         raw=doc,
+        structures=structures,
+        computed_paths=(computed,) if computed is not None else (),
+        computed_patterns=tuple(str(base / p) for p in patterns),
     )
+
+
+def _load_structures(base: Path, doc: dict, fname: str) -> dict[str, Any]:
+    """Records of the ``[data] structures`` SDF file by name (Mol, or the error text)."""
+    path = _data_path(base, doc, "structures", fname, required=False)
+    if path is None:
+        return {}
+    if not path.is_file():
+        raise InputError(f"{path}: structures file not found ([data] structures)")
+    from .structure import read_sdf
+
+    out: dict[str, Any] = {}
+    for rec in read_sdf(path):
+        out.setdefault(
+            rec.compound, rec.mol if rec.mol is not None else (rec.error or "unreadable")
+        )
+    return out
 
 
 def finite(x) -> bool:

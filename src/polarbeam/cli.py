@@ -53,6 +53,129 @@ def analyze(
 
 
 @app.command()
+def estimate(
+    input: Path = typer.Argument(..., help="CSV with compound, smiles (+ any columns) or an SDF"),
+    out: Path = typer.Option(..., "--out", "-o", help="output CSV"),
+    dipoles: bool = typer.Option(False, "--dipoles", help="conformer dipoles (slower)"),
+    conformers: int = typer.Option(10, help="conformers per molecule for --dipoles"),
+    seed: int = typer.Option(61453, help="random seed of the conformer embedding"),
+    temperature: float = typer.Option(300.0, help="temperature (K) of the Boltzmann average"),
+):
+    """Structure-based estimates (additive α, mass, dipoles) for a library without measurements."""
+    from .structure import estimate_table
+
+    try:
+        counts = estimate_table(
+            input,
+            out,
+            dipoles=dipoles,
+            conformers=conformers,
+            seed=seed,
+            temperature_K=temperature,
+        )
+    except PolarbeamError as exc:
+        _fail(exc)
+    typer.echo(
+        f"{counts['ok']} of {counts['rows']} rows estimated, {counts['failed']} failed; "
+        f"written to {out}"
+    )
+    raise typer.Exit(0 if counts["failed"] == 0 else (2 if counts["ok"] == 0 else 1))
+
+
+@app.command()
+def compute(
+    input: str = typer.Argument(
+        ..., help="SMILES, a .xyz/.sdf/.mol file, or a CSV compound,smiles"
+    ),
+    method: str = typer.Option("b3lyp", help="hf or a DFT functional known to PySCF"),
+    basis: str = typer.Option("def2-svpd", help="basis set"),
+    out: Path = typer.Option(Path("computed.csv"), "--out", "-o", help="computed.csv to write"),
+    polarizability: str = typer.Option("analytic", help="analytic (CPHF/CPKS) or finite-field"),
+    max_seconds: float = typer.Option(1800.0, help="refuse calculations estimated to take longer"),
+    d4: bool = typer.Option(False, "--d4", help="fast D4-model polarizability instead of SCF"),
+):
+    """Compute static polarizabilities and dipoles with PySCF (extra polarbeam[qc]); cached."""
+    from .atomic import write_text_atomic
+
+    try:
+        from . import qchem
+    except ImportError as exc:  # pragma: no cover - depends on the installed extras
+        _fail(PolarbeamError(f"compute needs the optional extra polarbeam[qc] ({exc})"))
+    if polarizability not in ("analytic", "finite-field"):
+        _fail(
+            PolarbeamError(
+                f"--polarizability: expected one of analytic, finite-field, found {polarizability!r}"
+            )
+        )
+    jobs: list[tuple[str, str]] = []
+    path = Path(input)
+    try:
+        if path.suffix.lower() == ".csv":
+            from .tables import read_table
+
+            t = read_table(path, ("compound", "smiles"), "structures")
+            jobs = [(r["compound"], r["smiles"]) for r in t.rows]
+        else:
+            jobs = [(path.stem if path.is_file() else input, input)]
+    except PolarbeamError as exc:
+        _fail(exc)
+    results, failed = [], 0
+
+    def progress(step, total, message):
+        typer.echo(f"  [{step}/{total}] {message}", err=True)
+
+    for name, structure in jobs:
+        typer.echo(f"{name}: {method}/{basis}", err=True)
+        try:
+            if d4:
+                r = qchem.d4_polarizability(structure, name=name)
+            else:
+                r = qchem.compute_properties(
+                    structure,
+                    method,
+                    basis,
+                    name=name,
+                    polarizability=polarizability,
+                    max_seconds=max_seconds,
+                    progress=progress,
+                )
+            results.append(r)
+        except PolarbeamError as exc:
+            failed += 1
+            typer.echo(f"failed: {name}: {exc}", err=True)
+    if results:
+        import io
+
+        buf = io.StringIO()
+        table = qchem.results_table(results)
+        table = table.rename(
+            columns={
+                "alpha_computed_A3": "alpha",
+                "dipole_computed_D": "dipole_D",
+                "alpha_xx_A3": "alpha_xx",
+                "alpha_yy_A3": "alpha_yy",
+                "alpha_zz_A3": "alpha_zz",
+            }
+        )
+        table.insert(3, "alpha_unit", "A3")  # the [data] computed input contract
+        keep = [
+            "compound",
+            "method",
+            "alpha",
+            "alpha_unit",
+            "dipole_D",
+            "alpha_xx",
+            "alpha_yy",
+            "alpha_zz",
+            "source",
+        ]
+        table[[c for c in keep if c in table]].to_csv(buf, index=False, lineterminator="\n")
+        write_text_atomic(out, buf.getvalue())
+        typer.echo(f"{len(results)} result(s) written to {out}")
+    raise typer.Exit(0 if failed == 0 else (2 if not results else 1))
+
+
+@app.command()
 def simulate(
     out: Path = typer.Option(..., "--out", "-o", help="folder to write the campaign into"),
     seed: int = typer.Option(0, help="random seed"),

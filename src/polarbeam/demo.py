@@ -10,9 +10,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from .atomic import write_text_atomic
 from .simulate import CompoundTruth, InstrumentSpec, simulate_campaign
 
-__all__ = ["DEMO_COMPOUNDS", "write_demo"]
+__all__ = ["DEMO_COMPOUNDS", "DEMO_COMPUTED", "write_demo"]
 
 TEMPS = (340.0, 420.0, 510.0, 620.0)
 
@@ -27,7 +28,20 @@ DEMO_COMPOUNDS = (
 )
 
 
-def write_demo(out_dir: str | Path = "examples/demo", seed: int = 2026) -> Path:
+#: Invented "computed chemistry" values for the demo (not the output of any real calculation).
+DEMO_COMPUTED = """\
+# invented values for the demo scenario; not results of real calculations
+compound,method,alpha,alpha_unit,dipole_D
+DM-101,b3lyp/def2-svpd,98.0,bohr3,2.71
+DM-102,b3lyp/def2-svpd,20.1,A3,0.0
+DM-103,b3lyp/def2-svpd,16.8,A3,0.0
+DM-104,b3lyp/def2-svpd,23.0,A3,4.2
+DM-105,b3lyp/def2-svpd,21.5,A3,3.3
+DM-101,hf/def2-svpd,12.6,A3,2.9
+"""
+
+
+def write_demo(out_dir: str | Path = "examples/demo", seed: int = 2027) -> Path:
     """Write ``campaign.toml``, ``shifts.csv``, ``compounds.csv`` of the demo into ``out_dir``."""
     spec = InstrumentSpec.talbot_lau("two-wire", rel=0.004)
     truth = simulate_campaign(
@@ -44,4 +58,11 @@ def write_demo(out_dir: str | Path = "examples/demo", seed: int = 2026) -> Path:
         temperature_err_K=2.0,
         title="Demo campaign: invented screening library on a bench-top Talbot-Lau interferometer",
     )
-    return truth.path
+    out = truth.path
+    toml = (out / "campaign.toml").read_text()
+    toml = toml.replace(
+        'compounds = "compounds.csv"\n', 'compounds = "compounds.csv"\ncomputed = "computed.csv"\n'
+    )
+    write_text_atomic(out / "campaign.toml", toml)
+    write_text_atomic(out / "computed.csv", DEMO_COMPUTED)
+    return out

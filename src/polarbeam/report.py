@@ -71,6 +71,10 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
         out / "results.json",
         json.dumps(_clean(result.summary()), indent=1, ensure_ascii=False, allow_nan=False) + "\n",
     )
+    if result.comparison is not None and len(result.comparison):
+        write_text_atomic(out / "comparison.csv", _csv(result.comparison.copy(), ()))
+    if result.series_comparison is not None and len(result.series_comparison):
+        write_text_atomic(out / "comparison_series.csv", _csv(result.series_comparison.copy(), ()))
     write_text_atomic(out / "report.md", render_markdown(result))
 
 
@@ -153,8 +157,10 @@ def render_markdown(result: CampaignResult) -> str:
             lines += ["", f"Uncertainty budget of {what} (share of variance):", ""]
             lines += ["| input | share |", "|---|---|"]
             lines += [f"| {_md(k)} | {v:.1%} |" for k, v in budget.items()]
+        lines += _crosscheck_lines(c)
         if c.warnings:
             lines += ["", "Warnings:", ""] + [f"- {_md(w)}" for w in c.warnings]
+    lines += _parity_lines(result)
     lines += [
         "",
         "## Notes on the method",
@@ -169,6 +175,84 @@ def render_markdown(result: CampaignResult) -> str:
     ]
     lines += [f"- {c}" for c in CAUTIONS]
     return "\n".join(lines) + "\n"
+
+
+def _parity_lines(result: CampaignResult) -> list[str]:
+    par, cmp_ = result.parity, result.comparison
+    if par is None or len(par) == 0:
+        return []
+    from .computed import ELECTRONIC_VS_VIBRATIONAL_NOTE
+
+    out = [
+        "",
+        "## Measured versus computed chemistry",
+        "",
+        "| method | n | mean signed dev. (Å³) | (%) | mean abs. dev. (Å³) | (%) | verdict |",
+        "|---|---|---|---|---|---|---|",
+    ]
+    for r in par.to_dict(orient="records"):
+        out.append(
+            f"| {_md(r['method'])} | {r['n_compounds']} | {r['mean_signed_dev_A3']:+.2f} | "
+            f"{r['mean_signed_dev_pct']:+.1f} | {r['mean_abs_dev_A3']:.2f} | "
+            f"{r['mean_abs_dev_pct']:.1f} | {_md(r['verdict'])} |"
+        )
+    out += [
+        "",
+        "Deviations in this table are computed − measured. In comparison.csv, alpha_diff_A3 is "
+        "measured − computed and its error is the experimental one only.",
+        "",
+        f"> {_md(ELECTRONIC_VS_VIBRATIONAL_NOTE)}",
+    ]
+    if cmp_ is not None and len(cmp_):
+        out += [
+            "",
+            "| compound | method | α computed (Å³) | α measured (Å³) | diff (Å³) |",
+            "|---|---|---|---|---|",
+        ]
+        for r in cmp_.to_dict(orient="records"):
+            out.append(
+                f"| {_md(r['compound'])} | {_md(r['method'])} | {r['alpha_computed_A3']:.2f} | "
+                f"{_fmt(r['alpha_measured_A3'], r['alpha_measured_err_A3'])} | "
+                f"{r['alpha_diff_A3']:+.2f} |"
+            )
+    return out
+
+
+def _crosscheck_lines(c) -> list[str]:
+    x = c.extra
+    if "verdict" not in x:
+        note = x.get("crosscheck")
+        return ["", f"Structure cross-check: {_md(note)}"] if note else []
+    out = [
+        "",
+        f"Structure cross-check: **{_md(x['verdict'])}**",
+        "",
+        "| additive scheme | α (Å³) |",
+        "|---|---|",
+    ]
+    for k in ("ahp", "ahc", "bs", "llmr", "d4"):
+        if x.get(f"alpha_{k}_A3") is not None:
+            out.append(f"| {k} | {x[f'alpha_{k}_A3']:.2f} |")
+    out.append(f"| default | {_fmt(x['alpha_additive_A3'], x['alpha_additive_err_A3'])} |")
+    if x.get("alpha_z") is not None and math.isfinite(x["alpha_z"]):
+        out += ["", f"measured α − additive: z = {x['alpha_z']:+.1f}"]
+    if x.get("dipole_predicted_D") is not None:
+        out += [
+            "",
+            f"force-field conformer dipole √⟨μ²⟩ ≈ {x['dipole_predicted_D']:.2f} D "
+            "(force-field charges give rough dipoles: expect tens of percent)",
+        ]
+    rows = [s for s in c.series if "alpha_eff_pred_A3" in s.extra]
+    if rows:
+        out += ["", "| T (K) | α_eff measured (Å³) | predicted (Å³) | z |", "|---|---|---|---|"]
+        for s in rows:
+            e = s.extra
+            out.append(
+                f"| {s.temperature_K:g} | {_fmt(s.alpha_eff_A3, s.alpha_eff_err_A3)} | "
+                f"{_fmt(e['alpha_eff_pred_A3'], e['alpha_eff_pred_err_A3'])} | "
+                f"{e['alpha_eff_z']:+.1f} |"
+            )
+    return out
 
 
 def render_terminal(result: CampaignResult) -> str:

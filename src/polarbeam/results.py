@@ -251,6 +251,15 @@ class CompoundResult:
         }
 
 
+def _records(df) -> list[dict[str, Any]] | None:
+    if df is None or len(df) == 0:
+        return None
+    return [
+        {k: _num(v) if isinstance(v, float) else v for k, v in r.items()}
+        for r in df.to_dict(orient="records")
+    ]
+
+
 def _correlation(series) -> list[list[float]] | None:
     if len(series) < 2:
         return None
@@ -287,6 +296,9 @@ class CampaignResult:
     unmeasured: tuple[str, ...] = ()
     notes: tuple[str, ...] = ()
     version: str = __version__
+    comparison: pd.DataFrame | None = None  # measured versus computed α, per compound & method
+    series_comparison: pd.DataFrame | None = None  # computed α + μ²/3kT versus each α_eff
+    parity: pd.DataFrame | None = None  # per-method deviation statistics
 
     @property
     def series(self) -> pd.DataFrame:
@@ -330,6 +342,9 @@ class CampaignResult:
                 "settings": self.settings,
             },
             "compounds": [c.summary() for c in self.compounds],
+            "computed_comparison": _records(self.comparison),
+            "computed_series_comparison": _records(self.series_comparison),
+            "computed_parity": _records(self.parity),
             "unmeasured_compounds": list(self.unmeasured),
             "notes": list(self.notes),
             "cautions": list(CAUTIONS),
