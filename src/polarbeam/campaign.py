@@ -400,9 +400,7 @@ def _read_waveform(path: Path):
     try:
         for i in range(len(table.rows)):
             if "__bad__" in table.rows[i]:
-                raise InputError(
-                    f"{table.name} line {table.lines[i]}: {table.rows[i]['__bad__']}"
-                )
+                raise InputError(f"{table.name} line {table.lines[i]}: {table.rows[i]['__bad__']}")
             ts.append(table.number(i, "t_s"))
             a = table.number(i, "amplitude")
             if not 0.0 <= a <= 1.0:

@@ -259,9 +259,7 @@ def simulate_campaign(
     ]
     write_text_atomic(out / "shifts.csv", "\n".join(lines) + "\n")
     if spec.waveform is not None:
-        wl = ["t_s,amplitude"] + [
-            f"{t:.10g},{a:.10g}" for t, a in zip(*spec.waveform, strict=True)
-        ]
+        wl = ["t_s,amplitude"] + [f"{t:.10g},{a:.10g}" for t, a in zip(*spec.waveform, strict=True)]
         write_text_atomic(out / "waveform.csv", "\n".join(wl) + "\n")
     chead = "compound,mass_u,mass_err_u,smiles"
     clines = [chead] + [f"{c.name},{c.mass_u:.6g},{c.mass_err_u:g},{c.smiles}" for c in compounds]
