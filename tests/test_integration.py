@@ -73,7 +73,7 @@ def test_demo_outputs_and_columns(demo_out):
 
 
 def test_results_json_matches_csv_and_has_budgets(demo_out):
-    res, out = demo_out
+    _, out = demo_out
     doc = json.loads((out / "results.json").read_text())
     assert doc["software"]["name"] == "polarbeam" and doc["software"]["version"]
     props = pd.read_csv(out / "properties.csv").set_index("compound")
@@ -100,7 +100,7 @@ def test_alpha_eff_correlations_are_positive(demo_out):
 
 
 def test_computed_comparison(demo_out):
-    res, out = demo_out
+    _, out = demo_out
     cmp_ = pd.read_csv(out / "comparison.csv")
     assert list(cmp_.columns[:7]) == [
         "compound",

@@ -226,6 +226,7 @@ class Campaign:
     structures: dict[str, Any] = field(default_factory=dict)  # name → RDKit Mol or error text
     computed_paths: tuple[Path, ...] = ()
     computed_patterns: tuple[str, ...] = ()
+    ignored_columns: tuple[str, ...] = ()  # shifts.csv columns the layout does not use
 
     @property
     def observable(self) -> str:
@@ -272,6 +273,8 @@ def build_deflector(c: Campaign, v: dict[str, float]):
             g("deflector.field_duration"),
             c.waveform,
             g("deflector.field_per_volt"),
+            origin=v["instrument.pulse_times[0]"],  # field_on is measured from the first pulse
+            source=str(c.raw.get("deflector", {}).get("waveform", "waveform")),
         )
     if c.model == "uniform":
         return UniformDeflector(
@@ -361,20 +364,34 @@ def _stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, 
     req_m, opt_m = _MODEL_KEYS[model]
     req_s, opt_s = _TIME_KEYS if timing else _SPATIAL_KEYS
     allowed = {"model"} | req_m | opt_m | req_s | opt_s
-    for k in sorted(set(defl) - allowed):
-        why = (
-            f"layout {layout!r}"
-            if k in (_SPATIAL_KEYS[0] | _SPATIAL_KEYS[1] | _TIME_KEYS[0] | _TIME_KEYS[1])
-            else f"model {model!r}"
+    by_layout = _SPATIAL_KEYS[0] | _SPATIAL_KEYS[1] | _TIME_KEYS[0] | _TIME_KEYS[1]
+    wrong = sorted((set(defl) - allowed) & by_layout)
+    if wrong:  # name every key of the other layout family at once
+        hint = (
+            "; the time-domain layout switches the field in time: give field_on and "
+            "field_duration (or a waveform)"
+            if timing
+            else ""
         )
-        raise InputError(f"{fname} [deflector] {k}: not used by {why}; remove it")
+        raise InputError(
+            f"{fname} [deflector] {', '.join(wrong)}: not used by layout {layout!r}; "
+            f"remove {'it' if len(wrong) == 1 else 'them'}{hint}"
+        )
+    for k in sorted(set(defl) - allowed):
+        raise InputError(f"{fname} [deflector] {k}: not used by model {model!r}; remove it")
     for k in sorted(req_m | req_s):
         if k not in defl:
-            raise InputError(f"{fname} [deflector] {k}: required for model {model!r}")
+            why = f"layout {layout!r}" if k in req_s else f"model {model!r}"
+            raise InputError(f"{fname} [deflector] {k}: required for {why}")
     if model == "field-map" and timing:
         raise InputError(f"{fname} [deflector] model: 'field-map' is not used by layout {layout!r}")
     if timing and "field_duration" not in defl and "waveform" not in defl:
         raise InputError(f"{fname} [deflector] field_duration: required (or a waveform)")
+    if timing and "field_duration" in defl and "waveform" in defl:
+        raise InputError(
+            f"{fname} [deflector] field_duration, waveform: expected one of them (the waveform "
+            "fixes the switching), found both"
+        )
     for k, raw in defl.items():
         if k in ("model", "field_map", "waveform"):
             continue
@@ -393,6 +410,38 @@ def _read_profile(path: Path, cols: tuple[str, str], what: str):
             raise InputError(str(exc)) from exc
     order = np.argsort(xs)
     return tuple(np.asarray(xs)[order]), tuple(np.asarray(ys)[order])
+
+
+def _read_waveform(path: Path):
+    """Waveform CSV ``t_s, amplitude``: t relative to the switch-on, amplitude in 0..1."""
+    table = read_table(path, ("t_s", "amplitude"), "waveform")
+    ts, amps = [], []
+    try:
+        for i in range(len(table.rows)):
+            if "__bad__" in table.rows[i]:
+                raise InputError(f"{table.name} line {table.lines[i]}: {table.rows[i]['__bad__']}")
+            ts.append(table.number(i, "t_s"))
+            a = table.number(i, "amplitude")
+            if not 0.0 <= a <= 1.0:
+                raise InputError(
+                    f"{table.name} line {table.lines[i]}: column 'amplitude' expected a relative "
+                    f"amplitude in 0..1, found {table.rows[i]['amplitude']!r}"
+                )
+            amps.append(a)
+            if i and ts[-1] <= ts[-2]:
+                raise InputError(
+                    f"{table.name} line {table.lines[i]}: column 't_s' expected increasing times, "
+                    f"found {table.rows[i]['t_s']!r} after {table.rows[i - 1]['t_s']!r}"
+                )
+    except CompoundError as exc:  # a bad waveform is structural: it concerns every compound
+        raise InputError(str(exc)) from None
+    if len(ts) < 2:
+        raise InputError(
+            f"{table.name}: expected at least two rows (t_s, amplitude), found {len(ts)}"
+        )
+    if max(amps) <= 0:
+        raise InputError(f"{table.name}: column 'amplitude' is zero everywhere; the field is off")
+    return tuple(ts), tuple(amps)
 
 
 def _settings(doc: dict, fname: str) -> AnalysisSettings:
@@ -483,6 +532,12 @@ def _load_shifts(path: Path, layout: str):
     if layout == "time-domain":
         required = tuple(c for c in required if not c.startswith("velocity"))
     table = read_table(path, required, "shifts")
+    # the time-domain shift does not depend on velocity: its columns are not read at all
+    ignored = (
+        tuple(c for c in table.columns if c.startswith("velocity"))
+        if layout == "time-domain"
+        else ()
+    )
     groups: dict[str, dict[float, list]] = {}
     problems: dict[str, str] = {}
     for i, row in enumerate(table.rows):
@@ -496,9 +551,7 @@ def _load_shifts(path: Path, layout: str):
                 raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
             num = table.number
             if layout == "time-domain":
-                v = num(i, "velocity_m_s", positive=True, default=1.0)
-                dv = num(i, "velocity_err_m_s", nonnegative=True, default=0.0)
-                sv = num(i, "velocity_spread_m_s", nonnegative=True, default=0.0)
+                v = dv = sv = 0.0  # placeholders, never used
             else:
                 v = num(i, "velocity_m_s", positive=True)
                 dv = num(i, "velocity_err_m_s", nonnegative=True)
@@ -546,7 +599,7 @@ def _load_shifts(path: Path, layout: str):
             )
         else:
             series[name] = out
-    return series, problems
+    return series, problems, ignored
 
 
 def load_campaign(path: str | Path) -> Campaign:
@@ -588,11 +641,11 @@ def load_campaign(path: str | Path) -> Campaign:
         wf = defl["waveform"]
         if not isinstance(wf, str):
             raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
-        waveform = _read_profile((base / wf).resolve(), ("t_s", "amplitude"), "waveform")
+        waveform = _read_waveform((base / wf).resolve())
     shifts_path = _data_path(base, doc, "shifts", fname)
     compounds_path = _data_path(base, doc, "compounds", fname)
     info = _load_compounds(compounds_path)
-    series, problems = _load_shifts(shifts_path, layout)
+    series, problems, ignored = _load_shifts(shifts_path, layout)
 
     camp = Campaign(
         path=path,
@@ -665,6 +718,7 @@ def load_campaign(path: str | Path) -> Campaign:
         structures=structures,
         computed_paths=(computed,) if computed is not None else (),
         computed_patterns=tuple(str(base / p) for p in patterns),
+        ignored_columns=ignored,
     )
 
 

@@ -15,8 +15,9 @@ Models
 ``field-map``  a measured or computed profile g(z) along the beam (CSV ``z_m, field_factor_m3``,
                z measured from ``entrance``), optionally scaled by a stated ``field_scale``.
 
-For the ``time-domain`` layout the same field factor acts between ``field_on`` and
-``field_on + field_duration`` (or with a waveform of relative amplitude a(t), F ∝ a(t)²).
+For the ``time-domain`` layout the same field factor acts between ``t1 + field_on`` and
+``t1 + field_on + field_duration``, times measured from the first pulse t1 (or with a waveform of
+relative amplitude a(t), linear between its knots, F ∝ a(t)²).
 
 :func:`overlap` returns ∫ w(s) g(s) ds for a layout's weight w: the single number that turns
 α_eff·V² into a shift (divided by m v² for spatial layouts, by m for the time domain).
@@ -196,8 +197,10 @@ class FieldMapDeflector:
 class SwitchedField:
     """A field factor switched on in time (time-domain layout): F = α g V² a(t)².
 
-    ``waveform`` holds knots (t relative to ``field_on``, relative amplitude a); without it the
-    switching is rectangular over [field_on, field_on + field_duration].
+    Times are measured from the first grating pulse ``origin`` (t1): the field is on over
+    [origin + field_on, origin + field_on + field_duration] for rectangular switching.  With a
+    ``waveform`` (knots of t relative to ``origin + field_on`` and relative amplitude a, linear
+    between knots, 0 outside) the force follows a(t)² and ``field_duration`` is not used.
     """
 
     field_factor: float
@@ -205,6 +208,8 @@ class SwitchedField:
     field_duration: float | None
     waveform: tuple[tuple[float, ...], tuple[float, ...]] | None = None
     field_per_volt: float | None = None
+    origin: float = 0.0
+    source: str = "waveform"
     model = "uniform"
 
     def __post_init__(self):
@@ -212,22 +217,52 @@ class SwitchedField:
             raise InputError(
                 f"[deflector] field_factor: expected > 0 (a magnitude), found {self.field_factor!r}"
             )
-        if self.waveform is None and not (self.field_duration and self.field_duration > 0):
+        if self.waveform is None:
+            if not (self.field_duration and self.field_duration > 0):
+                raise InputError(
+                    "[deflector] field_duration: expected > 0 for rectangular switching, "
+                    f"found {self.field_duration!r}"
+                )
+            return
+        t, amp = (np.asarray(v, dtype=float) for v in self.waveform)
+        if t.size < 2 or t.size != amp.size or np.any(np.diff(t) <= 0):
             raise InputError(
-                "[deflector] field_duration: expected > 0 for rectangular switching, "
-                f"found {self.field_duration!r}"
+                f"{self.source}: expected at least two rows with strictly increasing t_s, "
+                f"found {t.size} row(s)"
+                + (" with repeated or decreasing t_s" if t.size >= 2 else "")
+            )
+        if not (np.all(np.isfinite(amp)) and np.all(amp >= 0) and np.all(amp <= 1)):
+            raise InputError(
+                f"{self.source}: column 'amplitude' expected values in 0..1, found "
+                f"{float(amp[~((amp >= 0) & (amp <= 1))][0])!r}"
             )
 
+    @property
+    def start(self) -> float:
+        """Absolute time at which the switching (or the waveform's t = 0) begins (s)."""
+        return self.origin + self.field_on
+
     def profile(self):
+        """Knots (t, g·a²) of the switched field factor, or None for rectangular switching."""
         if self.waveform is None:
             return None
         t, amp = (np.asarray(v, dtype=float) for v in self.waveform)
-        return self.field_on + t, self.field_factor * amp**2
+        return self.start + t, self.field_factor * amp**2
+
+    def field_factor_at(self, t):
+        """g·a(t)² at absolute times ``t`` (a linear between the waveform knots, 0 outside)."""
+        t = np.asarray(t, dtype=float)
+        if self.waveform is None:
+            a, b = self.span
+            return np.where((t >= a) & (t <= b), self.field_factor, 0.0)
+        tw, amp = (np.asarray(v, dtype=float) for v in self.waveform)
+        a_t = np.interp(t, self.start + tw, amp, left=0.0, right=0.0)
+        return self.field_factor * a_t * a_t
 
     @property
     def span(self) -> tuple[float, float]:
         if self.waveform is None:
-            return self.field_on, self.field_on + float(self.field_duration)
+            return self.start, self.start + float(self.field_duration)
         s, _ = self.profile()
         return float(s[0]), float(s[-1])
 
@@ -245,12 +280,19 @@ def overlap(layout, deflector) -> float:
         a, b = deflector.span
         return deflector.field_factor * layout.weight_integral(a, b)
     s, g = prof
-    # Product of a piecewise-linear weight and a piecewise-linear profile is piecewise quadratic:
-    # Simpson's rule on a grid holding every knot of both (plus midpoints) is exact.
+    # A piecewise-linear weight times a piecewise-linear profile is piecewise quadratic, and times
+    # the square of a piecewise-linear waveform amplitude piecewise cubic: Simpson's rule on a grid
+    # holding every knot of both (plus midpoints) is exact in either case.
+    value_at = getattr(deflector, "field_factor_at", None)
+    if value_at is None:
+
+        def value_at(x):
+            return np.interp(x, s, g)
+
     knots = np.unique(np.concatenate([s, np.asarray(layout._knots()[0], dtype=float)]))
     knots = knots[(knots >= s[0]) & (knots <= s[-1])]
     mids = 0.5 * (knots[1:] + knots[:-1])
-    gk, gm = np.interp(knots, s, g), np.interp(mids, s, g)
+    gk, gm = value_at(knots), value_at(mids)
     fk, fm = layout.weight(knots) * gk, layout.weight(mids) * gm
     h = np.diff(knots)
     return float(np.sum(h / 6.0 * (fk[:-1] + 4.0 * fm + fk[1:])))

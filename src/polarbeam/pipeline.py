@@ -53,6 +53,14 @@ def build_context(c: Campaign) -> Context:
     """Nominal layout and deflector, and C with every stated input attached (tagged)."""
     layout, deflector = c.build()
     c0 = coupling(layout, deflector)
+    if not (math.isfinite(c0) and c0 > 0) and c.layout == "time-domain":
+        a, b = (t - layout.t1 for t in deflector.span)
+        raise InputError(
+            f"{c.path.name} [deflector] field_on/field_duration: the switched field "
+            f"[{a * 1e6:.6g}, {b * 1e6:.6g}] us (from the first pulse) does not overlap the pulse "
+            f"sequence [0, {(layout.t3 - layout.t1) * 1e6:.6g}] us; expected a field window inside "
+            "it, so no phase can be produced"
+        )
     if not (math.isfinite(c0) and c0 > 0):
         raise InputError(
             f"{c.path.name}: the deflector does not overlap the flight layout (coupling {c0!r}); "
@@ -262,9 +270,12 @@ def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float
                 chi2=fit.chi2,
                 ndof=fit.ndof,
                 p_value=fit.p_value,
-                velocity_m_s=s.velocity.value,
-                velocity_err_m_s=s.velocity.error,
-                velocity_spread_m_s=float(np.mean(s.spreads)),
+                # the time-domain layout reads no velocities: NaN (null in JSON, blank in CSV)
+                velocity_m_s=math.nan if c.layout == "time-domain" else s.velocity.value,
+                velocity_err_m_s=math.nan if c.layout == "time-domain" else s.velocity.error,
+                velocity_spread_m_s=(
+                    math.nan if c.layout == "time-domain" else float(np.mean(s.spreads))
+                ),
                 error_scale=fit.error_scale,
                 warnings=tuple(sw),
             )
@@ -396,8 +407,12 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
     notes = []
     if c.layout == "time-domain":
         notes.append(
-            "time-domain layout: the fringe shift does not depend on velocity; velocity columns "
-            "were ignored"
+            "time-domain layout: the fringe shift does not depend on velocity; "
+            + (
+                f"the velocity columns of shifts.csv ({', '.join(c.ignored_columns)}) were ignored"
+                if c.ignored_columns
+                else "no velocity columns needed (none were given)"
+            )
         )
     if c.unmeasured:
         notes.append(

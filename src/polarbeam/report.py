@@ -121,17 +121,23 @@ def render_markdown(result: CampaignResult) -> str:
         if c.status == "failed":
             lines += [f"**failed:** {_md(c.message)}"]
             continue
+        timed = result.layout == "time-domain"  # no velocity enters: no velocity column
         lines += [
             f"mass {c.mass_u:.4f} u · method: {c.method}",
             "",
-            "| T (K) | points | α_eff (Å³) | χ²/ν | velocity (m/s) |",
-            "|---|---|---|---|---|",
+            "| T (K) | points | α_eff (Å³) | χ²/ν |" + ("" if timed else " velocity (m/s) |"),
+            "|---|---|---|---|" + ("" if timed else "---|"),
         ]
         for s in c.series:
             lines.append(
                 f"| {_fmt(s.temperature_K, s.temperature_err_K)} | {s.n_points} | "
-                f"{_fmt(s.alpha_eff_A3, s.alpha_eff_err_A3)} | {s.reduced_chi2:.2f} | "
-                f"{_fmt(s.velocity_m_s, s.velocity_err_m_s)} ± σ {s.velocity_spread_m_s:g} |"
+                f"{_fmt(s.alpha_eff_A3, s.alpha_eff_err_A3)} | {s.reduced_chi2:.2f} |"
+                + (
+                    ""
+                    if timed
+                    else f" {_fmt(s.velocity_m_s, s.velocity_err_m_s)} ± σ "
+                    f"{s.velocity_spread_m_s:g} |"
+                )
             )
         for s in c.series:
             lines += [

@@ -29,6 +29,7 @@ __all__ = [
     "InstrumentSpec",
     "SimulationTruth",
     "random_campaign",
+    "random_time_domain_campaign",
     "simulate_campaign",
 ]
 
@@ -48,11 +49,16 @@ class CompoundTruth:
 
 @dataclass(frozen=True)
 class InstrumentSpec:
-    """Stated instrument: key → (nominal SI value, 1σ error, unit for writing)."""
+    """Stated instrument: key → (nominal SI value, 1σ error, unit for writing).
+
+    ``waveform`` (time-domain only): knots (t relative to the switch-on, amplitude 0..1) written
+    to ``waveform.csv`` in place of a rectangular ``field_duration``.
+    """
 
     layout: str = "talbot-lau"
     model: str = "uniform"
     inputs: dict[str, tuple[float, float, str]] = field(default_factory=dict)
+    waveform: tuple[tuple[float, ...], tuple[float, ...]] | None = None
 
     @staticmethod
     def talbot_lau(model: str = "uniform", rel: float = 0.005) -> InstrumentSpec:
@@ -78,17 +84,28 @@ class InstrumentSpec:
         return InstrumentSpec("beam-profile", model, inp)
 
     @staticmethod
-    def time_domain(rel: float = 0.005) -> InstrumentSpec:
-        inp = {
-            "instrument.grating_period": (78.5e-9, 0.0, "nm"),
-            "instrument.pulse_times[0]": (0.0, 0.0, "us"),
-            "instrument.pulse_times[1]": (25e-6, 0.0, "us"),
-            "instrument.pulse_times[2]": (50e-6, 0.0, "us"),
-            "deflector.field_factor": (2.0e6, 2.0e6 * rel, "m^-3"),
-            "deflector.field_on": (3.0e-6, 0.02e-6, "us"),
-            "deflector.field_duration": (40e-6, 0.02e-6, "us"),
-        }
-        return InstrumentSpec("time-domain", "uniform", inp)
+    def time_domain(
+        rel: float = 0.005,
+        *,
+        period: tuple[float, float] = (80e-9, 0.0),
+        pulse_times: tuple[tuple[float, float], ...] = ((0.0, 0.0), (24e-6, 0.0), (48e-6, 0.0)),
+        field_factor: float = 2.0e6,
+        field_on: tuple[float, float] = (3.0e-6, 0.02e-6),
+        field_duration: tuple[float, float] = (40e-6, 0.02e-6),
+        waveform: tuple[tuple[float, ...], tuple[float, ...]] | None = None,
+    ) -> InstrumentSpec:
+        """Pulsed-grating set-up; (value, 1σ error) pairs in SI, defaults as in the contract.
+
+        With ``waveform`` the switching follows it and ``field_duration`` is not written.
+        """
+        inp = {"instrument.grating_period": (*period, "nm")}
+        for i, (t, dt) in enumerate(pulse_times):
+            inp[f"instrument.pulse_times[{i}]"] = (t, dt, "us")
+        inp["deflector.field_factor"] = (field_factor, field_factor * rel, "m^-3")
+        inp["deflector.field_on"] = (*field_on, "us")
+        if waveform is None:
+            inp["deflector.field_duration"] = (*field_duration, "us")
+        return InstrumentSpec("time-domain", "uniform", inp, waveform)
 
 
 def _deflector_inputs(model: str, rel: float):
@@ -130,7 +147,9 @@ def _setup(spec: InstrumentSpec, values: dict[str, float]):
         d = SwitchedField(
             values["deflector.field_factor"],
             values["deflector.field_on"],
-            values["deflector.field_duration"],
+            g("deflector.field_duration"),
+            spec.waveform,
+            origin=values["instrument.pulse_times[0]"],
         )
     elif spec.model == "uniform":
         d = UniformDeflector(
@@ -167,6 +186,7 @@ def simulate_campaign(
     temperature_err_K: float = 1.0,
     title: str = "simulated campaign",
     offset_scale: float = 0.1,
+    velocity_columns: bool = True,
 ) -> SimulationTruth:
     """Write ``campaign.toml``, ``shifts.csv`` and ``compounds.csv`` into ``out_dir``.
 
@@ -177,6 +197,8 @@ def simulate_campaign(
         voltage ladder should reach for the largest α_eff of each compound.
     noise
         Point error: rad for phases, relative to ``max_signal`` for beam-profile shifts.
+    velocity_columns
+        Write the velocity columns of ``shifts.csv`` (they may be left out for the time domain).
     """
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     spec = spec or InstrumentSpec.talbot_lau()
@@ -225,16 +247,20 @@ def simulate_campaign(
                     (comp.name, t_stated, temperature_err_K, v_nom, v_err, spread, V, yy, err)
                 )
     obs = ("shift_m", "shift_err_m") if is_profile else ("phase_rad", "phase_err_rad")
-    head = (
-        "compound,temperature_K,temperature_err_K,velocity_m_s,velocity_err_m_s,"
-        f"velocity_spread_m_s,voltage_V,{obs[0]},{obs[1]}"
-    )
+    if not velocity_columns and kind != "time-domain":
+        raise ValueError("velocity columns can only be left out for the time-domain layout")
+    vcols = "velocity_m_s,velocity_err_m_s,velocity_spread_m_s," if velocity_columns else ""
+    head = f"compound,temperature_K,temperature_err_K,{vcols}voltage_V,{obs[0]},{obs[1]}"
     lines = [head] + [
-        f"{r[0]},{r[1]:g},{r[2]:g},{r[3]:.6g},{r[4]:.4g},{r[5]:.4g},{r[6]:.6g},{r[7]:.10g},"
-        f"{r[8]:.6g}"
+        f"{r[0]},{r[1]:g},{r[2]:g},"
+        + (f"{r[3]:.6g},{r[4]:.4g},{r[5]:.4g}," if velocity_columns else "")
+        + f"{r[6]:.6g},{r[7]:.10g},{r[8]:.6g}"
         for r in rows
     ]
     write_text_atomic(out / "shifts.csv", "\n".join(lines) + "\n")
+    if spec.waveform is not None:
+        wl = ["t_s,amplitude"] + [f"{t:.10g},{a:.10g}" for t, a in zip(*spec.waveform, strict=True)]
+        write_text_atomic(out / "waveform.csv", "\n".join(wl) + "\n")
     chead = "compound,mass_u,mass_err_u,smiles"
     clines = [chead] + [f"{c.name},{c.mass_u:.6g},{c.mass_err_u:g},{c.smiles}" for c in compounds]
     write_text_atomic(out / "compounds.csv", "\n".join(clines) + "\n")
@@ -256,6 +282,8 @@ def _toml(spec: InstrumentSpec, title: str) -> str:
         (inst if table == "instrument" else defl).append(f'{name} = "{q}"')
     for base, items in lists.items():
         inst.append(f"{base} = [{', '.join(items)}]")
+    if spec.waveform is not None:
+        defl.append('waveform = "waveform.csv"')
     return (
         f'[campaign]\ntitle = "{title}"\n\n[instrument]\n'
         + "\n".join(inst)
@@ -304,4 +332,66 @@ def random_campaign(
         max_signal=float(rng.uniform(1, 4)),
         noise=float(rng.uniform(0.01, 0.05)),
         temperature_err_K=float(rng.uniform(0, 3)),
+    )
+
+
+def random_time_domain_campaign(
+    out_dir: str | Path,
+    rng: np.random.Generator,
+    *,
+    dipole_range_D: tuple[float, float] = (0.0, 4.0),
+    n_temperatures: tuple[int, int] = (1, 4),
+) -> SimulationTruth:
+    """One randomised time-domain campaign for round-trip tests.
+
+    Randomised: pulse sequence (t1 = 0 or later, T1 ≠ T2 allowed), switch-on time and length
+    anywhere over the sequence (partly outside it too) with their jitter, rectangular or ramped
+    waveform switching, field-factor, period and mass errors, dipoles 0–4 D, 1–4 temperatures,
+    velocity columns present or absent.  Every stated error is drawn into the truth.
+    """
+    us = 1e-6
+    t1 = float(rng.choice([0.0, rng.uniform(1.0, 30.0)])) * us
+    big_t1 = float(rng.uniform(10.0, 60.0)) * us
+    big_t2 = big_t1 * (1.0 if rng.random() < 0.5 else float(rng.uniform(0.8, 1.25)))
+    total = big_t1 + big_t2
+    jitter = [float(rng.uniform(0.0, 0.005)) * us for _ in range(3)]
+    start = float(rng.uniform(-0.1, 0.6)) * total
+    dur = float(rng.uniform(0.15, 1.0)) * total
+    if start + dur < 0.1 * total:  # keep a usable overlap with the pulse sequence
+        dur = 0.1 * total - start
+    waveform = None
+    if rng.random() < 0.3:  # ramped switching: rise, flat top (with a sag), fall
+        rise = float(rng.uniform(0.02, 0.2)) * dur
+        sag = float(rng.uniform(0.85, 1.0))
+        waveform = ((0.0, rise, 0.5 * dur, dur - rise, dur), (0.0, 1.0, sag, 1.0, 0.0))
+    rel = float(rng.uniform(0.002, 0.02))
+    spec = InstrumentSpec.time_domain(
+        rel,
+        period=(float(rng.uniform(50, 300)) * 1e-9, float(rng.choice([0.0, 1e-11]))),
+        pulse_times=((t1, jitter[0]), (t1 + big_t1, jitter[1]), (t1 + total, jitter[2])),
+        field_factor=float(10 ** rng.uniform(5, 7)),
+        field_on=(start, float(rng.uniform(0.005, 0.2)) * us),
+        field_duration=(dur, float(rng.uniform(0.005, 0.2)) * us),
+        waveform=waveform,
+    )
+    n_t = int(rng.integers(n_temperatures[0], n_temperatures[1] + 1))
+    temps = tuple(float(t) for t in np.sort(rng.choice(np.arange(300, 801, 50), n_t, False)))
+    comp = CompoundTruth(
+        name="sample",
+        mass_u=float(rng.uniform(60, 900)),
+        alpha_A3=float(rng.uniform(5, 150)),
+        dipole_D=float(rng.uniform(*dipole_range_D)),
+        temperatures_K=temps,
+        mass_err_u=float(rng.choice([0.0, 0.05, 0.5])),
+    )
+    return simulate_campaign(
+        out_dir,
+        [comp],
+        spec=spec,
+        seed=rng,
+        n_voltages=int(rng.integers(5, 13)),
+        max_signal=float(rng.uniform(1, 4)),
+        noise=float(rng.uniform(0.01, 0.05)),
+        temperature_err_K=float(rng.uniform(0, 3)),
+        velocity_columns=bool(rng.random() < 0.5),
     )
