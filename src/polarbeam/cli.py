@@ -104,7 +104,8 @@ def compute(
     if polarizability not in ("analytic", "finite-field"):
         _fail(
             PolarbeamError(
-                f"--polarizability: expected one of analytic, finite-field, found {polarizability!r}"
+                "--polarizability: expected one of analytic, finite-field, "
+                f"found {polarizability!r}"
             )
         )
     jobs: list[tuple[str, str]] = []
