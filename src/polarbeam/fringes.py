@@ -753,10 +753,23 @@ _NON_NEGATIVE = ("temperature_err_K", "velocity_err_m_s", "velocity_spread_m_s",
 
 
 def _row_error(source: str, i: int, col: str, expected: str, found) -> RowValueError:
+    shown = found if isinstance(found, str) and found == "empty cell" else repr(found)
+    if len(shown) > 60:
+        shown = shown[:57] + "..."
     return RowValueError(
-        f"{source}: row {i + 1} (line {i + 2}), column {col!r}: expected {expected}, "
-        f"found {found!r}"
+        f"{source}: row {i + 1} (line {i + 2}), column {col!r}: expected {expected}, found {shown}"
     )
+
+
+def _first_non_number(raw: pd.Series) -> int:
+    for i, value in enumerate(raw):
+        try:
+            if not isinstance(value, int | float | str):
+                raise TypeError
+            float(value)
+        except (TypeError, ValueError):
+            return i
+    return 0
 
 
 def validate_scans(df: pd.DataFrame, source: str = "scans table") -> pd.DataFrame:
@@ -790,9 +803,16 @@ def validate_scans(df: pd.DataFrame, source: str = "scans table") -> pd.DataFram
     out = df.reset_index(drop=True).copy()
     for col in _NUMERIC:
         raw = out[col]
-        if not pd.api.types.is_numeric_dtype(raw) or pd.api.types.is_bool_dtype(raw):
-            num = pd.to_numeric(raw, errors="coerce")
-            bad = np.flatnonzero(num.isna().to_numpy() & raw.notna().to_numpy())
+        if pd.api.types.is_bool_dtype(raw):
+            raise _row_error(source, 0, col, "a number", raw.iloc[0])
+        if not pd.api.types.is_numeric_dtype(raw):
+            # Text (or dates, bytes...): every non-empty cell must read as a number.
+            isnull = raw.isna().to_numpy()
+            try:
+                num = pd.to_numeric(raw.astype(str).where(~isnull), errors="coerce")
+                bad = np.flatnonzero(num.isna().to_numpy() & ~isnull)
+            except (TypeError, ValueError, UnicodeError):  # e.g. bytes that are not UTF-8
+                bad = np.array([_first_non_number(raw)])
             if bad.size:
                 i = int(bad[0])
                 raise _row_error(source, i, col, "a number", raw.iloc[i])
