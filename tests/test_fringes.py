@@ -237,6 +237,21 @@ def test_covariance_formula_against_monte_carlo():
     assert cov[0, 1] > 0.3 * math.sqrt(cov[0, 0] * cov[1, 1])
 
 
+def test_banded_covariance_equals_general_formula():
+    rng = np.random.default_rng(9)
+    t_ref = np.sort(rng.uniform(0, 1000, 12))
+    t_sig = np.r_[t_ref[3], rng.uniform(t_ref[0], t_ref[-1], 30)]  # one scan exactly on a ref
+    w, flags = interpolation_weights(t_sig, t_ref)
+    assert not flags.any()
+    var_s = rng.uniform(0.001, 0.01, t_sig.size)
+    a = rng.normal(size=(12, 12))
+    for ref_cov in (rng.uniform(0.001, 0.01, 12), a @ a.T * 1e-3):
+        kw = dict(diffusion_rad2_s=3e-5, jitter_rad2=2e-3)
+        fast = corrected_phase_covariance(w, var_s, ref_cov, t_sig, t_ref, **kw)
+        dense = corrected_phase_covariance(w, var_s, ref_cov, t_sig, t_ref, method="dense", **kw)
+        np.testing.assert_allclose(fast, dense, rtol=1e-10, atol=1e-13)
+
+
 def test_noise_estimate_unbiased():
     # Mean of the method-of-moments estimate over many series equals the simulated diffusion.
     rng = np.random.default_rng(4)
