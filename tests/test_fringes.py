@@ -279,6 +279,34 @@ def test_banded_covariance_equals_general_formula():
         np.testing.assert_allclose(fast, dense, rtol=1e-10, atol=1e-13)
 
 
+@pytest.mark.parametrize("model", ["random-walk", "jitter"])
+def test_banded_noise_moments_equal_dense_matrices(model):
+    from polarbeam.fringes import _noise_moments
+
+    rng = np.random.default_rng(10)
+    t = np.cumsum(rng.uniform(20, 200, 15)) + 1e5
+    phase = rng.normal(size=t.size)
+    var = rng.uniform(1e-3, 1e-2, t.size)
+    m = t.size
+    p = np.zeros((m - 2, m))  # chord residuals written out densely
+    for row, j in enumerate(range(1, m - 1)):
+        gap = t[j + 1] - t[j - 1]
+        p[row, [j - 1, j, j + 1]] = [-(t[j + 1] - t[j]) / gap, 1.0, -(t[j] - t[j - 1]) / gap]
+    kern = np.minimum.outer(t, t) - t[0] if model == "random-walk" else np.eye(m)
+    s_mat, k_mat = p @ np.diag(var) @ p.T, p @ kern @ p.T
+    got = _noise_moments(t, phase, var, model)
+    want = dict(
+        q=(p @ phase) @ (p @ phase),
+        trs=np.trace(s_mat),
+        trk=np.trace(k_mat),
+        ss=np.sum(s_mat**2),
+        sk=np.sum(s_mat * k_mat),
+        kk=np.sum(k_mat**2),
+    )
+    for key, value in want.items():
+        assert got[key] == pytest.approx(value, rel=1e-9, abs=1e-12), key
+
+
 def test_noise_estimate_unbiased():
     # Mean of the method-of-moments estimate over many series equals the simulated diffusion.
     rng = np.random.default_rng(4)

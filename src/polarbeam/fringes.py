@@ -668,10 +668,14 @@ def interpolation_weights(
     return weights.toarray(), flags
 
 
-def _interpolation_sparse(
+def _bracket(
     t_signal: ArrayLike, t_reference: ArrayLike
-) -> tuple[sparse.csr_matrix, np.ndarray]:
-    """:func:`interpolation_weights` as a sparse matrix (at most two entries per row)."""
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Reference interval of each signal time: ``(left, w, exact, flags)``.
+
+    ``left`` is the reference just before (or at) the time, ``w`` the weight of the reference
+    after it (0 for ``exact`` hits), ``flags`` the bracketing flags (unbracketed: left = 0).
+    """
     ts = np.asarray(t_signal, dtype=float)
     tr = np.asarray(t_reference, dtype=float)
     if tr.size > 1 and np.any(np.diff(tr) <= 0):
@@ -679,24 +683,96 @@ def _interpolation_sparse(
     flags = np.zeros(ts.size, dtype=np.int64)
     if tr.size == 0:
         flags[:] = NO_REFERENCE_BEFORE | NO_REFERENCE_AFTER
-        return sparse.csr_matrix((ts.size, 0)), flags
+        zero = np.zeros(ts.size, dtype=np.int64)
+        return zero, np.zeros(ts.size), np.zeros(ts.size, dtype=bool), flags
     j = np.searchsorted(tr, ts, side="right") - 1
     before = j < 0
     flags[before] |= NO_REFERENCE_BEFORE
-    jc = np.clip(j, 0, tr.size - 1)
-    exact = ~before & (tr[jc] == ts)
+    left = np.clip(j, 0, tr.size - 1)
+    exact = ~before & (tr[left] == ts)
     after = ~before & ~exact & (j >= tr.size - 1)
     flags[after] |= NO_REFERENCE_AFTER
-    rows = np.arange(ts.size)
     mid = ~before & ~exact & ~after
-    jm = j[mid]
-    w = (ts[mid] - tr[jm]) / (tr[jm + 1] - tr[jm])
-    r = np.r_[rows[exact], rows[mid], rows[mid]]
-    c = np.r_[jc[exact], jm, jm + 1]
-    v = np.r_[np.ones(np.count_nonzero(exact)), 1.0 - w, w]
-    weights = sparse.csr_matrix((v, (r, c)), shape=(ts.size, tr.size))
+    w = np.zeros(ts.size)
+    jm = left[mid]
+    w[mid] = (ts[mid] - tr[jm]) / (tr[jm + 1] - tr[jm])
+    return left, w, exact, flags
+
+
+def _interpolation_sparse(
+    t_signal: ArrayLike, t_reference: ArrayLike
+) -> tuple[sparse.csr_matrix, np.ndarray]:
+    """:func:`interpolation_weights` as a sparse matrix (at most two entries per row)."""
+    left, w, exact, flags = _bracket(t_signal, t_reference)
+    m = np.asarray(t_reference).size
+    ok = np.flatnonzero(flags == 0)
+    inner = ok[~exact[ok]]
+    r = np.r_[ok, inner]
+    c = np.r_[left[ok], left[inner] + 1]
+    v = np.r_[1.0 - w[ok], w[inner]]
+    weights = sparse.csr_matrix((v, (r, c)), shape=(left.size, m))
     weights.eliminate_zeros()
     return weights, flags
+
+
+def _pairs_within_groups(group: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """All ordered pairs ``(p, q)`` of entries that share a group id (including p == q)."""
+    order = np.argsort(group, kind="stable")
+    g = group[order]
+    starts = np.flatnonzero(np.r_[True, g[1:] != g[:-1]]) if g.size else np.zeros(0, int)
+    sizes = np.diff(np.r_[starts, g.size])
+    size_e = np.repeat(sizes, sizes)
+    start_e = np.repeat(starts, sizes)
+    p = np.repeat(np.arange(g.size), size_e)
+    offset = np.arange(p.size) - np.repeat(np.cumsum(size_e) - size_e, size_e)
+    q = np.repeat(start_e, size_e) + offset
+    return order[p], order[q]
+
+
+def _banded_covariance(
+    left: np.ndarray,
+    w: np.ndarray,
+    exact: np.ndarray,
+    var_s: np.ndarray,
+    var_r: np.ndarray,
+    t_s: np.ndarray | None,
+    t_r: np.ndarray | None,
+    diffusion: float,
+    jitter: float,
+) -> np.ndarray:
+    """:func:`corrected_phase_covariance` for linear interpolation and independent references.
+
+    Only scans sharing a reference or an interval are correlated: their pairs are enumerated
+    and the upper triangle is accumulated with one ``bincount``, then mirrored (exactly
+    symmetric).
+    """
+    n = var_s.size
+    inner = np.flatnonzero(~exact)
+    idx, val = [np.arange(n) * (n + 1)], [var_s + jitter]
+    # W (R + τ² I) Wᵀ: entries (scan, reference, weight), paired by reference.
+    e_sig = np.r_[np.arange(n), inner]
+    e_ref = np.r_[left, left[inner] + 1]
+    e_w = np.r_[1.0 - w, w[inner]]
+    p, q = _pairs_within_groups(e_ref)
+    i, k = e_sig[p], e_sig[q]
+    up = i <= k
+    idx.append(i[up] * n + k[up])
+    val.append((e_w[p] * e_w[q] * (var_r[e_ref[p]] + jitter))[up])
+    if diffusion > 0 and inner.size:
+        # Brownian bridge within each reference interval.
+        p, q = _pairs_within_groups(left[inner])
+        i, k = inner[p], inner[q]
+        up = i <= k
+        i, k = i[up], k[up]
+        u = t_s - t_r[left]
+        length = t_r[np.minimum(left + 1, t_r.size - 1)] - t_r[left]
+        lo, hi = np.minimum(u[i], u[k]), np.maximum(u[i], u[k])
+        idx.append(i * n + k)
+        val.append(diffusion * lo * (length[i] - hi) / length[i])
+    flat = np.bincount(np.concatenate(idx), weights=np.concatenate(val), minlength=n * n)
+    cov = flat.reshape(n, n)
+    cov += np.triu(cov, 1).T
+    return cov
 
 
 def _brownian_kernel(ta: np.ndarray, tb: np.ndarray, t0: float) -> np.ndarray:
@@ -720,21 +796,6 @@ def _interpolation_structure(wm: sparse.csr_matrix):
     if np.any(np.abs(w_left + w_right - 1.0) > 1e-9):
         return None
     return left, w_right, ~two
-
-
-def _add_symmetric(cov: np.ndarray, row: np.ndarray, col: np.ndarray, val: np.ndarray) -> None:
-    """Add unique entries of a symmetric matrix, mirroring the upper triangle (exact symmetry)."""
-    up = row <= col
-    row, col, val = row[up], col[up], val[up]
-    cov[row, col] += val
-    off = row != col
-    cov[col[off], row[off]] += val[off]
-
-
-def _add_sparse(cov: np.ndarray, m) -> None:
-    m = m.tocoo()
-    m.sum_duplicates()
-    _add_symmetric(cov, m.row, m.col, m.data)
 
 
 def corrected_phase_covariance(
@@ -790,34 +851,19 @@ def corrected_phase_covariance(
         return _covariance_dense(
             wsp.toarray(), var_s, r, t_signal, t_reference, diffusion_rad2_s, jitter_rad2
         )
-    n = len(var_s)
-    cov = np.zeros((n, n))
-    cov[np.diag_indices(n)] = var_s
+    left, w_right, exact = structure
+    ts = None if t_signal is None else np.asarray(t_signal, dtype=float)
+    tr = None if t_reference is None else np.asarray(t_reference, dtype=float)
     if r.ndim == 1:
-        _add_sparse(cov, wsp.multiply(r[None, :]).tocsr() @ wsp.T)
-    else:
-        full = wsp @ (wsp @ r).T
-        cov += 0.5 * (full + full.T)
-    if diffusion_rad2_s > 0:
-        left, _, exact = structure
-        ts = np.asarray(t_signal, dtype=float)
-        tr = np.asarray(t_reference, dtype=float)
-        inner = np.flatnonzero(~exact)
-        onehot = sparse.csr_matrix(
-            (np.ones(inner.size), (inner, left[inner])), shape=(n, max(tr.size, 1))
+        return _banded_covariance(
+            left, w_right, exact, var_s, r, ts, tr, diffusion_rad2_s, jitter_rad2
         )
-        pairs = (onehot @ onehot.T).tocoo()
-        i, k = pairs.row, pairs.col
-        u = ts - tr[left]
-        length = tr[np.minimum(left + 1, tr.size - 1)] - tr[left]
-        lo, hi = np.minimum(u[i], u[k]), np.maximum(u[i], u[k])
-        with np.errstate(invalid="ignore", divide="ignore"):
-            bridge = lo * (length[i] - hi) / length[i]
-        _add_symmetric(cov, i, k, diffusion_rad2_s * bridge)
-    if jitter_rad2 > 0:
-        cov[np.diag_indices(n)] += jitter_rad2
-        _add_sparse(cov, jitter_rad2 * (wsp @ wsp.T))
-    return cov
+    # A full reference covariance: the banded terms plus the dense W R Wᵀ.
+    cov = _banded_covariance(
+        left, w_right, exact, var_s, np.zeros(r.shape[0]), ts, tr, diffusion_rad2_s, jitter_rad2
+    )
+    full = wsp @ (wsp @ r).T
+    return cov + 0.5 * (full + full.T)
 
 
 def _covariance_dense(wm, var_s, r, t_signal, t_reference, diffusion, jitter) -> np.ndarray:
@@ -871,45 +917,57 @@ class NoiseEstimate:
         return dict(self.__dict__)
 
 
-def _chord_operator(t_ref: np.ndarray) -> sparse.csr_matrix:
-    """Rows: reference j minus the straight line through references j-1 and j+1."""
-    m = t_ref.size
-    rows = max(m - 2, 0)
-    if rows == 0:
-        return sparse.csr_matrix((0, m))
-    j = np.arange(1, m - 1)
-    gap = t_ref[j + 1] - t_ref[j - 1]
-    vals = np.stack(
-        [-(t_ref[j + 1] - t_ref[j]) / gap, np.ones(rows), -(t_ref[j] - t_ref[j - 1]) / gap], axis=1
-    )
-    cols = np.stack([j - 1, j, j + 1], axis=1)
-    return sparse.csr_matrix(
-        (vals.ravel(), (np.repeat(np.arange(rows), 3), cols.ravel())), shape=(rows, m)
-    )
-
-
 def _noise_moments(
     t_ref: np.ndarray, phase_ref: np.ndarray, var_ref: np.ndarray, model: str
 ) -> dict[str, float]:
-    """Moments of the chord residuals: observed |r|², tr(PSPᵀ), tr(PKPᵀ) and the traces needed
-    for Var(|r|²) = 2 tr((S' + level K')²) with S' = PSPᵀ, K' = PKPᵀ."""
-    p = _chord_operator(t_ref)
-    m = {"q": 0.0, "trs": 0.0, "trk": 0.0, "ss": 0.0, "sk": 0.0, "kk": 0.0, "n": p.shape[0]}
-    if p.shape[0] == 0 or model == "none":
+    """Moments of the chord residuals ``r = P phi`` (row q: reference q+1 minus the line through
+    references q and q+2): observed |r|², tr(S'), tr(K') and the traces needed for
+    Var(|r|²) = 2 tr((S' + level K')²), with S' = P S Pᵀ and K' = P K Pᵀ.  P has three entries
+    per row, so S' and K' are banded (bandwidth 2) and are evaluated band by band."""
+    m = {"q": 0.0, "trs": 0.0, "trk": 0.0, "ss": 0.0, "sk": 0.0, "kk": 0.0, "n": 0}
+    rows = t_ref.size - 2
+    if rows <= 0 or model == "none":
         return m
-    r = p @ phase_ref
-    stat = (p.multiply(var_ref[None, :]).tocsr() @ p.T).toarray()
+    t = t_ref - t_ref[0]
+    j = np.arange(1, rows + 1)
+    gap = t[j + 1] - t[j - 1]
+    coef = np.stack([-(t[j + 1] - t[j]) / gap, np.ones(rows), -(t[j] - t[j - 1]) / gap], 1)
+    r = coef[:, 0] * phase_ref[j - 1] + phase_ref[j] + coef[:, 2] * phase_ref[j + 1]
+
+    def band(d: int, kernel) -> np.ndarray:
+        q = np.arange(rows - d)
+        total = np.zeros(q.size)
+        for al in range(3):
+            for be in range(3):
+                total += coef[q, al] * coef[q + d, be] * kernel(q + al, q + d + be)
+        return total
+
+    def stat(c1, c2):
+        return np.where(c1 == c2, var_ref[c1], 0.0)
+
     if model == "random-walk":
-        kern = p @ (p @ _brownian_kernel(t_ref, t_ref, t_ref[0])).T
+
+        def kern(c1, c2):
+            return np.minimum(t[c1], t[c2])
     else:
-        kern = (p @ p.T).toarray()
+
+        def kern(c1, c2):
+            return (c1 == c2).astype(float)
+
+    s_b = [band(d, stat) for d in range(3)]
+    k_b = [band(d, kern) for d in range(3)]
+
+    def frob(x, y):  # Σ_ij X_ij Y_ij of two symmetric banded matrices
+        return float(x[0] @ y[0] + 2.0 * (x[1] @ y[1] + x[2] @ y[2]))
+
     m.update(
         q=float(r @ r),
-        trs=float(np.trace(stat)),
-        trk=float(np.trace(kern)),
-        ss=float(np.sum(stat * stat)),
-        sk=float(np.sum(stat * kern)),
-        kk=float(np.sum(kern * kern)),
+        trs=float(s_b[0].sum()),
+        trk=float(k_b[0].sum()),
+        ss=frob(s_b, s_b),
+        sk=frob(s_b, k_b),
+        kk=frob(k_b, k_b),
+        n=rows,
     )
     return m
 
@@ -1562,11 +1620,17 @@ def reduce_table(
         else:
             est = _noise_from_moments(noise_model, moments, "series")
         noise[key] = est
-        weights, bracket = _interpolation_sparse(times[sig], times[good])
+        left, w_right, exact, bracket = _bracket(times[sig], times[good])
         flags[sig] |= bracket
-        keep = sig[flags[sig] == 0]
-        wk = weights[np.flatnonzero(flags[sig] == 0)]
-        delta = _wrap(phase[keep] - wk @ ph_good)
+        ok = flags[sig] == 0
+        keep = sig[ok]
+        left, w_right, exact = left[ok], w_right[ok], exact[ok]
+        if good.size:
+            right = np.minimum(left + 1, good.size - 1)
+            ref_phase = (1.0 - w_right) * ph_good[left] + w_right * ph_good[right]
+        else:
+            ref_phase = np.zeros(0)
+        delta = _wrap(phase[keep] - ref_phase)
         vk = volt_s[keep]
         expected = None
         if expected_phase is not None:
@@ -1577,14 +1641,16 @@ def reduce_table(
         delta = choose_branches(
             delta, vk, np.sqrt(var[keep]), expected=expected, shift_sign=shift_sign
         )
-        cov = corrected_phase_covariance(
-            wk,
+        cov = _banded_covariance(
+            left,
+            w_right,
+            exact,
             var[keep],
             var[good],
             times[keep],
             times[good],
-            diffusion_rad2_s=est.level if est.model == "random-walk" else 0.0,
-            jitter_rad2=est.level if est.model == "jitter" else 0.0,
+            est.level if est.model == "random-walk" else 0.0,
+            est.level if est.model == "jitter" else 0.0,
         )
         covariance[key] = cov
         out_phase[keep] = delta
