@@ -95,27 +95,47 @@ def baseline_curve_fit(table, n_scans: int) -> tuple[float, np.ndarray, np.ndarr
     return per_scan, np.array(ids), np.array(phases)
 
 
-def worker(path: str) -> None:
+def worker(path: str, repeat: int) -> None:
     """Reduce one file and print timings and peak memory as JSON (run in a subprocess)."""
+    t_imp = time.perf_counter()
+    # Import time is not data-dependent: it is reported apart.
+    import pyarrow.csv
+    import pyarrow.parquet  # noqa: F401
+
     from polarbeam.fringes import fit_scans, read_scans, reduce_table
 
-    t0 = time.perf_counter()
-    df = read_scans(path)
-    t1 = time.perf_counter()
-    red = reduce_table(df, PERIOD, source=Path(path).name)
-    t2 = time.perf_counter()
-    fit_scans(df["scan"].to_numpy(), df["position_m"].to_numpy(), df["counts"].to_numpy(), PERIOD)
-    t3 = time.perf_counter()
+    best: dict[str, float] = {}
+    for _ in range(repeat):  # best of `repeat`: the least disturbed by other load
+        t0 = time.perf_counter()
+        df = read_scans(path)
+        t1 = time.perf_counter()
+        red = reduce_table(df, PERIOD, source=Path(path).name)
+        t2 = time.perf_counter()
+        fit_scans(
+            df["scan"].to_numpy(), df["position_m"].to_numpy(), df["counts"].to_numpy(), PERIOD
+        )
+        t3 = time.perf_counter()
+        for name, value in (("read", t1 - t0), ("reduce", t2 - t1), ("fit", t3 - t2)):
+            best[name] = min(best.get(name, np.inf), value)
+        best["total"] = min(best.get("total", np.inf), t2 - t0)
+        summary = (
+            len(red.scan_fits),
+            int(red.table["phase_rad"].notna().sum()),
+            int((red.table["flags"] != "").sum()),
+        )
+        del df, red  # so that a repeat does not hold two results at once
     print(
         json.dumps(
             {
-                "read_s": t1 - t0,
-                "reduce_s": t2 - t1,
-                "fit_only_s": t3 - t2,
-                "total_s": t2 - t0,
-                "scans": len(red.scan_fits),
-                "kept": int(red.table["phase_rad"].notna().sum()),
-                "flagged": int((red.table["flags"] != "").sum()),
+                "import_s": t0 - t_imp,
+                "repeat": repeat,
+                "read_s": best["read"],
+                "reduce_s": best["reduce"],
+                "fit_only_s": best["fit"],
+                "total_s": best["total"],
+                "scans": summary[0],
+                "kept": summary[1],
+                "flagged": summary[2],
                 "maxrss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0,
             }
         )
@@ -129,11 +149,12 @@ def main(argv=None) -> int:
     ap.add_argument("--bins", type=int, default=40)
     ap.add_argument("--baseline-scans", type=int, default=500)
     ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--repeat", type=int, default=3, help="best of this many timings")
     ap.add_argument("--json", type=Path, help="also write the figures to this JSON file")
     ap.add_argument("--worker", help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.worker:
-        worker(args.worker)
+        worker(args.worker, args.repeat)
         return 0
 
     t = time.perf_counter()
@@ -145,11 +166,12 @@ def main(argv=None) -> int:
         f"in {time.perf_counter() - t:.1f} s"
     )
 
-    per_scan, _, _ = baseline_curve_fit(table, args.baseline_scans)
+    per_scan = min(baseline_curve_fit(table, args.baseline_scans)[0] for _ in range(args.repeat))
     baseline_total = per_scan * n_scans
     print(
         f"baseline: scipy.optimize.curve_fit per scan {per_scan * 1e3:.3f} ms "
-        f"(timed on {args.baseline_scans} scans) -> {baseline_total:.1f} s for {n_scans}"
+        f"(best of {args.repeat} on {args.baseline_scans} scans) -> {baseline_total:.1f} s for "
+        f"{n_scans}"
     )
 
     results = {
@@ -174,7 +196,7 @@ def main(argv=None) -> int:
         del table, sim
         for fmt, path in paths.items():
             out = subprocess.run(
-                [sys.executable, __file__, "--worker", str(path)],
+                [sys.executable, __file__, "--worker", str(path), "--repeat", str(args.repeat)],
                 check=True,
                 capture_output=True,
                 text=True,
@@ -183,16 +205,20 @@ def main(argv=None) -> int:
             r = json.loads(out.stdout.strip().splitlines()[-1])
             r["file_mb"] = path.stat().st_size / 2**20
             r["scans_per_s"] = r["scans"] / r["total_s"]
-            r["speedup_end_to_end"] = baseline_total / r["total_s"]
+            # Baseline pipeline: the same read and drift stage, curve_fit for the fits.
+            r["baseline_pipeline_s"] = r["total_s"] - r["fit_only_s"] + baseline_total
             r["speedup_fit_only"] = baseline_total / r["fit_only_s"]
+            r["speedup_pipeline"] = r["baseline_pipeline_s"] / r["total_s"]
+            r["speedup_end_to_end"] = baseline_total / r["total_s"]
             results["cases"][fmt] = r
             print(
-                f"{fmt:8s} file {r['file_mb']:7.1f} MB | read {r['read_s']:5.2f} s, fit + drift "
-                f"{r['reduce_s']:5.2f} s, total {r['total_s']:5.2f} s = "
-                f"{r['scans_per_s']:9.0f} scans/s | peak RSS {r['maxrss_mb']:6.0f} MB | "
-                f"x{r['speedup_end_to_end']:.0f} vs baseline end to end "
-                f"(fit alone {r['fit_only_s']:.2f} s, x{r['speedup_fit_only']:.0f}) | "
-                f"{r['flagged']} flagged"
+                f"{fmt:8s} file {r['file_mb']:6.1f} MB | read {r['read_s']:5.2f} s, validate + fit"
+                f" + drift {r['reduce_s']:5.2f} s, total {r['total_s']:5.2f} s = "
+                f"{r['scans_per_s']:7.0f} scans/s | peak RSS {r['maxrss_mb']:5.0f} MB\n"
+                f"         fit alone {r['fit_only_s']:.2f} s: x{r['speedup_fit_only']:.0f} vs "
+                f"curve_fit | pipeline with curve_fit fits {r['baseline_pipeline_s']:.1f} s: "
+                f"x{r['speedup_pipeline']:.1f} | our end to end vs curve_fit fits alone: "
+                f"x{r['speedup_end_to_end']:.1f} | {r['flagged']} flagged"
             )
 
     # Sanity: our phases on the baseline subset agree with curve_fit's.
@@ -211,7 +237,9 @@ def main(argv=None) -> int:
     pq = results["cases"]["parquet"]
     peak = max(c["maxrss_mb"] for c in results["cases"].values())
     print(
-        f"targets: >= 50x baseline: {'met' if pq['speedup_end_to_end'] >= 50 else 'MISSED'}; "
+        f"targets (Parquet): >= 50x baseline fits: "
+        f"{'met' if pq['speedup_fit_only'] >= 50 else 'MISSED'} (fit vs fit), "
+        f"{'met' if pq['speedup_end_to_end'] >= 50 else 'MISSED'} (our end to end vs fits); "
         f"< 10 s Parquet: {'met' if pq['total_s'] < 10 else 'MISSED'}; "
         f"< 2 GB: {'met' if peak < 2048 else 'MISSED'}"
     )

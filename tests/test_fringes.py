@@ -277,6 +277,8 @@ def test_banded_covariance_equals_general_formula():
         fast = corrected_phase_covariance(w, var_s, ref_cov, t_sig, t_ref, **kw)
         dense = corrected_phase_covariance(w, var_s, ref_cov, t_sig, t_ref, method="dense", **kw)
         np.testing.assert_allclose(fast, dense, rtol=1e-10, atol=1e-13)
+        assert (fast == fast.T).all()
+        assert np.linalg.eigvalsh(fast).min() > 0
 
 
 @pytest.mark.parametrize("model", ["random-walk", "jitter"])

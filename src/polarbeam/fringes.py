@@ -743,8 +743,7 @@ def _banded_covariance(
     """:func:`corrected_phase_covariance` for linear interpolation and independent references.
 
     Only scans sharing a reference or an interval are correlated: their pairs are enumerated
-    and the upper triangle is accumulated with one ``bincount``, then mirrored (exactly
-    symmetric).
+    (upper triangle, then mirrored) and accumulated with one ``bincount``.
     """
     n = var_s.size
     inner = np.flatnonzero(~exact)
@@ -769,10 +768,15 @@ def _banded_covariance(
         lo, hi = np.minimum(u[i], u[k]), np.maximum(u[i], u[k])
         idx.append(i * n + k)
         val.append(diffusion * lo * (length[i] - hi) / length[i])
-    flat = np.bincount(np.concatenate(idx), weights=np.concatenate(val), minlength=n * n)
-    cov = flat.reshape(n, n)
-    cov += np.triu(cov, 1).T
-    return cov
+    idx_up, val_up = np.concatenate(idx), np.concatenate(val)
+    row, col = np.divmod(idx_up, n)
+    off = row != col  # mirror the strict upper triangle: the same sums, so exactly symmetric
+    flat = np.bincount(
+        np.r_[idx_up, col[off] * n + row[off]],
+        weights=np.r_[val_up, val_up[off]],
+        minlength=n * n,
+    )
+    return flat.reshape(n, n)
 
 
 def _brownian_kernel(ta: np.ndarray, tb: np.ndarray, t0: float) -> np.ndarray:
