@@ -24,33 +24,46 @@ so it is ``2 pi Δx_deflection / d`` with the same sign as the deflection-induce
 Per-scan fit
 ------------
 The model is linear in ``(c0, a, b)``.  All scans are fitted at once by weighted linear least
-squares: grouped sums (:func:`numpy.bincount`) build the 3×3 normal equations of every scan and one
-batched :func:`numpy.linalg.solve` solves them.  The first pass is unweighted; the following
-passes use Poisson weights ``1/mu`` from the current model (iteratively reweighted least squares).
-Its fixed point solves the Poisson likelihood equations of this identity-link model, so the fit is
-the maximum-likelihood one and is not biased at low counts the way weights ``1/n`` from the data
-are.  The parameter covariance is the sandwich ``A⁻¹ B A⁻¹`` with ``A = XᵀWX`` and
-``B = XᵀW diag(mu) WX`` (Poisson variance = model), which is ``A⁻¹`` at convergence and stays
-right for the unweighted pass.  Mean, visibility and phase errors follow by linear propagation.
+squares: grouped sums over the rows sorted by scan (:func:`numpy.add.reduceat`) build the 3×3
+normal equations of every scan, and the stack is solved in one vectorised call (closed-form
+symmetric 3×3 solve, with :func:`numpy.linalg.solve` for the poorly conditioned ones).  When
+every scan uses the same grating positions (the usual case) the grouped sums are computed as
+matrix products with the shared basis.  The first pass is unweighted; the following passes (3
+by default) use Poisson weights ``1/mu`` from the current model (iteratively reweighted least
+squares).  Its fixed point solves the Poisson likelihood equations of this identity-link model,
+so the fit is the maximum-likelihood one: the mean counts are unbiased at any count level
+(``Σ mu = Σ n`` at the fixed point), unlike weights ``1/n`` taken from the data, and the phase
+error reaches the Cramér-Rao bound.  The parameter covariance is the inverse Fisher matrix
+``(XᵀWX)⁻¹`` (Poisson variance = model), or the sandwich ``A⁻¹ B A⁻¹`` with
+``B = Xᵀ diag(mu) X`` for the unweighted fit (``iterations=0``).  Mean, visibility and phase
+errors follow by linear propagation.
 
 Drift correction and the noise model
 ------------------------------------
 Reference scans (``voltage_V == 0``) are interleaved in time.  Within each series (one compound at
-one temperature) the reference phases are unwrapped in time; each non-reference scan gets the
-reference phase linearly interpolated between the good references just before and just after it,
-which is subtracted.  The interferometer phase is modelled as
+one temperature) the good reference phases are unwrapped in time (so the interferometer phase
+must move by less than π between consecutive references); each non-reference scan gets the
+reference phase linearly interpolated between the good references just before and just after
+it, which is subtracted.  A scan without a good reference on one side is flagged
+``no-reference-before`` / ``no-reference-after``.  The interferometer phase is modelled as
 
-    phi_I(t) = smooth drift + W(t) (+ white jitter),
+    phi_I(t) = smooth drift + W(t)   (model "random-walk", the default)
+    phi_I(t) = smooth drift + e_i    (model "jitter": white noise per scan)
 
 where ``W`` is a random walk of diffusion ``D`` (variance ``D·Δt`` after a time ``Δt``).  Linear
-interpolation removes the drift; what remains of ``W`` is a Brownian bridge between the
-references, of variance ``D (t - t_j)(t_j+1 - t)/(t_j+1 - t_j)``.  ``D`` is estimated per series by
-the method of moments on the chord residuals of consecutive references (each reference minus the
-straight line through its two neighbours): their mean square is compared with what the
-statistical errors alone give, the excess divided by the bridge variance at the given time gaps
-(:func:`estimate_excess_noise`).  The covariance of the corrected phases
-(:func:`corrected_phase_covariance`) adds the scan's own variance, the interpolated reference
-covariance ``W R Wᵀ`` (scans sharing a reference are correlated) and the random-walk term.
+interpolation removes the drift (exactly if it is linear between two references); what remains
+of ``W`` is a Brownian bridge between the references, of variance
+``D (t - t_j)(t_j+1 - t)/(t_j+1 - t_j)``.  ``D`` is estimated per series (or pooled over all
+series) by the method of moments on the chord residuals of consecutive references (each
+reference minus the straight line through its two neighbours, which removes any locally linear
+drift): their summed square is compared with what the statistical errors alone give, and the
+excess is divided by the bridge variance expected at the actual time gaps
+(:func:`estimate_excess_noise`).  Curvature of the drift within two reference gaps is not
+modelled; it raises the estimate, so it errs towards larger errors.  The covariance of the
+corrected phases (:func:`corrected_phase_covariance`) adds the scan's own variance, the
+interpolated reference covariance ``W R Wᵀ`` (scans sharing a reference are correlated) and the
+random-walk (or jitter) term.  The 2π branch of each corrected phase is chosen from an expected
+phase, the sign of the shift or, by default, a smooth trend in V² (:func:`choose_branches`).
 
 Flags
 -----
@@ -1220,6 +1233,32 @@ def validate_scans(df: pd.DataFrame, source: str = "scans table") -> pd.DataFram
     return out.assign(**changed)
 
 
+def _read_csv(path: Path) -> pd.DataFrame:
+    try:
+        import pyarrow as pa
+        import pyarrow.csv as pacsv
+    except ImportError:  # pragma: no cover - pandas' own parser as fallback
+        return pd.read_csv(path, dtype={"compound": str})
+    types = {c: pa.float64() for c in _NUMERIC}
+    types["compound"] = pa.dictionary(pa.int32(), pa.string())
+    opts = pacsv.ConvertOptions(column_types=types, strings_can_be_null=False)
+    try:
+        # Streaming in blocks keeps the raw text out of memory once parsed; the column types
+        # are fixed, so a later block cannot disagree with types guessed from the first.
+        reader = pacsv.open_csv(
+            path, read_options=pacsv.ReadOptions(block_size=1 << 24), convert_options=opts
+        )
+        table = reader.read_all()
+    except pa.ArrowInvalid as exc:
+        if "conversion error" not in str(exc).lower():
+            raise
+        # A cell that is not a number: read everything as text so that validation can name
+        # its row and column.
+        text = pacsv.ConvertOptions(column_types=dict.fromkeys(INPUT_COLUMNS, pa.string()))
+        table = pacsv.read_csv(path, convert_options=text)
+    return table.to_pandas(split_blocks=True, self_destruct=True)
+
+
 def _read_table(path: Path) -> pd.DataFrame:
     suffix = path.suffix.lower()
     if suffix in (".parquet", ".pq"):
@@ -1237,19 +1276,9 @@ def _read_table(path: Path) -> pd.DataFrame:
             raise InputError(f"{path}: cannot read Parquet file: {msg}") from exc
     if suffix in (".csv", ".txt"):
         try:
-            import pyarrow as pa
-            import pyarrow.csv as pacsv
-        except ImportError:  # pragma: no cover - pandas' own parser as fallback
-            pa = None
-        try:
-            if pa is not None:
-                opts = pacsv.ConvertOptions(
-                    column_types={"compound": pa.dictionary(pa.int32(), pa.string())},
-                    strings_can_be_null=False,
-                )
-                table = pacsv.read_csv(path, convert_options=opts)
-                return table.to_pandas(split_blocks=True, self_destruct=True)
-            return pd.read_csv(path, dtype={"compound": str})
+            return _read_csv(path)
+        except (InputError, RowValueError):
+            raise
         except Exception as exc:  # parser errors, bad encodings, ragged rows
             msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
             raise InputError(f"{path}: cannot parse CSV: {msg}") from exc
