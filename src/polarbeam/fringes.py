@@ -562,8 +562,9 @@ def fit_scans(
         Grating period ``d``, m.
     iterations : int, optional
         Number of Poisson-reweighted passes after the first unweighted one (0 gives plain
-        unweighted least squares).  Three passes converge to < 1e-4 σ for visibilities up to
-        0.5; raise it for high visibility at low counts.
+        unweighted least squares).  With three passes the phases are within 2e-6 σ of the
+        fully converged fit (99.9th percentile) at V = 0.3 and 150 counts/bin, within about
+        1e-3 σ at 5 counts/bin or V = 0.8; raise it for high visibility at low counts.
     min_bins : int, optional
         Scans with fewer bins are flagged ``too-few-bins`` (4 leaves one degree of freedom).
     chi2_pvalue_min : float, optional
