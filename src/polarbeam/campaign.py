@@ -83,6 +83,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
     },
     "data": {
         "shifts": None,
+        "scans": None,
         "compounds": None,
         "structures": None,
         "computed": None,
@@ -206,6 +207,7 @@ class CompoundData:
     problem: str | None = None
     alpha_known: Measured | None = None
     dipole_known: Measured | None = None
+    notes: tuple[str, ...] = ()  # e.g. scans dropped by the fringe reduction
 
 
 @dataclass(frozen=True)
@@ -226,6 +228,7 @@ class Campaign:
     structures: dict[str, Any] = field(default_factory=dict)  # name → RDKit Mol or error text
     computed_paths: tuple[Path, ...] = ()
     computed_patterns: tuple[str, ...] = ()
+    reduction: Any = None  # fringes.ReducedPhases when the campaign starts from raw scans
     ignored_columns: tuple[str, ...] = ()  # shifts.csv columns the layout does not use
 
     @property
@@ -642,10 +645,27 @@ def load_campaign(path: str | Path) -> Campaign:
         if not isinstance(wf, str):
             raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
         waveform = _read_waveform((base / wf).resolve())
-    shifts_path = _data_path(base, doc, "shifts", fname)
+    data = doc.get("data", {})
     compounds_path = _data_path(base, doc, "compounds", fname)
-    info = _load_compounds(compounds_path)
-    series, problems, ignored = _load_shifts(shifts_path, layout)
+    reduction = None
+    notes: dict[str, list[str]] = {}
+    if "scans" in data:
+        if "shifts" in data:
+            raise InputError(f"{fname} [data]: expected either 'shifts' or 'scans', found both")
+        if layout == "beam-profile":
+            raise InputError(
+                f"{fname} [data] scans: raw fringe scans need a fringe layout "
+                "(talbot-lau or time-domain), found 'beam-profile'"
+            )
+        shifts_path = _data_path(base, doc, "scans", fname)
+        info = _load_compounds(compounds_path)
+        reduction = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
+        series, problems, notes = series_from_reduction(reduction)
+        ignored: tuple[str, ...] = ()
+    else:
+        shifts_path = _data_path(base, doc, "shifts", fname)
+        info = _load_compounds(compounds_path)
+        series, problems, ignored = _load_shifts(shifts_path, layout)
 
     camp = Campaign(
         path=path,
@@ -689,6 +709,7 @@ def load_campaign(path: str | Path) -> Campaign:
                 problem,
                 entry.get("alpha_known"),
                 entry.get("dipole_known"),
+                tuple(notes.get(name, ())),
             )
         )
     unmeasured = tuple(n for n in info if n not in series and n not in problems)
@@ -718,8 +739,73 @@ def load_campaign(path: str | Path) -> Campaign:
         structures=structures,
         computed_paths=(computed,) if computed is not None else (),
         computed_patterns=tuple(str(base / p) for p in patterns),
+        reduction=reduction,
         ignored_columns=ignored,
     )
+
+
+def reduce_scans_file(path: Path, period_m: float):
+    """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases."""
+    from .errors import RowValueError
+    from .fringes import read_scans, reduce_table
+
+    try:
+        df = read_scans(path)
+    except RowValueError as exc:  # a bad cell in a raw-scan file is reported as structural
+        raise InputError(str(exc)) from None
+    return reduce_table(df, period_m, source=Path(path).name)
+
+
+def series_from_reduction(reduction):
+    """Series (with full phase covariance and relative visibility) from reduced phases."""
+    t = reduction.table
+    vis = reduction.relative_visibility()
+    kept = t["phase_rad"].notna().to_numpy()
+    series: dict[str, list[SeriesData]] = {}
+    problems: dict[str, str] = {}
+    notes: dict[str, list[str]] = {}
+    names = list(dict.fromkeys(str(c) for c in t["compound"]))
+    for msg in reduction.messages:
+        for name in names:
+            if f"({name}, " in msg:
+                notes.setdefault(name, []).append(msg)
+    keys = list(dict.fromkeys(zip(t["compound"].astype(str), t["temperature_K"], strict=True)))
+    for name, temp in keys:
+        sel = ((t["compound"].astype(str) == name) & (t["temperature_K"] == temp)).to_numpy()
+        rows = sel & kept
+        if name in problems:
+            continue
+        volts = t["voltage_V"].to_numpy()[rows]
+        if np.unique(np.round(volts**2, 9)).size < 2:
+            problems[name] = (
+                f"{reduction.source}: series {name} @ {temp:g} K expected at least two different "
+                f"voltages with usable scans, found {np.unique(np.abs(volts)).size}"
+            )
+            series.pop(name, None)
+            continue
+        cov = reduction.covariance.get((name, temp))
+        if cov is None:
+            cov = reduction.covariance.get((t["compound"][sel].iloc[0], temp))
+        v = t["velocity_m_s"].to_numpy()[rows]
+        series.setdefault(name, []).append(
+            SeriesData(
+                compound=name,
+                temperature=Measured(float(temp), float(t["temperature_err_K"][rows].mean())),
+                velocity=Measured(float(v.mean()), float(t["velocity_err_m_s"][rows].mean())),
+                velocities=v.astype(float),
+                spreads=t["velocity_spread_m_s"].to_numpy()[rows].astype(float),
+                voltages=volts.astype(float),
+                values=t["phase_rad"].to_numpy()[rows].astype(float),
+                errors=t["phase_err_rad"].to_numpy()[rows].astype(float),
+                lines=tuple(str(x) for x in t["scan"].to_numpy()[rows]),
+                covariance=np.asarray(cov, dtype=float),
+                visibility=vis["relative_visibility"].to_numpy()[rows].astype(float),
+                visibility_err=vis["relative_visibility_err"].to_numpy()[rows].astype(float),
+            )
+        )
+    for name in series:
+        series[name].sort(key=lambda s: s.temperature.value)
+    return series, problems, notes
 
 
 def _load_structures(base: Path, doc: dict, fname: str) -> dict[str, Any]:

@@ -53,6 +53,33 @@ def analyze(
 
 
 @app.command()
+def reduce(
+    campaign: Path = typer.Argument(..., help="campaign.toml with [data] scans"),
+    out: Path = typer.Option(Path("phases.csv"), "--out", "-o", help="phases CSV to write"),
+):
+    """Reduce raw fringe scans to drift-corrected phases (one row per non-reference scan)."""
+    from .campaign import load_campaign
+    from .fringes import write_phases
+
+    try:
+        camp = load_campaign(campaign)
+        if camp.reduction is None:
+            raise PolarbeamError(
+                f"{campaign.name} [data] scans: expected a raw-scan file to reduce, found none"
+            )
+    except PolarbeamError as exc:
+        _fail(exc)
+    write_phases(camp.reduction, out)
+    t = camp.reduction.table
+    kept = int(t["phase_rad"].notna().sum())
+    typer.echo(
+        f"{kept} of {len(t)} scans reduced ({len(t) - kept} dropped, flagged); written to {out}"
+    )
+    for msg in camp.reduction.messages:
+        typer.echo(f"note: {msg}", err=True)
+
+
+@app.command()
 def estimate(
     input: Path = typer.Argument(..., help="CSV with compound, smiles (+ any columns) or an SDF"),
     out: Path = typer.Option(..., "--out", "-o", help="output CSV"),
@@ -217,11 +244,14 @@ def simulate(
 
 
 @app.command()
-def demo(out: Path = typer.Option(Path("examples/demo"), "--out", "-o")):
+def demo(
+    out: Path = typer.Option(Path("examples/demo"), "--out", "-o"),
+    scans: bool = typer.Option(False, "--scans", help="the raw-scan variant instead"),
+):
     """Rewrite the invented demo campaign (deterministic)."""
-    from .demo import write_demo
+    from .demo import write_demo, write_demo_scans
 
-    write_demo(out)
+    (write_demo_scans if scans else write_demo)(out)
     typer.echo(f"demo campaign written to {out}/campaign.toml")
 
 

@@ -13,7 +13,7 @@ from pathlib import Path
 from .atomic import write_text_atomic
 from .simulate import CompoundTruth, InstrumentSpec, simulate_campaign
 
-__all__ = ["DEMO_COMPOUNDS", "DEMO_COMPUTED", "write_demo"]
+__all__ = ["DEMO_COMPOUNDS", "DEMO_COMPUTED", "write_demo", "write_demo_scans"]
 
 TEMPS = (340.0, 420.0, 510.0, 620.0)
 
@@ -66,3 +66,30 @@ def write_demo(out_dir: str | Path = "examples/demo", seed: int = 2027) -> Path:
     write_text_atomic(out / "campaign.toml", toml)
     write_text_atomic(out / "computed.csv", DEMO_COMPUTED)
     return out
+
+
+def write_demo_scans(out_dir: str | Path = "examples/demo_scans", seed: int = 2028) -> Path:
+    """The raw-scan variant of the demo: grating scans with interleaved references."""
+    from .simulate import simulate_scan_campaign
+
+    temps = (360.0, 480.0, 600.0)
+    comps = [
+        CompoundTruth(c.name, c.mass_u, c.alpha_A3, c.dipole_D, temps, c.smiles, c.mass_err_u)
+        for c in DEMO_COMPOUNDS[:3]
+    ]
+    truth = simulate_scan_campaign(
+        out_dir,
+        comps,
+        spec=InstrumentSpec.talbot_lau("two-wire", rel=0.004),
+        seed=seed,
+        velocity_m_s=210.0,
+        velocity_err_frac=0.006,
+        spread_frac=0.12,
+        n_voltages=6,
+        scans_per_voltage=2,
+        max_signal=3.0,
+        signal_per_bin=120.0,
+        temperature_err_K=2.0,
+        title="Demo campaign, raw-scan variant: grating scans of three sample codes",
+    )
+    return truth.path

@@ -217,7 +217,7 @@ def _join(message: str, note: str) -> str:
 
 def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float):
     st = c.settings
-    warnings: list[str] = []
+    warnings: list[str] = list(cd.notes)
     mass_ratio = (
         ufloat(1.0, cd.mass.error / cd.mass.value, tag=f"mass: {cd.name}")
         if cd.mass.error > 0
@@ -278,6 +278,8 @@ def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float
                 ),
                 error_scale=fit.error_scale,
                 warnings=tuple(sw),
+                visibility=s.visibility,
+                visibility_err=s.visibility_err,
             )
         )
         temps.append(
@@ -445,4 +447,8 @@ def analyze(path: str | Path, out: str | Path | None = None) -> CampaignResult:
     result = computed_comparison(campaign, analyze_campaign(campaign))
     if out is not None:
         result.to_report(out)
+        if campaign.reduction is not None:  # the reduced phases, reusable as a shifts file
+            from .fringes import write_phases
+
+            write_phases(campaign.reduction, Path(out) / "phases.csv")
     return result

@@ -93,6 +93,8 @@ class SeriesResult:
     error_scale: float = 1.0
     warnings: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)
+    visibility: np.ndarray | None = None  # relative to the zero-field references (raw scans)
+    visibility_err: np.ndarray | None = None
 
     @property
     def n_points(self) -> int:
@@ -130,15 +132,27 @@ class SeriesResult:
             "velocity_spread_m_s": self.velocity_spread_m_s,
             "min_velocity_contrast": float(np.min(self.modulus)) if self.modulus.size else 1.0,
             "max_abs_voltage_V": float(np.max(np.abs(self.voltages))),
+            "relative_visibility_at_max_V": self._visibility_at_max(),
             **self.extra,
         }
 
+    def _visibility_at_max(self) -> float | None:
+        if self.visibility is None or not self.visibility.size:
+            return None
+        vmax = np.max(np.abs(self.voltages))
+        sel = np.abs(self.voltages) == vmax
+        return float(np.nanmean(self.visibility[sel]))
+
     def summary(self) -> dict[str, Any]:
+        vis = self.visibility
+        verr = self.visibility_err
         return {
             "compound": self.compound,
             "temperature_K": self.temperature_K,
             "temperature_err_K": self.temperature_err_K,
             "n_points": self.n_points,
+            "relative_visibility": None if vis is None else [_num(v) for v in vis],
+            "relative_visibility_err": None if verr is None else [_num(v) for v in verr],
             "alpha_eff": _alpha_block(self.alpha_eff),
             "offset": self.offset,
             "chi2": self.chi2,
