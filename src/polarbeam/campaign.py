@@ -81,7 +81,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "field_duration": "s",
         "waveform": None,
     },
-    "data": {"shifts": None, "compounds": None},
+    "data": {"shifts": None, "compounds": None, "recoil": None},
     "analysis": {
         "velocity_nodes": None,
         "fit_offset": None,
@@ -91,6 +91,9 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "orientation_warning": None,
     },
 }
+
+# top-level arrays of tables ([[laser]]): their keys are checked by polarbeam.recoil
+_ARRAY_TABLES = ("laser",)
 
 _LAYOUT_KEYS = {
     "talbot-lau": {"grating_period", "grating_positions"},
@@ -207,6 +210,7 @@ class Campaign:
     field_map: tuple[tuple[float, ...], tuple[float, ...]] | None = None
     waveform: tuple[tuple[float, ...], tuple[float, ...]] | None = None
     raw: dict[str, Any] = field(default_factory=dict)
+    recoil: Any = None  # polarbeam.recoil.RecoilData when [data] recoil is given
 
     @property
     def observable(self) -> str:
@@ -283,11 +287,11 @@ def build_deflector(c: Campaign, v: dict[str, float]):
 
 
 def _check_keys(doc: dict, fname: str) -> None:
-    unknown = [k for k in doc if k not in _SCHEMA]
+    unknown = [k for k in doc if k not in _SCHEMA and k not in _ARRAY_TABLES]
     if unknown:
         raise InputError(
             f"{fname}: unknown table(s) {', '.join(repr(k) for k in unknown)}; expected "
-            f"{', '.join(_SCHEMA)}"
+            f"{', '.join([*_SCHEMA, *(f'[[{t}]]' for t in _ARRAY_TABLES)])}"
         )
     for table, keys in _SCHEMA.items():
         sub = doc.get(table, {})
@@ -338,6 +342,8 @@ def _stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, 
         else:
             stated[f"instrument.{k}"] = quantity("instrument", k, raw)
 
+    if model == "none":  # no [deflector]: a photon-recoil-only campaign (polarbeam.recoil)
+        return stated
     timing = layout == "time-domain"
     req_m, opt_m = _MODEL_KEYS[model]
     req_s, opt_s = _TIME_KEYS if timing else _SPATIAL_KEYS
@@ -549,7 +555,13 @@ def load_campaign(path: str | Path) -> Campaign:
     inst = doc.get("instrument", {})
     defl = doc.get("deflector", {})
     layout = _require_str(inst, "layout", f"{fname} [instrument]", LAYOUTS)
-    model = _require_str(defl, "model", f"{fname} [deflector]", DEFLECTOR_MODELS)
+    data = doc.get("data", {})
+    # photon recoil (polarbeam.recoil): [data] recoil makes shifts, and then [deflector], optional
+    has_recoil = "recoil" in data or "laser" in doc
+    if has_recoil and "shifts" not in data and "deflector" not in doc:
+        model = "none"
+    else:
+        model = _require_str(defl, "model", f"{fname} [deflector]", DEFLECTOR_MODELS)
     title = doc.get("campaign", {}).get("title", path.stem)
     if not isinstance(title, str):
         raise InputError(f"{fname} [campaign] title: expected a string, found {title!r}")
@@ -567,10 +579,15 @@ def load_campaign(path: str | Path) -> Campaign:
         if not isinstance(wf, str):
             raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
         waveform = _read_profile((base / wf).resolve(), ("t_s", "amplitude"), "waveform")
-    shifts_path = _data_path(base, doc, "shifts", fname)
+    shifts_path = _data_path(base, doc, "shifts", fname, required=not has_recoil)
     compounds_path = _data_path(base, doc, "compounds", fname)
     info = _load_compounds(compounds_path)
-    series, problems = _load_shifts(shifts_path, layout)
+    series, problems = _load_shifts(shifts_path, layout) if shifts_path else ({}, {})
+    recoil = None
+    if has_recoil:
+        from .recoil import load_recoil
+
+        recoil = load_recoil(doc, path, layout, stated, info, compounds_path.name)
 
     camp = Campaign(
         path=path,
@@ -586,7 +603,7 @@ def load_campaign(path: str | Path) -> Campaign:
     )
     # validate the nominal geometry once: bad geometry is structural
     try:
-        camp.build()
+        camp.build() if model != "none" else build_layout(layout, camp.nominal())
     except QuantityError:
         raise
     except InputError as exc:
@@ -616,7 +633,10 @@ def load_campaign(path: str | Path) -> Campaign:
                 entry.get("dipole_known"),
             )
         )
-    unmeasured = tuple(n for n in info if n not in series and n not in problems)
+    in_recoil = set(recoil.compound_names) if recoil is not None else set()
+    unmeasured = tuple(
+        n for n in info if n not in series and n not in problems and n not in in_recoil
+    )
     return Campaign(
         path=path,
         title=title,
@@ -629,6 +649,7 @@ def load_campaign(path: str | Path) -> Campaign:
         field_map=field_map,
         waveform=waveform,
         raw=doc,
+        recoil=recoil,
     )
 
 

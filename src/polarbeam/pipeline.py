@@ -251,15 +251,23 @@ def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float
 
 def analyze_campaign(c: Campaign) -> CampaignResult:
     """Analyse every compound of a loaded campaign."""
-    ctx = build_context(c)
-    compounds = tuple(analyze_compound(cd, c, ctx) for cd in c.compounds)
-    return make_result(c, compounds, ctx)
+    if c.model == "none":  # no deflector: a photon-recoil-only campaign
+        ctx, compounds = None, ()
+    else:
+        ctx = build_context(c)
+        compounds = tuple(analyze_compound(cd, c, ctx) for cd in c.compounds)
+    result = make_result(c, compounds, ctx)
+    if c.recoil is not None:  # photon-recoil cross-sections ([data] recoil, polarbeam.recoil)
+        from .recoil import analyze_recoil, with_recoil
+
+        result = with_recoil(result, analyze_recoil(c))
+    return result
 
 
-def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
+def make_result(c: Campaign, compounds, ctx: Context | None) -> CampaignResult:
+    sens = ctx.sensitivities if ctx is not None else {}
     stated = {
-        k: {"value": m.value, "error": m.error, "dlnC_dp": ctx.sensitivities.get(k)}
-        for k, m in c.stated.items()
+        k: {"value": m.value, "error": m.error, "dlnC_dp": sens.get(k)} for k, m in c.stated.items()
     }
     notes = []
     if c.layout == "time-domain":

@@ -72,6 +72,11 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
         json.dumps(_clean(result.summary()), indent=1, ensure_ascii=False, allow_nan=False) + "\n",
     )
     write_text_atomic(out / "report.md", render_markdown(result))
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.recoil)
+    if recoil is not None:
+        from .recoil import write_recoil_results
+
+        write_recoil_results(recoil, out)
 
 
 def _fmt(v, e) -> str:
@@ -86,6 +91,11 @@ def _md(s: str) -> str:
 
 def render_markdown(result: CampaignResult) -> str:
     """The human-readable report: summary table, per-compound fits and budgets, cautions."""
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.recoil)
+    if recoil is not None and not result.compounds:
+        from .recoil import render_recoil_only
+
+        return render_recoil_only(result)
     obs = "phase (rad)" if result.layout in ("talbot-lau", "time-domain") else "shift (m)"
     lines = [
         f"# {_md(result.title)}",
@@ -155,6 +165,8 @@ def render_markdown(result: CampaignResult) -> str:
             lines += [f"| {_md(k)} | {v:.1%} |" for k, v in budget.items()]
         if c.warnings:
             lines += ["", "Warnings:", ""] + [f"- {_md(w)}" for w in c.warnings]
+    if recoil is not None:
+        lines += ["", *recoil.markdown_lines()]
     lines += [
         "",
         "## Notes on the method",
@@ -173,6 +185,9 @@ def render_markdown(result: CampaignResult) -> str:
 
 def render_terminal(result: CampaignResult) -> str:
     """A compact fixed-width table for the terminal."""
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.recoil)
+    if recoil is not None and not result.compounds:
+        return "\n".join([result.title, *recoil.terminal_lines()])
     head = f"{'compound':<24} {'α (Å³)':>18} {'μ (D)':>16}  status"
     out = [result.title, head, "-" * len(head)]
     for c in result.compounds:
@@ -186,4 +201,6 @@ def render_terminal(result: CampaignResult) -> str:
             d = "—"
         name = c.compound if len(c.compound) <= 24 else c.compound[:23] + "…"
         out.append(f"{name:<24} {a:>18} {d:>16}  {c.status}")
+    if recoil is not None:
+        out += ["", *recoil.terminal_lines()]
     return "\n".join(out)
