@@ -1193,7 +1193,8 @@ def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCom
         if fit.ndof > 0 and not fit_q and stats.chi2.sf(chi_l, nu_l) < 0.01:
             warnings.append(
                 f"{name}: reduced χ² = {fit.reduced_chi2:.2f} (p < 0.01); the stated point errors "
-                "may be too small"
+                "may be too small, or a stated input (laser position, velocity) off by more than "
+                "its error"
             )
         if sigma_u.nominal_value <= 2 * sigma_u.std_dev:
             warnings.append(f"{name}: σ is not significant (less than 2 standard errors)")
@@ -1210,7 +1211,8 @@ def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCom
             )
     if fit_q and ndof > 0 and stats.chi2.sf(chi2, ndof) < 0.01:
         warnings.append(
-            f"reduced χ² = {chi2 / ndof:.2f} (p < 0.01); the stated point errors may be too small"
+            f"reduced χ² = {chi2 / ndof:.2f} (p < 0.01); the stated point errors may be too "
+            "small, or a stated input (laser position, velocity) off by more than its error"
         )
     if fit_q:
         q_u = fit_u[nl]
@@ -1394,7 +1396,8 @@ class RecoilResult:
                 out += [
                     "",
                     f"Laser {_md(f.laser)} ({f.wavelength_m * 1e9:g} nm): "
-                    f"σ = {_fmt(f.cross_section_cm2, f.cross_section_err_cm2)} cm²",
+                    f"σ = ({_fmt(f.cross_section_cm2 / 1e-16, f.cross_section_err_cm2 / 1e-16)})"
+                    "·10⁻¹⁶ cm²",
                     "",
                     "| E (J) | phase (rad) | model | pull | visibility ratio | model | pull |",
                     "|---|---|---|---|---|---|---|",
@@ -1415,9 +1418,16 @@ class RecoilResult:
                     )
                 budget = variance_budget(f.cross_section)
                 if budget:
+                    shown = {k: v for k, v in budget.items() if v >= 5e-4}
                     out += ["", "Uncertainty budget of σ (share of variance):", ""]
                     out += ["| input | share |", "|---|---|"]
-                    out += [f"| {_md(k)} | {v:.1%} |" for k, v in budget.items()]
+                    out += [f"| {_md(k)} | {v:.1%} |" for k, v in shown.items()]
+                    if len(shown) < len(budget):
+                        rest = sum(v for k, v in budget.items() if k not in shown)
+                        out.append(
+                            f"| {len(budget) - len(shown)} more inputs, each < 0.05 % | "
+                            f"{rest:.2%} |"
+                        )
             if c.warnings:
                 out += ["", "Warnings:", ""] + [f"- {_md(w)}" for w in c.warnings]
         out += [
