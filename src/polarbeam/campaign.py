@@ -583,11 +583,6 @@ def load_campaign(path: str | Path) -> Campaign:
     compounds_path = _data_path(base, doc, "compounds", fname)
     info = _load_compounds(compounds_path)
     series, problems = _load_shifts(shifts_path, layout) if shifts_path else ({}, {})
-    recoil = None
-    if has_recoil:
-        from .recoil import load_recoil
-
-        recoil = load_recoil(doc, path, layout, stated, info, compounds_path.name)
 
     camp = Campaign(
         path=path,
@@ -608,6 +603,11 @@ def load_campaign(path: str | Path) -> Campaign:
         raise
     except InputError as exc:
         raise InputError(f"{fname} {exc}") from None
+    recoil = None
+    if has_recoil:  # [[laser]] tables and recoil.csv (polarbeam.recoil)
+        from .recoil import load_recoil
+
+        recoil = load_recoil(doc, path, layout, stated, info, compounds_path.name)
 
     compounds = []
     measured_names = list(dict.fromkeys(list(series) + list(problems)))

@@ -251,8 +251,11 @@ def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float
 
 def analyze_campaign(c: Campaign) -> CampaignResult:
     """Analyse every compound of a loaded campaign."""
-    if c.model == "none":  # no deflector: a photon-recoil-only campaign
-        ctx, compounds = None, ()
+    if c.model == "none":  # no deflector: a photon-recoil-only campaign (polarbeam.recoil)
+        from .campaign import build_layout
+
+        ctx = Context(build_layout(c.layout, c.nominal()), None, math.nan, 1.0, {}, None)
+        compounds = ()
     else:
         ctx = build_context(c)
         compounds = tuple(analyze_compound(cd, c, ctx) for cd in c.compounds)
@@ -264,10 +267,10 @@ def analyze_campaign(c: Campaign) -> CampaignResult:
     return result
 
 
-def make_result(c: Campaign, compounds, ctx: Context | None) -> CampaignResult:
-    sens = ctx.sensitivities if ctx is not None else {}
+def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
     stated = {
-        k: {"value": m.value, "error": m.error, "dlnC_dp": sens.get(k)} for k, m in c.stated.items()
+        k: {"value": m.value, "error": m.error, "dlnC_dp": ctx.sensitivities.get(k)}
+        for k, m in c.stated.items()
     }
     notes = []
     if c.layout == "time-domain":
