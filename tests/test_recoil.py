@@ -639,3 +639,31 @@ def test_example_is_reproducible(tmp_path):
     mod.main(tmp_path)
     for name in ("campaign.toml", "compounds.csv", "recoil.csv"):
         assert (tmp_path / name).read_text() == (EXAMPLE / name).read_text(), name
+
+
+def test_birge_scaling_and_html(camp):
+    base = _sigmas(analyze(camp))
+    csv = camp.parent / "recoil.csv"
+    lines = csv.read_text().splitlines()
+    head = lines[0].split(",")
+    cols = [head.index("phase_err_rad"), head.index("visibility_ratio_err")]
+    for n in range(1, len(lines)):
+        cells = lines[n].split(",")
+        for col in cols:
+            cells[col] = f"{float(cells[col]) / 3:.6g}"  # errors understated three times
+        lines[n] = ",".join(cells)
+    csv.write_text("\n".join(lines) + "\n")
+    plain = analyze(camp)
+    assert all("reduced χ²" in c.message for c in plain.recoil.compounds)
+    _edit(camp, "[data]", '[analysis]\nscale_errors = "birge"\n\n[data]')
+    res = analyze(camp)
+    for c in res.recoil.compounds:
+        assert "scaled by √(χ²/ν)" in c.message
+    scaled = _sigmas(res)
+    for key, s in _sigmas(plain).items():
+        assert scaled[key].nominal_value == pytest.approx(s.nominal_value, rel=1e-9)
+        assert scaled[key].std_dev > s.std_dev
+        # the noise was drawn at the original errors: Birge restores about the original error
+        assert scaled[key].std_dev == pytest.approx(base[key].std_dev, rel=0.5)
+    html = res.recoil._repr_html_()
+    assert "mol-one" in html and "<table>" in html
