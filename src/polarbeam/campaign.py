@@ -88,6 +88,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "structures": None,
         "computed": None,
         "computed_outputs": None,
+        "recoil": None,
     },
     "analysis": {
         "velocity_nodes": None,
@@ -101,6 +102,9 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "conformer_seed": None,
     },
 }
+
+# top-level arrays of tables ([[laser]]): their keys are checked by polarbeam.recoil
+_ARRAY_TABLES = ("laser",)
 
 _LAYOUT_KEYS = {
     "talbot-lau": {"grating_period", "grating_positions"},
@@ -230,6 +234,7 @@ class Campaign:
     computed_patterns: tuple[str, ...] = ()
     reduction: Any = None  # fringes.ReducedPhases when the campaign starts from raw scans
     ignored_columns: tuple[str, ...] = ()  # shifts.csv columns the layout does not use
+    recoil: Any = None  # polarbeam.recoil.RecoilData when [data] recoil is given
 
     @property
     def observable(self) -> str:
@@ -308,11 +313,11 @@ def build_deflector(c: Campaign, v: dict[str, float]):
 
 
 def _check_keys(doc: dict, fname: str) -> None:
-    unknown = [k for k in doc if k not in _SCHEMA]
+    unknown = [k for k in doc if k not in _SCHEMA and k not in _ARRAY_TABLES]
     if unknown:
         raise InputError(
             f"{fname}: unknown table(s) {', '.join(repr(k) for k in unknown)}; expected "
-            f"{', '.join(_SCHEMA)}"
+            f"{', '.join([*_SCHEMA, *(f'[[{t}]]' for t in _ARRAY_TABLES)])}"
         )
     for table, keys in _SCHEMA.items():
         sub = doc.get(table, {})
@@ -363,6 +368,8 @@ def _stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, 
         else:
             stated[f"instrument.{k}"] = quantity("instrument", k, raw)
 
+    if model == "none":  # no [deflector]: a photon-recoil-only campaign (polarbeam.recoil)
+        return stated
     timing = layout == "time-domain"
     req_m, opt_m = _MODEL_KEYS[model]
     req_s, opt_s = _TIME_KEYS if timing else _SPATIAL_KEYS
@@ -627,7 +634,13 @@ def load_campaign(path: str | Path) -> Campaign:
     inst = doc.get("instrument", {})
     defl = doc.get("deflector", {})
     layout = _require_str(inst, "layout", f"{fname} [instrument]", LAYOUTS)
-    model = _require_str(defl, "model", f"{fname} [deflector]", DEFLECTOR_MODELS)
+    data = doc.get("data", {})
+    # photon recoil (polarbeam.recoil): [data] recoil makes shifts, and then [deflector], optional
+    has_recoil = "recoil" in data or "laser" in doc
+    if has_recoil and not ({"shifts", "scans"} & set(data)) and "deflector" not in doc:
+        model = "none"
+    else:
+        model = _require_str(defl, "model", f"{fname} [deflector]", DEFLECTOR_MODELS)
     title = doc.get("campaign", {}).get("title", path.stem)
     if not isinstance(title, str):
         raise InputError(f"{fname} [campaign] title: expected a string, found {title!r}")
@@ -649,6 +662,7 @@ def load_campaign(path: str | Path) -> Campaign:
     compounds_path = _data_path(base, doc, "compounds", fname)
     reduction = None
     notes: dict[str, list[str]] = {}
+    ignored: tuple[str, ...] = ()
     if "scans" in data:
         if "shifts" in data:
             raise InputError(f"{fname} [data]: expected either 'shifts' or 'scans', found both")
@@ -661,11 +675,13 @@ def load_campaign(path: str | Path) -> Campaign:
         info = _load_compounds(compounds_path)
         reduction = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
         series, problems, notes = series_from_reduction(reduction)
-        ignored: tuple[str, ...] = ()
     else:
-        shifts_path = _data_path(base, doc, "shifts", fname)
+        shifts_path = _data_path(base, doc, "shifts", fname, required=not has_recoil)
         info = _load_compounds(compounds_path)
-        series, problems, ignored = _load_shifts(shifts_path, layout)
+        if shifts_path is not None:
+            series, problems, ignored = _load_shifts(shifts_path, layout)
+        else:
+            series, problems = {}, {}
 
     camp = Campaign(
         path=path,
@@ -681,11 +697,16 @@ def load_campaign(path: str | Path) -> Campaign:
     )
     # validate the nominal geometry once: bad geometry is structural
     try:
-        camp.build()
+        camp.build() if model != "none" else build_layout(layout, camp.nominal())
     except QuantityError:
         raise
     except InputError as exc:
         raise InputError(f"{fname} {exc}") from None
+    recoil = None
+    if has_recoil:  # [[laser]] tables and recoil.csv (polarbeam.recoil)
+        from .recoil import load_recoil
+
+        recoil = load_recoil(doc, path, layout, stated, info, compounds_path.name)
 
     compounds = []
     measured_names = list(dict.fromkeys(list(series) + list(problems)))
@@ -712,7 +733,10 @@ def load_campaign(path: str | Path) -> Campaign:
                 tuple(notes.get(name, ())),
             )
         )
-    unmeasured = tuple(n for n in info if n not in series and n not in problems)
+    in_recoil = set(recoil.compound_names) if recoil is not None else set()
+    unmeasured = tuple(
+        n for n in info if n not in series and n not in problems and n not in in_recoil
+    )
     structures = _load_structures(base, doc, fname)
     computed = _data_path(base, doc, "computed", fname, required=False)
     if computed is not None and not computed.is_file():
@@ -741,6 +765,7 @@ def load_campaign(path: str | Path) -> Campaign:
         computed_patterns=tuple(str(base / p) for p in patterns),
         reduction=reduction,
         ignored_columns=ignored,
+        recoil=recoil,
     )
 
 

@@ -46,9 +46,14 @@ def analyze(
         typer.echo(
             f"results written to {out}/ (series.csv, properties.csv, results.json, report.md)"
         )
+        if getattr(result, "recoil", None) is not None:  # photon recoil (polarbeam.recoil)
+            typer.echo(f"photon-recoil cross-sections written to {out}/recoil.csv")
     for c in result.compounds:
         if c.status == "failed":
             typer.echo(f"failed: {c.compound}: {c.message}", err=True)
+    for c in getattr(getattr(result, "recoil", None), "compounds", ()):
+        if c.status == "failed":
+            typer.echo(f"failed (recoil): {c.compound}: {c.message}", err=True)
     raise typer.Exit(result.exit_code)
 
 

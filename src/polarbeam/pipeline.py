@@ -360,9 +360,20 @@ def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float
 
 def analyze_campaign(c: Campaign) -> CampaignResult:
     """Analyse every compound of a loaded campaign."""
-    ctx = build_context(c)
-    compounds = tuple(analyze_compound(cd, c, ctx) for cd in c.compounds)
-    return make_result(c, compounds, ctx)
+    if c.model == "none":  # no deflector: a photon-recoil-only campaign (polarbeam.recoil)
+        from .campaign import build_layout
+
+        ctx = Context(build_layout(c.layout, c.nominal()), None, math.nan, 1.0, {}, None)
+        compounds = ()
+    else:
+        ctx = build_context(c)
+        compounds = tuple(analyze_compound(cd, c, ctx) for cd in c.compounds)
+    result = make_result(c, compounds, ctx)
+    if c.recoil is not None:  # photon-recoil cross-sections ([data] recoil, polarbeam.recoil)
+        from .recoil import analyze_recoil, with_recoil
+
+        result = with_recoil(result, analyze_recoil(c))
+    return result
 
 
 def computed_comparison(c: Campaign, result: CampaignResult) -> CampaignResult:

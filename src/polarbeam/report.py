@@ -76,6 +76,11 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
     if result.series_comparison is not None and len(result.series_comparison):
         write_text_atomic(out / "comparison_series.csv", _csv(result.series_comparison.copy(), ()))
     write_text_atomic(out / "report.md", render_markdown(result))
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.recoil)
+    if recoil is not None:
+        from .recoil import write_recoil_results
+
+        write_recoil_results(recoil, out)
 
 
 def _fmt(v, e) -> str:
@@ -90,6 +95,11 @@ def _md(s: str) -> str:
 
 def render_markdown(result: CampaignResult) -> str:
     """The human-readable report: summary table, per-compound fits and budgets, cautions."""
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.recoil)
+    if recoil is not None and not result.compounds:
+        from .recoil import render_recoil_only
+
+        return render_recoil_only(result)
     obs = "phase (rad)" if result.layout in ("talbot-lau", "time-domain") else "shift (m)"
     lines = [
         f"# {_md(result.title)}",
@@ -167,6 +177,8 @@ def render_markdown(result: CampaignResult) -> str:
         if c.warnings:
             lines += ["", "Warnings:", ""] + [f"- {_md(w)}" for w in c.warnings]
     lines += _parity_lines(result)
+    if recoil is not None:
+        lines += ["", *recoil.markdown_lines()]
     lines += [
         "",
         "## Notes on the method",
@@ -263,6 +275,9 @@ def _crosscheck_lines(c) -> list[str]:
 
 def render_terminal(result: CampaignResult) -> str:
     """A compact fixed-width table for the terminal."""
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.recoil)
+    if recoil is not None and not result.compounds:
+        return "\n".join([result.title, *recoil.terminal_lines()])
     head = f"{'compound':<24} {'α (Å³)':>18} {'μ (D)':>16}  status"
     out = [result.title, head, "-" * len(head)]
     for c in result.compounds:
@@ -276,4 +291,6 @@ def render_terminal(result: CampaignResult) -> str:
             d = "—"
         name = c.compound if len(c.compound) <= 24 else c.compound[:23] + "…"
         out.append(f"{name:<24} {a:>18} {d:>16}  {c.status}")
+    if recoil is not None:
+        out += ["", *recoil.terminal_lines()]
     return "\n".join(out)
