@@ -80,7 +80,7 @@ _S = ["", "", "", "O", "Cl", "F", "C#N", "[N+](=O)[O-]", "C(=O)C", "OC"]
 
 _BANNED = [
     Chem.MolFromSmarts("[NX3][CX4][CX3](=O)[OX2H1,OX1-]"),  # alpha-amino acid motif
-    Chem.MolFromSmiles("c1ccc2cc3ccccc3cc2c1"),  # anthracene core
+    Chem.MolFromSmiles("c1ccc2cc3ccccc3cc2c1"),  # linear three-ring acene core (excluded list)
 ]
 
 

@@ -5,7 +5,7 @@ transverse force F(t) is Δx = (1/m) ∫ w(t) F(t) dt with w(t) = (t − t1)·T2
 w(t) = t3 − t on [t2, t3].  It is the second difference of the trajectory sampled at the pulses,
 Δx = x(t3) − (1 + T2/T1)·x(t2) + (T2/T1)·x(t1), which is blind to position and velocity; for
 T1 = T2 = T and a uniform acceleration a it is a T², the gravity phase k a T² of the three-pulse
-light-pulse interferometer (Kasevich & Chu, Phys. Rev. Lett. 67, 181 (1991); from memory).
+light-pulse atom interferometer (Phys. Rev. Lett. 67, 181 (1991); from memory).
 """
 
 from __future__ import annotations
