@@ -14,4 +14,33 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__"]
+__all__ = [
+    "CampaignResult",
+    "CompoundResult",
+    "PolarbeamError",
+    "SeriesResult",
+    "__version__",
+    "analyze",
+    "load_campaign",
+]
+
+
+def __getattr__(name: str):
+    """Lazy public API (keeps ``import polarbeam`` light)."""
+    if name == "analyze":
+        from .pipeline import analyze
+
+        return analyze
+    if name == "load_campaign":
+        from .campaign import load_campaign
+
+        return load_campaign
+    if name in ("CampaignResult", "CompoundResult", "SeriesResult"):
+        from . import results
+
+        return getattr(results, name)
+    if name == "PolarbeamError":
+        from .errors import PolarbeamError
+
+        return PolarbeamError
+    raise AttributeError(f"module 'polarbeam' has no attribute {name!r}")
