@@ -37,12 +37,19 @@ import numpy as np
 from .constants import AMU, alpha_si_from_a3, si_from_debye
 from .deflectors import (
     DEFLECTOR_MODELS,
+    UNCALIBRATED_FIELD_FACTOR,
     FieldMapDeflector,
     SwitchedField,
     TwoWireDeflector,
     UniformDeflector,
 )
 from .errors import CompoundError, InputError, QuantityError
+from .fieldmodel import (
+    NUMERICAL_KEYS,
+    numerical_deflector,
+    numerical_error_inputs,
+    numerical_stated_inputs,
+)
 from .layouts import LAYOUTS, BeamProfile, TalbotLau, TimeDomain
 from .quantities import Measured, parse_quantity
 from .tables import Table, read_table
@@ -89,8 +96,13 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "upper_limit_cl": None,
         "dipole_significance": None,
         "orientation_warning": None,
+        "calibration": None,
     },
 }
+# the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
+_SCHEMA["deflector"].update(
+    {k: u for k, u in NUMERICAL_KEYS.items() if k not in _SCHEMA["deflector"]}
+)
 
 _LAYOUT_KEYS = {
     "talbot-lau": {"grating_period", "grating_positions"},
@@ -98,9 +110,10 @@ _LAYOUT_KEYS = {
     "time-domain": {"grating_period", "pulse_times"},
 }
 _MODEL_KEYS = {
-    "uniform": ({"field_factor"}, {"field_per_volt"}),
+    "uniform": (set(), {"field_factor", "field_per_volt"}),  # no field_factor: calibrate
     "two-wire": ({"line_half_spacing", "convex_crossing", "concave_crossing"}, {"beam_height"}),
     "field-map": ({"field_map"}, {"field_scale", "field_per_volt"}),
+    "numerical": (set(), set(NUMERICAL_KEYS)),  # combinations checked in fieldmodel.py
 }
 _SPATIAL_KEYS = ({"entrance"}, {"length"})
 _TIME_KEYS = ({"field_on"}, {"field_duration", "waveform"})
@@ -131,6 +144,7 @@ class AnalysisSettings:
     upper_limit_cl: float = 0.95
     dipole_significance: float = 3.0
     orientation_warning: float = 0.2  # warn when μE/kT exceeds this at the largest field
+    calibration: str = "auto"  # "auto" | "check" | "off": use of reference compounds
 
     def __post_init__(self):
         if self.scale_errors not in ("never", "birge"):
@@ -146,6 +160,11 @@ class AnalysisSettings:
         if not 0.5 < self.upper_limit_cl < 1:
             raise InputError(
                 f"[analysis] upper_limit_cl: expected 0.5 < cl < 1, found {self.upper_limit_cl!r}"
+            )
+        if self.calibration not in ("auto", "check", "off"):
+            raise InputError(
+                "[analysis] calibration: expected one of 'auto', 'check', 'off', "
+                f"found {self.calibration!r}"
             )
         if not self.dipole_significance > 0:
             raise InputError(
@@ -248,7 +267,7 @@ def build_deflector(c: Campaign, v: dict[str, float]):
                 f"found {c.model!r}"
             )
         return SwitchedField(
-            v["deflector.field_factor"],
+            g("deflector.field_factor", UNCALIBRATED_FIELD_FACTOR),
             v["deflector.field_on"],
             g("deflector.field_duration"),
             c.waveform,
@@ -256,7 +275,7 @@ def build_deflector(c: Campaign, v: dict[str, float]):
         )
     if c.model == "uniform":
         return UniformDeflector(
-            v["deflector.field_factor"],
+            g("deflector.field_factor", UNCALIBRATED_FIELD_FACTOR),
             v["deflector.entrance"],
             v["deflector.length"],
             g("deflector.field_per_volt"),
@@ -271,6 +290,8 @@ def build_deflector(c: Campaign, v: dict[str, float]):
             v["deflector.entrance"],
             v["deflector.length"],
         )
+    if c.model == "numerical":
+        return numerical_deflector(c, v)
     z, gz = c.field_map
     return FieldMapDeflector(
         z,
@@ -357,9 +378,13 @@ def _stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, 
     if timing and "field_duration" not in defl and "waveform" not in defl:
         raise InputError(f"{fname} [deflector] field_duration: required (or a waveform)")
     for k, raw in defl.items():
-        if k in ("model", "field_map", "waveform"):
+        if k in ("model", "field_map", "waveform") or (
+            model == "numerical" and k in NUMERICAL_KEYS
+        ):
             continue
         stated[f"deflector.{k}"] = quantity("deflector", k, raw)
+    if model == "numerical":
+        stated.update(numerical_stated_inputs(defl, fname))
     return stated
 
 
@@ -385,6 +410,7 @@ def _settings(doc: dict, fname: str) -> AnalysisSettings:
         "upper_limit_cl": float,
         "dipole_significance": float,
         "orientation_warning": float,
+        "calibration": str,
     }
     kw = {}
     for k, v in a.items():
@@ -591,6 +617,8 @@ def load_campaign(path: str | Path) -> Campaign:
         raise
     except InputError as exc:
         raise InputError(f"{fname} {exc}") from None
+    if model == "numerical":  # the solve's mesh-refinement error becomes a stated input
+        stated = {**stated, **numerical_error_inputs(camp)}
 
     compounds = []
     measured_names = list(dict.fromkeys(list(series) + list(problems)))

@@ -251,6 +251,10 @@ def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float
 
 def analyze_campaign(c: Campaign) -> CampaignResult:
     """Analyse every compound of a loaded campaign."""
+    from .calibration import analyze_with_references, calibration_required
+
+    if calibration_required(c):  # reference compounds, or a uniform g left to calibrate
+        return analyze_with_references(c)
     ctx = build_context(c)
     compounds = tuple(analyze_compound(cd, c, ctx) for cd in c.compounds)
     return make_result(c, compounds, ctx)

@@ -27,7 +27,7 @@ __all__ = [
     "variance_budget",
 ]
 
-STATUS = ("ok", "warning", "failed")
+STATUS = ("ok", "warning", "failed", "reference")  # reference: see calibration.py
 
 
 def variance_budget(value: UFloat | None) -> dict[str, float]:
@@ -287,6 +287,7 @@ class CampaignResult:
     unmeasured: tuple[str, ...] = ()
     notes: tuple[str, ...] = ()
     version: str = __version__
+    calibration: dict[str, Any] | None = None  # reference-compound calibration (calibration.py)
 
     @property
     def series(self) -> pd.DataFrame:
@@ -330,6 +331,7 @@ class CampaignResult:
                 "settings": self.settings,
             },
             "compounds": [c.summary() for c in self.compounds],
+            "calibration": self.calibration,
             "unmeasured_compounds": list(self.unmeasured),
             "notes": list(self.notes),
             "cautions": list(CAUTIONS),
