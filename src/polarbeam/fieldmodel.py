@@ -94,6 +94,7 @@ NUMERICAL_KEYS: dict[str, str | None] = {
     "fringe_thickness": "m",
     "fringe_shield_distance": "m",
     "fringe_shield_aperture": "m",
+    "fringe_grid_spacing": "m",
 }
 
 _TWO_WIRE_LINES = ("line_half_spacing", "convex_crossing", "concave_crossing")
@@ -117,7 +118,12 @@ _ELECTRODE_KEYS = {
     "polygon": {"shape", "name", "potential", "vertices", "offset"},
 }
 #: Keys with an exact value only (they select the grid or a cached end-field solve).
-_EXACT = ("grid_spacing", "fringe_thickness", "fringe_shield_distance", "fringe_shield_aperture")
+_FRINGE_OPTIONS = {  # TOML key -> fieldsolver.fringe_extension_numerical argument
+    "fringe_thickness": "thickness",
+    "fringe_shield_distance": "shield_distance",
+    "fringe_shield_aperture": "shield_aperture",
+    "fringe_grid_spacing": "h",
+}
 #: Length of the plate pair in the numerical end-field solve, in gaps: the per-end extension no
 #: longer depends on the length once it exceeds a few gaps.
 _FRINGE_MODEL_LENGTH = 6.0
@@ -443,12 +449,7 @@ def parse_numerical_spec(
         "none": set(),
         "maxwell": {"fringe_gap"},
         "coefficient": {"fringe_gap", "fringe_coefficient"},
-        "numerical": {
-            "fringe_gap",
-            "fringe_thickness",
-            "fringe_shield_distance",
-            "fringe_shield_aperture",
-        },
+        "numerical": {"fringe_gap", *_FRINGE_OPTIONS},
         "map": {"fringe_map"},
     }[fr]
     fringe_keys = {k for k in NUMERICAL_KEYS if k.startswith("fringe_")}
@@ -469,10 +470,10 @@ def parse_numerical_spec(
     if "fringe_coefficient" in defl:
         q("fringe_coefficient")
     opts = []
-    for k in ("fringe_thickness", "fringe_shield_distance", "fringe_shield_aperture"):
+    for k, arg in _FRINGE_OPTIONS.items():
         if k in defl:
             q(k, exact=True)
-            opts.append((k.removeprefix("fringe_"), stated.pop(f"deflector.{k}").value))
+            opts.append((arg, stated.pop(f"deflector.{k}").value))
     spec_kw["fringe_options"] = tuple(opts)
     if fr == "map":
         if "length" in defl:
@@ -651,7 +652,7 @@ def numerical_model(c) -> NumericalModel:
             box = spec.cross_section(nominal).box
         sol, fld = _solve(spec, nominal, box)
     except InputError as exc:
-        raise InputError(f"{where}: {exc}") from None
+        raise InputError(f"{where}: {exc}{_grid_hint(spec, nominal, box)}") from None
     g0 = float(fld["E_dE_dx_V2_per_m3"])
     h = spec.h(nominal, sol.cross_section.box)
     params = {
@@ -671,8 +672,8 @@ def numerical_model(c) -> NumericalModel:
         except InputError as exc:
             raise InputError(
                 f"{where}: the geometry is not valid within nominal ± max(σ, h/2) of the stated "
-                f"tolerances ({', '.join(params)}): {exc}; reduce the stated errors or move the "
-                "beam away from the electrodes"
+                f"tolerances ({', '.join(params)}): {exc}{_grid_hint(spec, nominal, box)}; or "
+                "reduce the stated errors"
             ) from None
         sens = {k: s / g0 for k, s in tb.sensitivities.items()}
         steps = dict(tb.steps)
@@ -690,7 +691,7 @@ def numerical_model(c) -> NumericalModel:
         method = "stated coefficient: L_eff = L + c·gap"
     elif spec.fringe == "numerical":
         L = min(c.stated["deflector.length"].value, _FRINGE_MODEL_LENGTH * fgap)
-        res = fs.fringe_extension_numerical(L, fgap, solver="direct", **dict(spec.fringe_options))
+        res = _fringe_solve(L, fgap, spec.fringe_options)
         coef, ferr = res.coefficient, res.numerical_error
         method = f"numerical end field: L_eff = L + {coef:.4f}·gap ({res.method})"
     elif spec.fringe == "map":
@@ -700,6 +701,26 @@ def numerical_model(c) -> NumericalModel:
     while len(_MODEL_CACHE) > _MODEL_CACHE_SIZE:
         _MODEL_CACHE.popitem(last=False)
     return model
+
+
+def _grid_hint(spec: NumericalSpec, v: dict[str, float], box) -> str:
+    try:
+        cs = spec.cross_section(v, box)
+    except InputError:
+        return ""
+    h = spec.h(v, cs.box)
+    coarse = h * 2 ** (spec.grid_levels - 1)
+    return (
+        f" (the coarsest of the {spec.grid_levels} refinement grids has h = {coarse * 1e3:.4g} mm"
+        f" for grid_spacing {h * 1e3:.4g} mm: reduce grid_spacing or grid_levels, or keep the beam"
+        " further from the electrodes)"
+    )
+
+
+@lru_cache(maxsize=16)
+def _fringe_solve(length: float, gap: float, options: tuple) -> fs.FringeResult:
+    """The 2-D end-field solve (cached: a few seconds; multigrid above the direct-solver size)."""
+    return fs.fringe_extension_numerical(length, gap, **dict(options))
 
 
 def numerical_deflector(c, v: dict[str, float]) -> NumericalDeflector:
