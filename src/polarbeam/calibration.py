@@ -633,6 +633,27 @@ def _reference_result(r1, ref, known, scale, st, own: ReferenceCalibration | Non
     )
 
 
+def check_calibration_inputs(c) -> None:
+    """Raise :class:`~polarbeam.errors.InputError` when a missing ``field_factor`` cannot be
+    calibrated (no reference compound, or calibration switched off)."""
+    fname = c.path.name
+    mode = c.settings.calibration
+    if not field_factor_missing(c):
+        return
+    if mode != "auto":
+        raise InputError(
+            f"{fname} [deflector] field_factor: missing, and [analysis] calibration = {mode!r} "
+            "does not calibrate it; expected a field_factor or calibration = 'auto' with "
+            "reference compounds"
+        )
+    if not _marked(c):
+        raise InputError(
+            f"{fname} [deflector] field_factor: missing and no measured compound is a reference "
+            "(compounds.csv column 'reference' = true); expected a field_factor, or at least one "
+            "reference compound of known α to calibrate it"
+        )
+
+
 def analyze_with_references(c) -> CampaignResult:
     """Analyse a campaign with reference compounds (``[analysis] calibration``).
 
@@ -641,27 +662,14 @@ def analyze_with_references(c) -> CampaignResult:
     values.  Raises :class:`~polarbeam.errors.InputError` when a ``uniform`` deflector has no
     ``field_factor`` and nothing can calibrate it.
     """
-    fname = c.path.name
+    check_calibration_inputs(c)
     mode = c.settings.calibration
     missing = field_factor_missing(c)
-    if missing and mode != "auto":
-        raise InputError(
-            f"{fname} [deflector] field_factor: missing, and [analysis] calibration = {mode!r} "
-            "does not calibrate it; expected a field_factor or calibration = 'auto' with "
-            "reference compounds"
-        )
-    if missing and not _marked(c):
-        raise InputError(
-            f"{fname} [deflector] field_factor: missing and no measured compound is a reference "
-            "(compounds.csv column 'reference' = true); expected a field_factor, or at least one "
-            "reference compound of known α to calibrate it"
-        )
     if mode == "auto":
         out = calibrate_campaign(c)
     else:  # check: references against the stated field
         values, problems = reference_values(c)
-        ctx = build_context(c)
-        out = _check_outcome(c, ctx, values, problems)
+        out = _check_outcome(c, build_context(c), values, problems)
     cal = out.calibration
     ctx = out.context
     notes = []

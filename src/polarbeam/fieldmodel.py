@@ -911,20 +911,28 @@ def deflector_field(campaign, voltage) -> FieldReport:
     calib = None
     notes: list[str] = []
     g = float(d.field_factor)
-    from .calibration import calibration_required
+    from .calibration import (
+        calibrate_campaign,
+        calibration_required,
+        check_calibration_inputs,
+        field_factor_missing,
+    )
+    from .results import variance_budget
 
-    if calibration_required(c):
-        from .calibration import calibrate_campaign
-
+    check_calibration_inputs(c)
+    cal = None
+    if calibration_required(c) and c.settings.calibration == "auto":
         cal = calibrate_campaign(c)
-        if cal.calibration is None:
-            raise InputError(f"{c.path.name}: the field factor cannot be calibrated: {cal.reason}")
-        calib = cal.calibration.summary()
+        if cal.calibration is not None:
+            calib = cal.calibration.summary()
+    if field_factor_missing(c):  # the references are the only source of g
+        if cal is None or cal.calibration is None:
+            raise InputError(
+                f"{c.path.name}: the field factor cannot be calibrated: "
+                f"{cal.reason if cal else 'no reference compound'}"
+            )
         gcal = cal.calibration.field_factor
-        g = gcal.nominal_value
-        tol_sigma = gcal.std_dev
-        from .results import variance_budget
-
+        g, tol_sigma = gcal.nominal_value, gcal.std_dev
         budget = variance_budget(gcal)
         notes.append(
             f"g calibrated from {len(cal.calibration.references)} reference compound(s); its "
@@ -936,6 +944,12 @@ def deflector_field(campaign, voltage) -> FieldReport:
         var = sum(x * x for x in contrib.values())
         tol_sigma = math.sqrt(var)
         budget = {k: x * x / var for k, x in contrib.items()} if var > 0 else {}
+        if calib is not None:
+            notes.append(
+                f"the reference compounds scale this g by {calib['field_scale']:.5g} ± "
+                f"{calib['field_scale_err']:.2g} (see 'calibration'); the analysis uses the "
+                "calibrated value"
+            )
     E = dEdx = None
     variation = rms = num_err = h = order = Leff = None
     num_note, fringe, beam = "", "", {}
