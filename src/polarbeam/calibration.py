@@ -68,7 +68,7 @@ from .constants import (
 from .debye import dipole_from_mu2
 from .errors import CompoundError, InputError
 from .fieldmodel import field_factor_sensitivities
-from .pipeline import Context, analyze_compound, build_context, make_result
+from .pipeline import Context, _label, analyze_compound, build_context, make_result
 from .quantities import Measured, format_value_error
 from .results import CampaignResult, CompoundResult, variance_budget
 from .tables import Table, read_table
@@ -390,7 +390,7 @@ class CalibrationOutcome:
     context: Context
     calibration: Calibration | None
     first_pass: dict[str, CompoundResult]
-    known: dict[str, tuple[UFloat, ...]]
+    known: dict[str, tuple[UFloat | float, ...]]
     values: dict[str, ReferenceValue]
     problems: dict[str, str]
     reason: str = ""
@@ -422,11 +422,6 @@ def _model_field_factor_u(c, ctx: Context):
     return g0 * (1.0 + rel), g0
 
 
-def _label(key: str) -> str:
-    table, _, name = key.partition(".")
-    return f"{table}: {name}"
-
-
 def field_factor_missing(c) -> bool:
     """A ``uniform`` deflector whose ``field_factor`` is left to the references."""
     return c.model == "uniform" and "deflector.field_factor" not in c.stated
@@ -439,50 +434,57 @@ def calibration_required(c) -> bool:
     return c.settings.calibration != "off" and bool(_marked(c))
 
 
+def _first_pass(c, ctx: Context, values: dict[str, ReferenceValue], problems: dict[str, str]):
+    """Analyse each reference with the stated field; its known α_eff per series (ufloats).
+
+    The known α_eff = α_ref + μ_ref²/(3kT) reuse the temperature variables of the compound's own
+    Debye fit (found by tag), so the reference's reported α stays correlated with them.
+    """
+    first, known = {}, {}
+    for cd in c.compounds:
+        if cd.name not in values:
+            continue
+        r1 = analyze_compound(cd, c, ctx)
+        if r1.status == "failed":
+            problems[cd.name] = r1.message
+            continue
+        ref = values[cd.name]
+        temps = _tag_variables(r1.alpha, r1.mu2)
+        a_u = _measured_u(ref.alpha, f"reference α: {cd.name}")
+        mu_u = _measured_u(ref.dipole, f"reference μ: {cd.name}")
+        ks = []
+        for s in r1.series:
+            tag = f"temperature: {s.compound} @ {s.temperature_K:g} K"
+            t_u = temps.get(tag)
+            if t_u is None:
+                t_u = _measured_u(Measured(s.temperature_K, s.temperature_err_K), tag)
+            ks.append(known_alpha_eff(a_u, mu_u, t_u))  # a float when exactly known
+        first[cd.name], known[cd.name] = r1, tuple(ks)
+    return first, known
+
+
 def calibrate_campaign(c) -> CalibrationOutcome:
     """Fit every reference series with the stated model, combine, and check consistency."""
     values, problems = reference_values(c)
     ctx = build_context(c)
     st = c.settings
-    first, known, per_ref, series_ratio = {}, {}, [], []
-    for cd in c.compounds:
-        if cd.name not in values:
-            continue
-        ref = values[cd.name]
-        r1 = analyze_compound(cd, c, ctx)
-        if r1.status == "failed":
-            problems[cd.name] = r1.message
-            continue
-        temps = _tag_variables(r1.alpha, r1.mu2)
-        a_u = _measured_u(ref.alpha, f"reference α: {cd.name}")
-        mu_u = _measured_u(ref.dipole, f"reference μ: {cd.name}")
-        ratios, knowns = [], []
-        for s in r1.series:
-            tag = f"temperature: {s.compound} @ {s.temperature_K:g} K"
-            t_u = temps.get(tag)
-            if t_u is None:
-                t_u = (
-                    ufloat(s.temperature_K, s.temperature_err_K, tag=tag)
-                    if s.temperature_err_K > 0
-                    else s.temperature_K
-                )
-            b = known_alpha_eff(a_u, mu_u, t_u)
-            knowns.append(b if isinstance(b, UFloat) else uncertainties.ufloat(b, 0.0))
-            if not s.alpha_eff.nominal_value > 0:
-                break
-            ratios.append(s.alpha_eff / b)
-        if len(ratios) != len(r1.series):
-            problems[cd.name] = (
-                f"reference compound {cd.name!r}: a series gave α_eff ≤ 0 "
-                f"({alpha_a3_from_si(s.alpha_eff.nominal_value):.3g} Å³ at "
-                f"{s.temperature_K:g} K); it cannot calibrate the field"
+    first, known = _first_pass(c, ctx, values, problems)
+    per_ref, series_ratio = [], []
+    for name in list(first):
+        r1 = first[name]
+        bad = [s for s in r1.series if not s.alpha_eff.nominal_value > 0]
+        if bad:
+            problems[name] = (
+                f"reference compound {name!r}: a series gave α_eff ≤ 0 "
+                f"({alpha_a3_from_si(bad[0].alpha_eff.nominal_value):.3g} Å³ at "
+                f"{bad[0].temperature_K:g} K); it cannot calibrate the field"
             )
+            del first[name], known[name]
             continue
-        first[cd.name] = r1
-        known[cd.name] = tuple(knowns)
+        ratios = [s.alpha_eff / b for s, b in zip(r1.series, known[name], strict=True)]
         lnk, chi2k, ndofk = gls_log_mean(ratios)
         per_ref.append(
-            ReferenceCalibration(cd.name, umath.exp(lnk), chi2k, ndofk, len(ratios), ref)
+            ReferenceCalibration(name, umath.exp(lnk), chi2k, ndofk, len(ratios), values[name])
         )
         series_ratio.extend(ratios)
     if not per_ref:
@@ -564,12 +566,13 @@ def _compared_series(r1: CompoundResult, known, scale):
     for s, b in zip(r1.series, known, strict=True):
         a = s.alpha_eff / scale if scale is not None else s.alpha_eff
         d = a - b
-        pull = d.nominal_value / d.std_dev if d.std_dev > 1e-9 * abs(b.nominal_value) else None
+        bn, bs = uncertainties.nominal_value(b), uncertainties.std_dev(b)
+        pull = d.nominal_value / d.std_dev if d.std_dev > 1e-9 * abs(bn) else None
         pulls.append(pull)
         extra = {
             **s.extra,
-            "reference_alpha_eff_A3": alpha_a3_from_si(b.nominal_value),
-            "reference_alpha_eff_err_A3": alpha_a3_from_si(b.std_dev),
+            "reference_alpha_eff_A3": alpha_a3_from_si(bn),
+            "reference_alpha_eff_err_A3": alpha_a3_from_si(bs),
             "reference_pull": pull,
         }
         out.append(replace(s, alpha_eff=a, extra=extra))
@@ -669,7 +672,9 @@ def analyze_with_references(c) -> CampaignResult:
         out = calibrate_campaign(c)
     else:  # check: references against the stated field
         values, problems = reference_values(c)
-        out = _check_outcome(c, build_context(c), values, problems)
+        ctx = build_context(c)
+        first, known = _first_pass(c, ctx, values, problems)
+        out = CalibrationOutcome(ctx, None, first, known, values, problems)
     cal = out.calibration
     ctx = out.context
     notes = []
@@ -720,33 +725,6 @@ def analyze_with_references(c) -> CampaignResult:
         notes=(*result.notes, *notes),
         calibration=cal.summary() if cal is not None else None,
     )
-
-
-def _check_outcome(c, ctx, values, problems) -> CalibrationOutcome:
-    first, known = {}, {}
-    for cd in c.compounds:
-        if cd.name not in values:
-            continue
-        r1 = analyze_compound(cd, c, ctx)
-        if r1.status == "failed":
-            problems[cd.name] = r1.message
-            continue
-        ref = values[cd.name]
-        temps = _tag_variables(r1.alpha, r1.mu2)
-        a_u = _measured_u(ref.alpha, f"reference α: {cd.name}")
-        mu_u = _measured_u(ref.dipole, f"reference μ: {cd.name}")
-        ks = []
-        for s in r1.series:
-            tag = f"temperature: {s.compound} @ {s.temperature_K:g} K"
-            t_u = temps.get(tag) or (
-                ufloat(s.temperature_K, s.temperature_err_K, tag=tag)
-                if s.temperature_err_K > 0
-                else s.temperature_K
-            )
-            b = known_alpha_eff(a_u, mu_u, t_u)
-            ks.append(b if isinstance(b, UFloat) else uncertainties.ufloat(b, 0.0))
-        first[cd.name], known[cd.name] = r1, tuple(ks)
-    return CalibrationOutcome(ctx, None, first, known, values, problems)
 
 
 # ---------------------------------------------------------------------------------------------

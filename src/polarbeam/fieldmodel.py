@@ -117,8 +117,9 @@ _ELECTRODE_KEYS = {
     },
     "polygon": {"shape", "name", "potential", "vertices", "offset"},
 }
-#: Keys with an exact value only (they select the grid or a cached end-field solve).
-_FRINGE_OPTIONS = {  # TOML key -> fieldsolver.fringe_extension_numerical argument
+#: Options of the numerical end-field solve (exact values: the solve is cached), TOML key →
+#: argument of :func:`polarbeam.fieldsolver.fringe_extension_numerical`.
+_FRINGE_OPTIONS = {
     "fringe_thickness": "thickness",
     "fringe_shield_distance": "shield_distance",
     "fringe_shield_aperture": "shield_aperture",
@@ -574,18 +575,6 @@ class NumericalModel:
             ext += 0.5 * v.get(FRINGE_ERROR_KEY, 0.0)
         return NumericalDeflector(g, entrance, length, ext, self.field_per_volt, prof)
 
-    def tolerance_budget(self, stated: dict[str, Measured]) -> dict[str, Any]:
-        """σ_g from the stated geometric tolerances and each one's share of the variance."""
-        g0 = self.field_factor
-        contrib = {k: abs(s * g0 * stated[k].error) for k, s in self.sensitivities.items()}
-        contrib["numerical field error"] = self.numerical_error
-        var = sum(c * c for c in contrib.values())
-        return {
-            "sigma_per_m3": math.sqrt(var),
-            "budget": {k: (c * c / var if var > 0 else 0.0) for k, c in contrib.items()},
-            "dlng_dp": dict(self.sensitivities),
-        }
-
 
 @dataclass(frozen=True)
 class NumericalDeflector:
@@ -624,7 +613,12 @@ class NumericalDeflector:
 
 def _model_key(c) -> tuple:
     defl = c.raw.get("deflector", {})
-    geom = sorted((k, m.value, m.error) for k, m in c.stated.items() if k.startswith("deflector."))
+    derived = (FIELD_ERROR_KEY, FRINGE_ERROR_KEY)  # added after the solve: not part of the key
+    geom = sorted(
+        (k, m.value, m.error)
+        for k, m in c.stated.items()
+        if k.startswith("deflector.") and k not in derived
+    )
     extra = ()
     fm = defl.get("fringe_map")
     if isinstance(fm, str):
@@ -940,6 +934,8 @@ def deflector_field(campaign, voltage) -> FieldReport:
         )
     else:
         g_nom, sens = field_factor_sensitivities(c)
+        from .pipeline import _label
+
         contrib = {_label(k): abs(s * g_nom * c.stated[k].error) for k, s in sens.items()}
         var = sum(x * x for x in contrib.values())
         tol_sigma = math.sqrt(var)
@@ -1009,11 +1005,6 @@ def deflector_field(campaign, voltage) -> FieldReport:
         calibration=calib,
         notes=tuple(notes),
     )
-
-
-def _label(key: str) -> str:
-    table, _, name = key.partition(".")
-    return f"{table}: {name}"
 
 
 def plot_deflector_field(campaign, path, voltage) -> Path:
