@@ -37,12 +37,19 @@ import numpy as np
 from .constants import AMU, alpha_si_from_a3, si_from_debye
 from .deflectors import (
     DEFLECTOR_MODELS,
+    UNCALIBRATED_FIELD_FACTOR,
     FieldMapDeflector,
     SwitchedField,
     TwoWireDeflector,
     UniformDeflector,
 )
 from .errors import CompoundError, InputError, QuantityError
+from .fieldmodel import (
+    NUMERICAL_KEYS,
+    numerical_deflector,
+    numerical_error_inputs,
+    numerical_stated_inputs,
+)
 from .layouts import LAYOUTS, BeamProfile, TalbotLau, TimeDomain
 from .quantities import Measured, parse_quantity
 from .tables import Table, read_table
@@ -100,8 +107,13 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "structure_check": None,
         "conformers": None,
         "conformer_seed": None,
+        "calibration": None,
     },
 }
+# the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
+_SCHEMA["deflector"].update(
+    {k: u for k, u in NUMERICAL_KEYS.items() if k not in _SCHEMA["deflector"]}
+)
 
 # top-level arrays of tables ([[laser]]): their keys are checked by polarbeam.recoil
 _ARRAY_TABLES = ("laser",)
@@ -112,9 +124,10 @@ _LAYOUT_KEYS = {
     "time-domain": {"grating_period", "pulse_times"},
 }
 _MODEL_KEYS = {
-    "uniform": ({"field_factor"}, {"field_per_volt"}),
+    "uniform": (set(), {"field_factor", "field_per_volt"}),  # no field_factor: calibrate
     "two-wire": ({"line_half_spacing", "convex_crossing", "concave_crossing"}, {"beam_height"}),
     "field-map": ({"field_map"}, {"field_scale", "field_per_volt"}),
+    "numerical": (set(), set(NUMERICAL_KEYS)),  # combinations checked in fieldmodel.py
 }
 _SPATIAL_KEYS = ({"entrance"}, {"length"})
 _TIME_KEYS = ({"field_on"}, {"field_duration", "waveform"})
@@ -148,6 +161,7 @@ class AnalysisSettings:
     structure_check: bool = True  # compare with structure-based predictions when possible
     conformers: int = 10  # conformers for the predicted dipole (0: no dipole prediction)
     conformer_seed: int = 61453
+    calibration: str = "auto"  # "auto" | "check" | "off": use of reference compounds
 
     def __post_init__(self):
         if self.scale_errors not in ("never", "birge"):
@@ -167,6 +181,11 @@ class AnalysisSettings:
         if not (isinstance(self.conformers, int) and 0 <= self.conformers <= 1000):
             raise InputError(
                 f"[analysis] conformers: expected an integer 0..1000, found {self.conformers!r}"
+            )
+        if self.calibration not in ("auto", "check", "off"):
+            raise InputError(
+                "[analysis] calibration: expected one of 'auto', 'check', 'off', "
+                f"found {self.calibration!r}"
             )
         if not self.dipole_significance > 0:
             raise InputError(
@@ -276,7 +295,7 @@ def build_deflector(c: Campaign, v: dict[str, float]):
                 f"found {c.model!r}"
             )
         return SwitchedField(
-            v["deflector.field_factor"],
+            g("deflector.field_factor", UNCALIBRATED_FIELD_FACTOR),
             v["deflector.field_on"],
             g("deflector.field_duration"),
             c.waveform,
@@ -286,7 +305,7 @@ def build_deflector(c: Campaign, v: dict[str, float]):
         )
     if c.model == "uniform":
         return UniformDeflector(
-            v["deflector.field_factor"],
+            g("deflector.field_factor", UNCALIBRATED_FIELD_FACTOR),
             v["deflector.entrance"],
             v["deflector.length"],
             g("deflector.field_per_volt"),
@@ -301,6 +320,8 @@ def build_deflector(c: Campaign, v: dict[str, float]):
             v["deflector.entrance"],
             v["deflector.length"],
         )
+    if c.model == "numerical":
+        return numerical_deflector(c, v)
     z, gz = c.field_map
     return FieldMapDeflector(
         z,
@@ -403,9 +424,13 @@ def _stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, 
             "fixes the switching), found both"
         )
     for k, raw in defl.items():
-        if k in ("model", "field_map", "waveform"):
+        if k in ("model", "field_map", "waveform") or (
+            model == "numerical" and k in NUMERICAL_KEYS
+        ):
             continue
         stated[f"deflector.{k}"] = quantity("deflector", k, raw)
+    if model == "numerical":
+        stated.update(numerical_stated_inputs(defl, fname))
     return stated
 
 
@@ -466,6 +491,7 @@ def _settings(doc: dict, fname: str) -> AnalysisSettings:
         "structure_check": bool,
         "conformers": int,
         "conformer_seed": int,
+        "calibration": str,
     }
     kw = {}
     for k, v in a.items():
@@ -702,6 +728,8 @@ def load_campaign(path: str | Path) -> Campaign:
         raise
     except InputError as exc:
         raise InputError(f"{fname} {exc}") from None
+    if model == "numerical":  # the solve's mesh-refinement error becomes a stated input
+        stated = {**stated, **numerical_error_inputs(camp)}
     recoil = None
     if has_recoil:  # [[laser]] tables and recoil.csv (polarbeam.recoil)
         from .recoil import load_recoil

@@ -249,6 +249,29 @@ def simulate(
 
 
 @app.command()
+def field(
+    campaign: Path = typer.Argument(..., help="campaign.toml"),
+    voltage: str = typer.Option(..., "--voltage", help='voltage between the electrodes, "10 kV"'),
+    as_json: bool = typer.Option(False, "--json", help="print one JSON object (SI units)"),
+    plot: Path | None = typer.Option(None, "--plot", help="save equipotentials and the beam"),
+):
+    """Deflector field at the beam: E, ∂E/∂x, E·∂E/∂x, g, its variation and numerical error."""
+    import json
+
+    from .fieldmodel import deflector_field, plot_deflector_field
+
+    try:
+        report = deflector_field(campaign, voltage)
+        if plot is not None:
+            plot_deflector_field(campaign, plot, voltage)
+    except PolarbeamError as exc:
+        _fail(exc)
+    typer.echo(json.dumps(report.summary(), ensure_ascii=False) if as_json else report.to_text())
+    if plot is not None and not as_json:
+        typer.echo(f"cross-section plot written to {plot}")
+
+
+@app.command()
 def demo(
     out: Path = typer.Option(Path("examples/demo"), "--out", "-o"),
     scans: bool = typer.Option(False, "--scans", help="the raw-scan variant instead"),

@@ -34,6 +34,7 @@ from .errors import InputError
 
 __all__ = [
     "DEFLECTOR_MODELS",
+    "UNCALIBRATED_FIELD_FACTOR",
     "Deflector",
     "FieldMapDeflector",
     "SwitchedField",
@@ -45,7 +46,10 @@ __all__ = [
     "two_wire_potential",
 ]
 
-DEFLECTOR_MODELS = ("uniform", "two-wire", "field-map")
+DEFLECTOR_MODELS = ("uniform", "two-wire", "field-map", "numerical")  # numerical: fieldmodel.py
+#: Stand-in g (m⁻³) of a ``uniform`` deflector without ``field_factor`` until the reference
+#: compounds calibrate it (calibration.py); α_eff depends on g only through α_eff·C/m.
+UNCALIBRATED_FIELD_FACTOR = 1.0e8
 
 
 def two_wire_potential(x, z, a: float, z1: float, z2: float, voltage: float = 1.0):

@@ -116,6 +116,10 @@ class BeamProfile:
         z = np.asarray(z, dtype=float)
         return np.where(z < self.detector, self.detector - z, 0.0)
 
+    def _knots(self):
+        """Knot of the piecewise-linear weight (its kink at the detector), as ``overlap`` needs."""
+        return (self.detector,), (0.0,)
+
     def weight_integral(self, a: float, b: float) -> float:
         lo, hi = min(a, self.detector), min(b, self.detector)
         if hi <= lo:

@@ -360,15 +360,20 @@ def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float
 
 def analyze_campaign(c: Campaign) -> CampaignResult:
     """Analyse every compound of a loaded campaign."""
-    if c.model == "none":  # no deflector: a photon-recoil-only campaign (polarbeam.recoil)
+    from .calibration import analyze_with_references, calibration_required
+
+    if c.model != "none" and calibration_required(c):  # references, or g left to calibrate
+        result = analyze_with_references(c)
+    elif c.model == "none":  # no deflector: a photon-recoil-only campaign (polarbeam.recoil)
         from .campaign import build_layout
 
         ctx = Context(build_layout(c.layout, c.nominal()), None, math.nan, 1.0, {}, None)
         compounds = ()
+        result = make_result(c, compounds, ctx)
     else:
         ctx = build_context(c)
         compounds = tuple(analyze_compound(cd, c, ctx) for cd in c.compounds)
-    result = make_result(c, compounds, ctx)
+        result = make_result(c, compounds, ctx)
     if c.recoil is not None:  # photon-recoil cross-sections ([data] recoil, polarbeam.recoil)
         from .recoil import analyze_recoil, with_recoil
 

@@ -27,7 +27,7 @@ __all__ = [
     "variance_budget",
 ]
 
-STATUS = ("ok", "warning", "failed")
+STATUS = ("ok", "warning", "failed")  # reference compounds: extra["role"] == "reference"
 
 
 def variance_budget(value: UFloat | None) -> dict[str, float]:
@@ -313,6 +313,7 @@ class CampaignResult:
     comparison: pd.DataFrame | None = None  # measured versus computed α, per compound & method
     series_comparison: pd.DataFrame | None = None  # computed α + μ²/3kT versus each α_eff
     parity: pd.DataFrame | None = None  # per-method deviation statistics
+    calibration: dict[str, Any] | None = None  # reference-compound calibration (calibration.py)
 
     @property
     def series(self) -> pd.DataFrame:
@@ -359,6 +360,7 @@ class CampaignResult:
             "computed_comparison": _records(self.comparison),
             "computed_series_comparison": _records(self.series_comparison),
             "computed_parity": _records(self.parity),
+            "calibration": self.calibration,
             "unmeasured_compounds": list(self.unmeasured),
             "notes": list(self.notes),
             "cautions": list(CAUTIONS),
