@@ -14,4 +14,11 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__"]
+__all__ = ["__version__", "analyze"]
+
+
+def analyze(path, out=None):
+    """Analyse a campaign file (see :func:`polarbeam.pipeline.analyze`)."""
+    from .pipeline import analyze as _analyze
+
+    return _analyze(path, out)

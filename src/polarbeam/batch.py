@@ -141,9 +141,7 @@ def _unfloat(x) -> float:
     return float(x["float"]) if isinstance(x, dict) else float(x)
 
 
-def decode_compound(
-    record: Mapping[str, Any], registry: dict | None = None
-) -> CompoundResult:
+def decode_compound(record: Mapping[str, Any], registry: dict | None = None) -> CompoundResult:
     """Rebuild the :class:`~polarbeam.results.CompoundResult` of a record.
 
     ``registry`` (a dict, shared between the compounds of one campaign) maps each shared input to
@@ -342,6 +340,19 @@ def _analyze_chunk(
     return out
 
 
+def _render_chunk(items: Sequence[tuple[int, dict]]) -> list[tuple[int, dict]]:
+    """Figures of recorded compounds: [(index, {kind: (svg, png)}), ...] (never raises)."""
+    from .htmlreport import compound_figure_files
+
+    out = []
+    for i, rec in items:
+        try:
+            out.append((i, compound_figure_files(decode_compound(rec))))
+        except Exception:  # a figure that cannot be drawn leaves the section without it
+            out.append((i, {}))
+    return out
+
+
 def _worker_init() -> None:  # pragma: no cover - runs in the worker processes
     # Ctrl-C is the main process's business: it stops handing out work and keeps what is done.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
@@ -355,9 +366,10 @@ def _worker_init() -> None:  # pragma: no cover - runs in the worker processes
 class _Inline:
     workers = 1
 
-    def run(self, tasks: list[tuple]) -> Iterator[tuple[tuple, list | BaseException]]:
+    def run(self, tasks: list[tuple], fn=None) -> Iterator[tuple[tuple, list | BaseException]]:
+        fn = fn or _analyze_chunk
         for t in tasks:
-            yield t, _analyze_chunk(*t)
+            yield t, fn(*t)
 
     def close(self) -> None:
         pass
@@ -376,11 +388,11 @@ class _Processes:
         )
         self.pool = self._make()
 
-    def run(self, tasks):
+    def run(self, tasks, fn=None):
         from concurrent.futures import as_completed
         from concurrent.futures.process import BrokenProcessPool
 
-        futures = {self.pool.submit(_analyze_chunk, *t): t for t in tasks}
+        futures = {self.pool.submit(fn or _analyze_chunk, *t): t for t in tasks}
         broken = False
         try:
             for fut in as_completed(futures):
@@ -439,12 +451,12 @@ class _Dask:
         self.workers = max(1, sum(self.client.nthreads().values()))
         self.dashboard_link = self.client.dashboard_link if dashboard else None
 
-    def run(self, tasks):
+    def run(self, tasks, fn=None):
         from distributed import as_completed
 
         futures = {}
         for t in tasks:
-            futures[self.client.submit(_analyze_chunk, *t, pure=False)] = t
+            futures[self.client.submit(fn or _analyze_chunk, *t, pure=False)] = t
         try:
             for fut in as_completed(list(futures)):
                 try:
@@ -685,9 +697,18 @@ def _run_campaign(
     result = make_result(c, compounds, ctx)
     write_results(result, out)
     if html:
-        from .htmlreport import write_html
+        from .htmlreport import detail_indices, write_html
 
-        write_html(result, out, details=report_details)
+        rendered: dict[int, dict] = {}
+        idx = [i for i in detail_indices(result, report_details) if compounds[i].status != "failed"]
+        if idx and not isinstance(runner, _Inline):
+            items = [(i, records[names[i]]) for i in idx]
+            step = max(1, math.ceil(len(items) / (2 * runner.workers)))
+            tasks = [(items[k : k + step],) for k in range(0, len(items), step)]
+            for _, got in runner.run(tasks, _render_chunk):
+                if not isinstance(got, BaseException):
+                    rendered.update(dict(got))
+        write_html(result, out, details=report_details, rendered=rendered)
     keep = {f.name for f in files.values()}
     if cdir.is_dir():  # records of compounds no longer in the campaign
         for f in cdir.glob("*.json"):
@@ -899,11 +920,86 @@ class TerminalProgress:
             rate = (ev.done - self._start_done) / max(now - self._t0, 1e-9)
             left = (ev.total - ev.done) / rate if rate > 0 else math.inf
             eta = f", ETA {left:.0f} s" if math.isfinite(left) and ev.done < ev.total else ""
-            self._line(
-                f"{ev.campaign}: {ev.done}/{ev.total} compounds ({rate:.1f}/s{eta})"
-            )
+            self._line(f"{ev.campaign}: {ev.done}/{ev.total} compounds ({rate:.1f}/s{eta})")
 
     def close(self) -> None:
         if self._bar is not None:
             self._bar.stop()
             self._bar = None
+
+
+def run_cli(
+    campaigns: Sequence[Path],
+    out: Path,
+    *,
+    quiet: bool = False,
+    jobs: int | None = None,
+    scheduler: str | None = None,
+    dashboard: bool = False,
+    resume: bool = False,
+    report_details: int | None = None,
+    echo: Callable[..., None] = print,
+    table_limit: int = 40,
+) -> int:
+    """The ``polarbeam analyze`` command: run the batch, print the outcome, return the exit code.
+
+    Ctrl-C stops handing out work; what is done stays in ``out`` for ``--resume``.
+    """
+    from .report import render_terminal
+
+    if dashboard and scheduler != "local":
+        raise InputError("--dashboard: only with --scheduler local")
+    bar = None if quiet else TerminalProgress()
+
+    def on_runner(runner):
+        link = getattr(runner, "dashboard_link", None)
+        if link:
+            echo(f"Dask dashboard: {link}", err=True)
+
+    try:
+        outcome = run_batch(
+            campaigns,
+            out,
+            jobs=jobs,
+            scheduler=scheduler,
+            dashboard=dashboard,
+            resume=resume,
+            progress=bar,
+            report_details=report_details,
+            on_runner=on_runner,
+        )
+    except KeyboardInterrupt:
+        if bar is not None:
+            bar.close()
+        echo(
+            f"interrupted: finished compounds are kept in {out}/; run the same command with "
+            "--resume to complete it",
+            err=True,
+        )
+        return 130
+    finally:
+        if bar is not None:
+            bar.close()
+    for run in outcome.runs:
+        if run.result is None:
+            echo(f"error: {run.name}: {run.error}", err=True)
+            continue
+        r = run.result
+        if not quiet:
+            if len(r.compounds) <= table_limit:
+                echo(render_terminal(r))
+            n_fail = r.n_failed
+            n_warn = sum(c.status == "warning" for c in r.compounds)
+            reused = f", {run.reused} reused" if run.reused else ""
+            echo(
+                f"{run.name}: {len(r.compounds)} compound(s), {n_fail} failed, {n_warn} with "
+                f"warnings{reused}; written to {run.out}/ (series.csv, properties.csv, "
+                "results.json, report.md, report.html)"
+            )
+        if quiet or len(r.compounds) > table_limit:
+            for c in r.compounds:
+                if c.status == "failed":
+                    echo(f"failed: {c.compound}: {c.message}", err=True)
+    if not quiet:
+        echo(f"{outcome.n_compounds} compound(s) in {outcome.seconds:.1f} s")
+    return outcome.exit_code

@@ -29,27 +29,54 @@ def _fail(exc: Exception, code: int = 2):
 
 @app.command()
 def analyze(
-    campaign: Path = typer.Argument(..., help="campaign.toml"),
+    campaigns: list[Path] = typer.Argument(
+        ..., help="campaign.toml file(s), or folder(s) of campaigns"
+    ),
     out: Path = typer.Option(Path("results"), "--out", "-o", help="results folder"),
-    quiet: bool = typer.Option(False, "--quiet", "-q", help="no terminal table"),
+    quiet: bool = typer.Option(False, "--quiet", "-q", help="no terminal table or progress"),
+    jobs: int = typer.Option(
+        None,
+        "--jobs",
+        "-j",
+        help="worker processes (default 1: in this process; 0: one per core; with "
+        "--scheduler local: Dask workers, default one per core)",
+    ),
+    scheduler: str = typer.Option(
+        None,
+        "--scheduler",
+        help="run on Dask: 'local' starts a cluster on 127.0.0.1, or tcp://host:port of a "
+        "running scheduler (its workers must see the campaign files at the same paths)",
+    ),
+    dashboard: bool = typer.Option(
+        False, "--dashboard", help="with --scheduler local: serve Dask's dashboard on 127.0.0.1"
+    ),
+    resume: bool = typer.Option(
+        False, "--resume", help="keep compounds already done whose inputs are unchanged"
+    ),
+    report_details: int = typer.Option(
+        None,
+        "--report-details",
+        help="compounds given figures in report.html and figures/ (default 20; -1: all)",
+    ),
 ):
-    """Analyse a campaign: α_eff per series, α and μ per compound, report and budgets."""
-    from .pipeline import analyze as run
-    from .report import render_terminal
+    """Analyse campaigns: α_eff per series, α and μ per compound, report and budgets."""
+    from .batch import run_cli
 
     try:
-        result = run(campaign, out)
+        code = run_cli(
+            campaigns,
+            out,
+            quiet=quiet,
+            jobs=jobs,
+            scheduler=scheduler,
+            dashboard=dashboard,
+            resume=resume,
+            report_details=report_details,
+            echo=typer.echo,
+        )
     except PolarbeamError as exc:
         _fail(exc)
-    if not quiet:
-        typer.echo(render_terminal(result))
-        typer.echo(
-            f"results written to {out}/ (series.csv, properties.csv, results.json, report.md)"
-        )
-    for c in result.compounds:
-        if c.status == "failed":
-            typer.echo(f"failed: {c.compound}: {c.message}", err=True)
-    raise typer.Exit(result.exit_code)
+    raise typer.Exit(code)
 
 
 @app.command()
