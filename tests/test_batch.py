@@ -96,6 +96,7 @@ def test_processes_and_dask_give_the_same_bytes(camp, inline_run, tmp_path):
 
     def look(runner):
         info = runner.client.scheduler_info()
+        assert "dashboard" not in info.get("services", {})
         seen.append((runner.dashboard_link, info["address"], list(info["workers"])))
 
     outcome = run_batch(camp, od, jobs=2, scheduler="local", report_details=1, on_runner=look)

@@ -59,7 +59,8 @@ h3{font-size:1.1rem;margin:28px 0 6px}
 .meta,.note,figcaption{color:var(--muted);font-size:.9rem}
 nav a{margin-right:14px;color:var(--link)}
 a{color:var(--link)}
-table{border-collapse:collapse;margin:8px 0 16px;font-size:.9rem;width:100%}
+table{border-collapse:collapse;margin:8px 0 16px;font-size:.9rem}
+#summary-table{width:100%}
 th,td{border-bottom:1px solid var(--line);padding:4px 8px;text-align:left;vertical-align:top}
 td.num,th.num{text-align:right;font-variant-numeric:tabular-nums;white-space:nowrap}
 thead th{background:var(--band);position:sticky;top:0}
