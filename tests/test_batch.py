@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import json
 import shutil
+import urllib.error
+import urllib.request
 
 import numpy as np
 import pytest
@@ -96,17 +98,27 @@ def test_processes_and_dask_give_the_same_bytes(camp, inline_run, tmp_path):
 
     def look(runner):
         info = runner.client.scheduler_info()
-        assert "dashboard" not in info.get("services", {})
-        seen.append((runner.dashboard_link, info["address"], list(info["workers"])))
+        http = runner.cluster.scheduler.http_server.address
+        worker_http = runner.client.run(lambda dask_worker: dask_worker.http_server.address)
+        port = runner.cluster.scheduler.http_server.port
+        codes = {}
+        for route in ("health", "status"):
+            try:
+                with urllib.request.urlopen(f"http://127.0.0.1:{port}/{route}", timeout=10) as r:
+                    codes[route] = r.status
+            except urllib.error.HTTPError as exc:
+                codes[route] = exc.code
+        seen.append((info["address"], list(info["workers"]), http, worker_http, codes))
 
     outcome = run_batch(camp, od, jobs=2, scheduler="local", report_details=1, on_runner=look)
     assert outcome.exit_code == 0
     assert _files(od) == ref
     # the local cluster listens on the loopback interface only, and serves no dashboard
-    ((link, scheduler, workers),) = seen
-    assert link is None
+    ((scheduler, workers, http, worker_http, codes),) = seen
     assert scheduler.startswith("tcp://127.0.0.1:")
     assert len(workers) == 2 and all(w.startswith("tcp://127.0.0.1:") for w in workers)
+    assert http == "127.0.0.1" and set(worker_http.values()) == {"127.0.0.1"}
+    assert codes == {"health": 200, "status": 404}  # Dask's health route, but no dashboard
 
 
 def test_corrupt_compound_does_not_stop_the_others(tmp_path, monkeypatch):

@@ -428,13 +428,23 @@ class _Dask:
         self.cluster = None
         if scheduler == "local":
             n = jobs or os.cpu_count() or 1
+            if dashboard:
+                try:
+                    import bokeh  # noqa: F401
+                except ImportError:
+                    raise InputError(
+                        "--dashboard: Dask's dashboard needs bokeh; pip install 'bokeh>=3.1'"
+                    ) from None
+            # Everything on the loopback interface: the scheduler, the workers and the small
+            # HTTP endpoint Dask always opens (health checks; the dashboard only when asked).
             self.cluster = LocalCluster(
                 n_workers=n,
                 threads_per_worker=1,
                 processes=True,
                 host="127.0.0.1",
-                dashboard_address="127.0.0.1:0" if dashboard else None,
+                dashboard_address="127.0.0.1:0",
                 worker_dashboard_address=None,
+                scheduler_kwargs={"dashboard": dashboard},
                 silence_logs=logging.ERROR,
             )
             self.client = Client(self.cluster)
@@ -642,14 +652,30 @@ def _run_campaign(
     names = [cd.name for cd in c.compounds]
     cdir = out / COMPOUND_DIR
     files = {n: cdir / f"{safe_name(n)}.json" for n in names}
-    records: dict[str, dict] = {}
+    from .htmlreport import detail_indices
+
+    detail = {names[i] for i in detail_indices(len(names), report_details)} if html else set()
+    registry: dict = {}  # campaign-wide inputs shared by the compounds decoded here
+    done: dict[str, CompoundResult] = {}
+    kept: dict[str, dict] = {}  # records of the compounds that get figures
+
+    def take(cname: str, rec: dict) -> CompoundResult:
+        r = decode_compound(rec, registry)
+        done[cname] = r
+        if cname in detail:
+            kept[cname] = rec
+        return r
+
     if resume:
         for n in names:
             rec = _load_record(files[n], n, hashes[n])
             if rec is not None:
-                records[n] = rec
-    reused = len(records)
-    todo = [n for n in names if n not in records]
+                try:
+                    take(n, rec)
+                except (KeyError, TypeError, ValueError, IndexError):
+                    done.pop(n, None)  # unreadable record: analyse again
+    reused = len(done)
+    todo = [n for n in names if n not in done]
     total = len(names)
     out.mkdir(parents=True, exist_ok=True)
     _write_state(
@@ -674,35 +700,29 @@ def _run_campaign(
                     got = [_failed_record(n, msg, None) for n in task[2]]
                 for cname, h, rec in got:
                     write_text_atomic(files[cname], _record_text(cname, h, rec))
-                    records[cname] = rec
+                    r = take(cname, rec)
                     if progress:
-                        f = rec["value"]["fields"]
-                        progress(
-                            ProgressEvent(
-                                name, len(records), total, cname, f["status"], f["message"]
-                            )
-                        )
+                        progress(ProgressEvent(name, len(done), total, cname, r.status, r.message))
         except KeyboardInterrupt:
             _write_state(
                 out,
                 complete=False,
                 campaign=str(path),
                 compounds_total=total,
-                compounds_done=len(records),
+                compounds_done=len(done),
                 note="interrupted: run again with --resume to finish",
             )
             raise
-    registry: dict = {}
-    compounds = tuple(decode_compound(records[n], registry) for n in names)
+    compounds = tuple(done[n] for n in names)
     result = make_result(c, compounds, ctx)
     write_results(result, out)
     if html:
-        from .htmlreport import detail_indices, write_html
+        from .htmlreport import write_html
 
         rendered: dict[int, dict] = {}
-        idx = [i for i in detail_indices(result, report_details) if compounds[i].status != "failed"]
+        idx = [i for i, n in enumerate(names) if n in kept and compounds[i].status != "failed"]
         if idx and not isinstance(runner, _Inline):
-            items = [(i, records[names[i]]) for i in idx]
+            items = [(i, kept[names[i]]) for i in idx]
             step = max(1, math.ceil(len(items) / (2 * runner.workers)))
             tasks = [(items[k : k + step],) for k in range(0, len(items), step)]
             for _, got in runner.run(tasks, _render_chunk):

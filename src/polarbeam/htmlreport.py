@@ -299,10 +299,10 @@ def _compound_section(i, c, figs: dict[str, tuple[str, tuple[str, str] | None]])
     return "".join(out)
 
 
-def detail_indices(result: CampaignResult, details: int | None) -> list[int]:
+def detail_indices(n_compounds: int, details: int | None) -> list[int]:
+    """Indices of the compounds given a section with figures (the first ``details``)."""
     n = DEFAULT_DETAILS if details is None else details
-    total = len(result.compounds)
-    return list(range(total if n < 0 else min(n, total)))
+    return list(range(n_compounds if n < 0 else min(n, n_compounds)))
 
 
 def compound_figure_files(c: CompoundResult) -> dict[str, tuple[str, bytes]]:
@@ -365,7 +365,7 @@ def render_html(
 
     from .batch import safe_name
 
-    idx = detail_indices(result, details)
+    idx = detail_indices(len(result.compounds), details)
     counts = {s: sum(c.status == s for c in result.compounds) for s in ("ok", "warning", "failed")}
     parts = [
         "<!DOCTYPE html>",
