@@ -6,12 +6,14 @@ Run on demand (not part of the test suite)::
 
 Simulates campaigns of 250, 500 and 1,000 compounds (3 source temperatures × 10 voltages each,
 Talbot–Lau layout, written by :mod:`polarbeam.simulate`), then times the command-line run end to
-end (load, analysis, per-compound records, CSV/JSON/Markdown, report.html with the default number
-of figure sections and figures/) as a subprocess:
+end as a subprocess (load, analysis, per-compound records, CSV/JSON/Markdown, report.html and
+figures/):
 
-* ``--jobs 2`` for every size: wall time, compounds per second and peak memory (resident set of
-  the whole process tree, sampled every 50 ms);
-* ``--jobs 1`` for the largest size: the baseline of the ratio, timed in the same run.
+* scaling: ``--jobs 2 --report-details 0`` for every size (the report has its table but no
+  figure sections, whose cost does not grow with the library): wall time, compounds per second,
+  peak memory (resident set of the whole process tree, sampled every 50 ms);
+* end to end at the largest size with the default report (figures for the first 20 compounds):
+  ``--jobs 2``, and ``--jobs 1`` as the baseline of the ratio, timed in the same run.
 
 Targets: 1,000 compounds with ``--jobs 2`` under 60 s and under 1 GB on a 2-core machine; time
 linear in the number of compounds (a straight-line fit of time against size, and the time per
@@ -68,12 +70,14 @@ def _tree_rss(pid: int) -> int:
     return total
 
 
-def run_cli(campaign: Path, out: Path, jobs: int) -> dict:
+def run_cli(campaign: Path, out: Path, jobs: int, details: int | None = None) -> dict:
     env = dict(os.environ)
     src = str(Path(__file__).resolve().parents[1] / "src")
     env["PYTHONPATH"] = src + os.pathsep + env.get("PYTHONPATH", "")
     cmd = [sys.executable, "-m", "polarbeam", "analyze", str(campaign), "-o", str(out)]
     cmd += ["--jobs", str(jobs), "--quiet"]
+    if details is not None:
+        cmd += ["--report-details", str(details)]
     peak = [0]
     t0 = time.perf_counter()
     proc = subprocess.Popen(cmd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
@@ -97,7 +101,11 @@ def run_cli(campaign: Path, out: Path, jobs: int) -> dict:
         th.join()
     if proc.returncode not in (0, 1):
         raise SystemExit(f"polarbeam analyze failed ({proc.returncode}): {stderr.decode()[-2000:]}")
-    return {"wall_s": wall, "peak_MB": peak[0] / 2**20 if have_psutil else None}
+    return {
+        "wall_s": wall,
+        "peak_MB": peak[0] / 2**20 if have_psutil else None,
+        "load_1min_after": os.getloadavg()[0],  # other work on the machine skews the times
+    }
 
 
 def main(argv=None) -> None:
@@ -114,33 +122,37 @@ def main(argv=None) -> None:
             t = time.perf_counter()
             camps[n] = make_campaign(tmp / f"c{n}", n)
             print(f"simulated {n} compounds in {time.perf_counter() - t:.1f} s", flush=True)
-        for n in sizes:
-            r = run_cli(camps[n], tmp / f"o{n}-j2", 2)
-            rows.append({"n": n, "jobs": 2, **r})
+
+        def show(r):
+            what = "default report" if r["details"] is None else "no figures"
             print(
-                f"n={n:5d} jobs=2 wall {r['wall_s']:6.1f} s  {n / r['wall_s']:6.1f} compounds/s  "
-                f"peak {r['peak_MB'] or float('nan'):6.0f} MB",
+                f"n={r['n']:5d} jobs={r['jobs']} {what:14s} wall {r['wall_s']:6.1f} s  "
+                f"{r['n'] / r['wall_s']:6.1f} compounds/s  "
+                f"peak {r['peak_MB'] or float('nan'):5.0f} MB  (load {r['load_1min_after']:.1f})",
                 flush=True,
             )
+
+        for n in sizes:
+            r = {"n": n, "jobs": 2, "details": 0, **run_cli(camps[n], tmp / f"s{n}", 2, 0)}
+            rows.append(r)
+            show(r)
         nmax = max(sizes)
-        base = run_cli(camps[nmax], tmp / f"o{nmax}-j1", 1)
-        rows.append({"n": nmax, "jobs": 1, **base})
-        print(
-            f"n={nmax:5d} jobs=1 wall {base['wall_s']:6.1f} s  {nmax / base['wall_s']:6.1f} "
-            f"compounds/s  peak {base['peak_MB'] or float('nan'):6.0f} MB",
-            flush=True,
-        )
+        big = {"n": nmax, "jobs": 2, "details": None, **run_cli(camps[nmax], tmp / "e2", 2)}
+        rows.append(big)
+        show(big)
+        base = {"n": nmax, "jobs": 1, "details": None, **run_cli(camps[nmax], tmp / "e1", 1)}
+        rows.append(base)
+        show(base)
         same = all(
-            (tmp / f"o{nmax}-j1" / f).read_bytes() == (tmp / f"o{nmax}-j2" / f).read_bytes()
+            (tmp / "e1" / f).read_bytes() == (tmp / "e2" / f).read_bytes()
             for f in ("series.csv", "properties.csv", "results.json", "report.md", "report.html")
         )
-    j2 = [r for r in rows if r["jobs"] == 2]
+    j2 = [r for r in rows if r["details"] == 0]
     x = np.array([r["n"] for r in j2], dtype=float)
     y = np.array([r["wall_s"] for r in j2])
     slope, intercept = np.polyfit(x, y, 1)
     fit = slope * x + intercept
     r2 = 1 - float(np.sum((y - fit) ** 2) / np.sum((y - y.mean()) ** 2)) if len(x) > 2 else 1.0
-    big = next(r for r in j2 if r["n"] == nmax)
     summary = {
         "rows": rows,
         "ratio_jobs1_over_jobs2": base["wall_s"] / big["wall_s"],
