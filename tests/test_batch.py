@@ -8,9 +8,15 @@ in-process pipeline, and for correlations the :mod:`uncertainties` package's own
 from __future__ import annotations
 
 import json
+import os
 import shutil
+import signal
+import subprocess
+import sys
+import time
 import urllib.error
 import urllib.request
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -230,3 +236,56 @@ def test_discovery_names_and_clashes(tmp_path):
     single = tmp_path / "single.toml"
     shutil.copy(a, single)
     assert discover_campaigns([single]) == [("single", single)]
+
+
+_SLOW_SITE = """
+import os
+import time
+
+if os.environ.get("PB_TEST_SLOW"):
+    import polarbeam.pipeline as _p
+
+    _real = _p.analyze_compound
+
+    def _slow(*a, **k):
+        time.sleep(float(os.environ["PB_TEST_SLOW"]))
+        return _real(*a, **k)
+
+    _p.analyze_compound = _slow
+"""
+
+
+@pytest.mark.skipif(sys.platform == "win32", reason="SIGINT to a child process is POSIX-only")
+def test_ctrl_c_on_the_command_line_then_resume(camp, inline_run, tmp_path):
+    """A real Ctrl-C (SIGINT) to `polarbeam analyze --jobs 2`, then `--resume`."""
+    import polarbeam
+
+    site = tmp_path / "site"
+    site.mkdir()
+    (site / "sitecustomize.py").write_text(_SLOW_SITE)  # slows each compound in every process
+    src = Path(polarbeam.__file__).resolve().parents[1]
+    env = dict(os.environ, PYTHONPATH=f"{site}{os.pathsep}{src}", PB_TEST_SLOW="0.4")
+    out = tmp_path / "out"
+    cmd = [sys.executable, "-m", "polarbeam", "analyze", str(camp), "-o", str(out), "-j", "2"]
+    proc = subprocess.Popen(
+        [*cmd, "--report-details", "1"],
+        env=env,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL),
+    )
+    deadline = time.monotonic() + 90
+    while not list((out / "compounds").glob("*.json")) and time.monotonic() < deadline:
+        time.sleep(0.02)
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=90)
+    assert proc.returncode == 130, err.decode()
+    assert "Traceback" not in err.decode()
+    assert "--resume" in err.decode()
+    state = json.loads((out / "batch-state.json").read_text())
+    done = state["compounds_done"]
+    assert state["complete"] is False and 1 <= done < 5
+    assert len(list((out / "compounds").glob("*.json"))) == done
+    outcome = run_batch(camp, out, resume=True, report_details=1)
+    assert outcome.runs[0].reused == done
+    assert _files(out) == _files(inline_run[0])
