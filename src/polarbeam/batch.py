@@ -567,6 +567,8 @@ def discover_campaigns(inputs: Sequence[str | Path]) -> list[tuple[str, Path]]:
                     "found none"
                 )
             found.extend(inner)
+        elif p.suffix == ".toml":
+            raise InputError(f"{p}: campaign file not found")
         else:
             raise InputError(f"{p}: campaign file or folder not found")
     out: list[tuple[str, Path]] = []
