@@ -47,12 +47,14 @@ __all__ = [
     "BatchOutcome",
     "CampaignRun",
     "ProgressEvent",
+    "TerminalProgress",
     "campaign_key",
     "compound_hashes",
     "decode_compound",
     "discover_campaigns",
     "encode_compound",
     "run_batch",
+    "run_cli",
     "safe_name",
 ]
 
@@ -885,8 +887,7 @@ class TerminalProgress:
         self._bar = None
         self._task = None
         self._last = 0.0
-        self._t0 = time.perf_counter()
-        self._start_done = 0
+        self._first: tuple[float, int] | None = None
         if not self.plain:
             try:
                 from rich.console import Console
@@ -919,7 +920,7 @@ class TerminalProgress:
     def __call__(self, ev: ProgressEvent) -> None:
         now = time.perf_counter()
         if ev.compound is None:
-            self._t0, self._start_done, self._last = now, ev.done, now
+            self._first, self._last = None, now
             if self._bar is not None:
                 if self._task is not None:
                     self._bar.stop_task(self._task)
@@ -937,12 +938,17 @@ class TerminalProgress:
         if self._bar is not None:
             self._bar.update(self._task, completed=ev.done)
             return
+        if self._first is None:  # rates from the first result on (workers take a while to start)
+            self._first = (now, ev.done)
+            self._last = now
         if ev.done == ev.total or now - self._last >= self.every_s:
             self._last = now
-            rate = (ev.done - self._start_done) / max(now - self._t0, 1e-9)
+            t1, d1 = self._first
+            rate = (ev.done - d1) / (now - t1) if now > t1 else 0.0
             left = (ev.total - ev.done) / rate if rate > 0 else math.inf
             eta = f", ETA {left:.0f} s" if math.isfinite(left) and ev.done < ev.total else ""
-            self._line(f"{ev.campaign}: {ev.done}/{ev.total} compounds ({rate:.1f}/s{eta})")
+            speed = f" ({rate:.1f}/s{eta})" if rate > 0 else ""
+            self._line(f"{ev.campaign}: {ev.done}/{ev.total} compounds{speed}")
 
     def close(self) -> None:
         if self._bar is not None:
