@@ -17,6 +17,7 @@ __all__ = ["app", "main"]
 
 app = typer.Typer(
     add_completion=False,
+    pretty_exceptions_enable=False,
     no_args_is_help=True,
     help="polarbeam: polarizabilities and dipole moments from beam-deflection campaigns.",
 )
@@ -29,32 +30,54 @@ def _fail(exc: Exception, code: int = 2):
 
 @app.command()
 def analyze(
-    campaign: Path = typer.Argument(..., help="campaign.toml"),
+    campaigns: list[Path] = typer.Argument(
+        ..., help="campaign.toml file(s), or folder(s) of campaigns"
+    ),
     out: Path = typer.Option(Path("results"), "--out", "-o", help="results folder"),
-    quiet: bool = typer.Option(False, "--quiet", "-q", help="no terminal table"),
+    quiet: bool = typer.Option(False, "--quiet", "-q", help="no terminal table or progress"),
+    jobs: int = typer.Option(
+        None,
+        "--jobs",
+        "-j",
+        help="worker processes (default 1: in this process; 0: one per core; with "
+        "--scheduler local: Dask workers, default one per core)",
+    ),
+    scheduler: str = typer.Option(
+        None,
+        "--scheduler",
+        help="run on Dask: 'local' starts a cluster on 127.0.0.1, or tcp://host:port of a "
+        "running scheduler (its workers must see the campaign files at the same paths)",
+    ),
+    dashboard: bool = typer.Option(
+        False, "--dashboard", help="with --scheduler local: serve Dask's dashboard on 127.0.0.1"
+    ),
+    resume: bool = typer.Option(
+        False, "--resume", help="keep compounds already done whose inputs are unchanged"
+    ),
+    report_details: int = typer.Option(
+        None,
+        "--report-details",
+        help="compounds given figures in report.html and figures/ (default 20; -1: all)",
+    ),
 ):
-    """Analyse a campaign: α_eff per series, α and μ per compound, report and budgets."""
-    from .pipeline import analyze as run
-    from .report import render_terminal
+    """Analyse campaigns: α_eff per series, α and μ per compound, report and budgets."""
+    from .batch import run_cli
 
     try:
-        result = run(campaign, out)
+        code = run_cli(
+            campaigns,
+            out,
+            quiet=quiet,
+            jobs=jobs,
+            scheduler=scheduler,
+            dashboard=dashboard,
+            resume=resume,
+            report_details=report_details,
+            echo=typer.echo,
+        )
     except PolarbeamError as exc:
         _fail(exc)
-    if not quiet:
-        typer.echo(render_terminal(result))
-        typer.echo(
-            f"results written to {out}/ (series.csv, properties.csv, results.json, report.md)"
-        )
-        if getattr(result, "recoil", None) is not None:  # photon recoil (polarbeam.recoil)
-            typer.echo(f"photon-recoil cross-sections written to {out}/recoil.csv")
-    for c in result.compounds:
-        if c.status == "failed":
-            typer.echo(f"failed: {c.compound}: {c.message}", err=True)
-    for c in getattr(getattr(result, "recoil", None), "compounds", ()):
-        if c.status == "failed":
-            typer.echo(f"failed (recoil): {c.compound}: {c.message}", err=True)
-    raise typer.Exit(result.exit_code)
+    raise typer.Exit(code)
 
 
 @app.command()
@@ -289,3 +312,11 @@ def main() -> None:  # pragma: no cover - entry point
     except KeyboardInterrupt:
         typer.echo("interrupted", err=True)
         sys.exit(130)
+    except PolarbeamError as exc:
+        typer.echo(f"error: {exc}", err=True)
+        sys.exit(2)
+    except Exception as exc:  # a bug, not bad input: still one line, and say so
+        typer.echo(
+            f"error: internal error ({type(exc).__name__}: {exc}); please report it", err=True
+        )
+        sys.exit(2)

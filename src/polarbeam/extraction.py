@@ -52,8 +52,15 @@ def observable_model(
         return kappa, np.ones_like(kappa)
     out = np.empty_like(kappa)
     mod = np.ones_like(kappa)
-    pairs = np.stack([velocities, spreads], axis=1)
-    for v, s in np.unique(pairs, axis=0):
+    velocities = np.asarray(velocities, dtype=float)
+    spreads = np.asarray(spreads, dtype=float)
+    if velocities.size == 0:
+        groups = []
+    elif np.all(velocities == velocities.flat[0]) and np.all(spreads == spreads.flat[0]):
+        groups = [(velocities.flat[0], spreads.flat[0])]  # one velocity class (the usual case)
+    else:
+        groups = np.unique(np.stack([velocities, spreads], axis=1), axis=0)
+    for v, s in groups:
         sel = (velocities == v) & (spreads == s)
         if kind == "beam-profile":
             out[sel] = kappa[sel] * mean_inverse_square(v, s, nodes)

@@ -371,11 +371,16 @@ class CampaignResult:
 
         return render_markdown(self)
 
-    def to_report(self, path) -> None:
-        """Write the whole results folder (CSV, JSON, Markdown) to ``path``."""
+    def to_report(self, path, *, html: bool = True, details: int | None = None) -> None:
+        """Write the whole results folder (CSV, JSON, Markdown and, unless ``html=False``,
+        ``report.html`` with ``figures/``) to ``path``; ``details``: compounds with figures."""
         from .report import write_results
 
         write_results(self, path)
+        if html:
+            from .htmlreport import write_html
+
+            write_html(self, path, details=details)
 
     def _repr_html_(self) -> str:
         rows = []
