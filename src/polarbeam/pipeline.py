@@ -211,6 +211,14 @@ def cross_check(result: CompoundResult, cd: CompoundData, c: Campaign) -> Compou
     )
 
 
+def _float_or_none(x):
+    try:
+        x = float(x)
+    except (TypeError, ValueError):
+        return None
+    return x if math.isfinite(x) else None
+
+
 def _join(message: str, note: str) -> str:
     return note if message in ("", "ok") else f"{message}; {note}"
 
@@ -408,8 +416,26 @@ def computed_comparison(c: Campaign, result: CampaignResult) -> CampaignResult:
     series = result.series
     series_cmp = cc.compare_series(series, computed) if len(series) else pd.DataFrame()
     parity = cc.parity_table(comparison) if len(comparison) else pd.DataFrame()
+    first = {}  # the first method per compound, shown beside the measured value in the reports
+    for row in computed.to_dict(orient="records"):
+        first.setdefault(str(row["compound"]), row)
+    compounds = tuple(
+        replace(
+            cr,
+            extra={
+                **cr.extra,
+                "alpha_computed_A3": float(first[cr.compound]["alpha_computed_A3"]),
+                "dipole_computed_D": _float_or_none(first[cr.compound].get("dipole_computed_D")),
+                "computed_method": str(first[cr.compound]["method"]),
+            },
+        )
+        if cr.compound in first
+        else cr
+        for cr in result.compounds
+    )
     return replace(
         result,
+        compounds=compounds,
         comparison=comparison,
         series_comparison=series_cmp,
         parity=parity,
