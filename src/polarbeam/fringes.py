@@ -1260,6 +1260,24 @@ def _read_csv(path: Path) -> pd.DataFrame:
     return table.to_pandas(split_blocks=True, self_destruct=True)
 
 
+def _arrow_to_frame(table) -> pd.DataFrame:
+    """Arrow table → DataFrame without pandas' generic conversion (numeric columns are handed
+    over as NumPy views; the dictionary-encoded compound column becomes a Categorical)."""
+    cols = {}
+    for name in table.column_names:
+        col = table.column(name)
+        if name == "compound":
+            arr = col.unify_dictionaries().combine_chunks()
+            if not hasattr(arr, "indices"):
+                raise TypeError("compound column is not dictionary encoded")
+            codes = arr.indices.fill_null(-1).to_numpy(zero_copy_only=False)
+            cats = [str(v) for v in arr.dictionary.to_pylist()]
+            cols[name] = pd.Categorical.from_codes(codes.astype(np.int64), cats)
+        else:
+            cols[name] = col.to_numpy()
+    return pd.DataFrame(cols, copy=False)
+
+
 def _read_table(path: Path) -> pd.DataFrame:
     suffix = path.suffix.lower()
     if suffix in (".parquet", ".pq"):
@@ -1271,7 +1289,10 @@ def _read_table(path: Path) -> pd.DataFrame:
             ) from exc
         try:
             table = pq.read_table(path, read_dictionary=["compound"])
-            return table.to_pandas(split_blocks=True, self_destruct=True)
+            try:
+                return _arrow_to_frame(table)
+            except Exception:  # unusual column types: let pandas convert them
+                return table.to_pandas(split_blocks=True, self_destruct=True)
         except Exception as exc:  # pyarrow raises several types for corrupt files
             msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
             raise InputError(f"{path}: cannot read Parquet file: {msg}") from exc
