@@ -112,6 +112,7 @@ __all__ = [
 BRANCH_Z = 4.0
 #: Candidate ladder levels per requested level (grid evenly spaced in V²).
 GRID_PER_LEVEL = 6
+_EXACT_TARGET_MAX = 400  # scans per voltage up to which the target search uses exact Fisher values
 Criterion = Literal["determinant", "alpha", "dipole"]
 _CRITERIA = ("determinant", "alpha", "dipole")
 
@@ -347,40 +348,53 @@ class LadderPrecision:
 def _precision_core(
     jac: np.ndarray,
     var: np.ndarray,
-    d_vel: np.ndarray,
+    d_vel: np.ndarray | None,
     fixed: np.ndarray,
     fit_offset: bool,
 ) -> tuple[float, float, np.ndarray]:
+    """(σ²_stat(α_eff), ∂α̂/∂v̄, point variances) for Jacobian ``jac`` and point covariance."""
     cov = fixed + np.diag(var)
-    chol = np.linalg.cholesky(cov)
     cols = [jac, np.ones_like(jac)] if fit_offset else [jac]
-    a = np.linalg.solve(chol, np.column_stack(cols))
-    fisher = a.T @ a
-    inv = np.linalg.inv(fisher)
-    dv = np.linalg.solve(chol, d_vel)
-    dtheta = -inv @ (a.T @ dv)
-    return float(inv[0, 0]), float(dtheta[0]), np.diag(cov)
+    k = len(cols)
+    if d_vel is not None:
+        cols.append(d_vel)
+    rhs = np.column_stack(cols)
+    sol = np.linalg.solve(cov, rhs)  # Σ⁻¹ [J, ∂φ/∂v]
+    fisher = rhs[:, :k].T @ sol[:, :k]
+    if k == 2:
+        det = fisher[0, 0] * fisher[1, 1] - fisher[0, 1] ** 2
+        inv = np.array([[fisher[1, 1], -fisher[0, 1]], [-fisher[0, 1], fisher[0, 0]]]) / det
+    else:
+        inv = 1.0 / fisher
+    dadv = 0.0
+    if d_vel is not None:
+        dadv = float(-(inv @ (rhs[:, :k].T @ sol[:, k]))[0])
+    return float(inv[0, 0]), dadv, np.diag(cov)
 
 
 def _branch_excess(
     levels_phase: np.ndarray, levels_v: np.ndarray, rank: np.ndarray, diag: np.ndarray
 ) -> float:
-    """How far (rad) the branch choice of the reduction falls short of BRANCH_Z safety."""
-    w = 1.0 / diag
-    sxx = sxy = 0.0
-    worst = -math.inf
-    for r in range(levels_v.size):
-        sel = rank == r
-        v2 = levels_v[r] ** 2
-        err2 = float(np.max(diag[sel]))
-        if sxx > 0:
-            target = sxy / sxx * v2
-            sig_t = math.sqrt(v2 * v2 / sxx + err2)
-        else:
-            target, sig_t = 0.0, math.sqrt(err2)
-        worst = max(worst, abs(target - levels_phase[r]) + BRANCH_Z * sig_t - math.pi)
-        sxx += float(np.sum(w[sel])) * v2 * v2
-        sxy += float(np.sum(w[sel])) * v2 * levels_phase[r]
+    """How far (rad) the branch choice of the reduction falls short of BRANCH_Z safety.
+
+    Levels are visited by increasing |V|; the target of level r is the weighted least-squares
+    slope of the lower levels (through zero in V²) times V_r², as in
+    :func:`polarbeam.fringes.choose_branches`.
+    """
+    n = levels_v.size
+    w_lev = np.bincount(rank, weights=1.0 / diag, minlength=n)
+    err2 = np.zeros(n)
+    np.maximum.at(err2, rank, diag)
+    v2 = levels_v**2
+    sxx = np.zeros(n)
+    sxy = np.zeros(n)
+    np.cumsum((w_lev * v2 * v2)[:-1], out=sxx[1:])
+    np.cumsum((w_lev * v2 * levels_phase)[:-1], out=sxy[1:])
+    has = sxx > 0
+    safe = np.where(has, sxx, 1.0)
+    target = np.where(has, sxy / safe * v2, 0.0)
+    sig_t = np.sqrt(np.where(has, v2 * v2 / safe, 0.0) + err2)
+    worst = float(np.max(np.abs(target - levels_phase) + BRANCH_Z * sig_t - math.pi))
     return max(worst, 0.0)
 
 
@@ -477,12 +491,19 @@ def design_ladder(
     fixed = _fixed_covariance(seq, model.reference_variance, diffusion_rad2_s)
     rank = seq.rank[~seq.is_reference]
 
+    cache: dict[tuple[int, ...], tuple[float, float]] = {}
+
     def score(idx: tuple[int, ...]) -> tuple[float, float]:
+        if idx not in cache:
+            cache[idx] = _score(idx)
+        return cache[idx]
+
+    def _score(idx: tuple[int, ...]) -> tuple[float, float]:
         ids = np.asarray(idx)
         g = ids[rank]
         try:
             var_a, _, diag = _precision_core(
-                ev["d_alpha"][g], ev["var"][g], ev["d_velocity"][g], fixed, fit_offset
+                ev["d_alpha"][g], ev["var"][g], None, fixed, fit_offset
             )
         except np.linalg.LinAlgError:
             return (math.inf, math.inf)
@@ -1088,6 +1109,7 @@ class SeriesPlan:
     signal_counts: float  # per scan at zero field
     dark_counts: float
     beam_time_s: float
+    model: SeriesModel | None = None
     scans_per_voltage_target: int | None = None
     beam_time_target_s: float | None = None
     notes: tuple[str, ...] = ()
@@ -1107,7 +1129,7 @@ class SeriesPlan:
         return self.ladder.sigma_stat_A3**2 + self.sigma_velocity_A3**2
 
     def summary(self) -> dict[str, Any]:
-        out = {k: v for k, v in self.__dict__.items() if k not in ("ladder", "even")}
+        out = {k: v for k, v in self.__dict__.items() if k not in ("ladder", "even", "model")}
         out["ladder"] = asdict(self.ladder)
         out["even_ladder"] = asdict(self.even)
         out["sigma_stat_A3"] = self.sigma_stat_A3
@@ -1391,13 +1413,7 @@ def _series_plan(
         vis_obs,
         camp.settings.velocity_nodes,
     )
-    timing = {
-        "reference_every": plan.reference_every,
-        "scan_time_s": plan.scan_time,
-        "dead_time_s": plan.scan_dead_time,
-        "diffusion_rad2_s": plan.phase_diffusion,
-        "fit_offset": camp.settings.fit_offset,
-    }
+    timing = _timing(plan, camp)
     notes: list[str] = []
     ladder_kind = ladder_override or plan.ladder
     if isinstance(ladder_kind, tuple):
@@ -1451,14 +1467,23 @@ def _series_plan(
         signal_counts=sig,
         dark_counts=dark,
         beam_time_s=time_s,
+        model=model,
         notes=tuple(notes),
     )
-    if plan.target_alpha_rel is not None:
-        sp = _target_scans(sp, model, plan, timing)
     return sp
 
 
-def _target_scans(sp: SeriesPlan, model: SeriesModel, plan: PlanSettings, timing) -> SeriesPlan:
+def _timing(plan: PlanSettings, camp) -> dict[str, Any]:
+    return {
+        "reference_every": plan.reference_every,
+        "scan_time_s": plan.scan_time,
+        "dead_time_s": plan.scan_dead_time,
+        "diffusion_rad2_s": plan.phase_diffusion,
+        "fit_offset": camp.settings.fit_offset,
+    }
+
+
+def _target_scans(sp: SeriesPlan, plan: PlanSettings, timing) -> SeriesPlan:
     """Scans per voltage (and beam time) that reach target_alpha_rel on α_eff, if reachable."""
     target = plan.target_alpha_rel * sp.alpha_eff_pred_A3
     sys2 = sp.sigma_scale_A3**2
@@ -1471,25 +1496,30 @@ def _target_scans(sp: SeriesPlan, model: SeriesModel, plan: PlanSettings, timing
             "(coupling, mass and velocity errors): no beam time reaches it"
         )
         return replace(sp, beam_time_target_s=math.inf, notes=(*sp.notes, note))
-    k = max(
-        1,
-        math.ceil(
-            k0
-            * sp.ladder.sigma_stat_A3**2
-            / max(target**2 - sys2 - sp.sigma_velocity_A3**2, 1e-300)
-        ),
-    )
-    k = min(k, 100000)
-    for _ in range(20):
-        if k > 2000:
-            break
-        lp = ladder_precision(model, sp.ladder.levels_V, k, **timing)
-        tot = math.sqrt(
-            lp.sigma_stat_A3**2 + (lp.dalpha_dvelocity * sp.velocity_err_m_s) ** 2 + sys2
-        )
-        if tot <= target:
-            break
-        k += max(1, k // 10)
+    room = max(target**2 - sys2 - sp.sigma_velocity_A3**2, 1e-300)
+    estimate = max(1, math.ceil(k0 * sp.ladder.sigma_stat_A3**2 / room))  # σ²_stat ∝ 1/k
+
+    def reaches(k: int) -> bool:
+        lp = ladder_precision(sp.model, sp.ladder.levels_V, k, **timing)
+        vel2 = (lp.dalpha_dvelocity * sp.velocity_err_m_s) ** 2
+        return lp.sigma_stat_A3**2 + vel2 + sys2 <= target**2
+
+    if estimate > _EXACT_TARGET_MAX:
+        k = estimate  # beyond a few hundred passes the 1/k scaling is exact enough
+    else:  # the smallest k that reaches the target, by bisection on the exact Fisher value
+        hi = estimate
+        while not reaches(hi):
+            hi *= 2
+            if hi > _EXACT_TARGET_MAX:
+                break
+        lo = 0
+        while hi - lo > 1 and hi <= _EXACT_TARGET_MAX:
+            mid = (lo + hi) // 2
+            if reaches(mid):
+                hi = mid
+            else:
+                lo = mid
+        k = hi
     n_sig = k * len(sp.ladder.levels_V)
     n_scans = n_sig + (-(-n_sig // plan.reference_every)) + 1
     return replace(
@@ -1589,6 +1619,8 @@ def _plan_compound_inner(pc, camp, ctx, plan: PlanSettings, scale_rel: float) ->
         best_val, chosen, best_dp = scored[0]
         temperature_sets.insert(0, _set_record("best (chosen)", chosen, best_dp, best_val))
     ss = tuple(series(t) for t in chosen)
+    if plan.target_alpha_rel is not None:
+        ss = tuple(_target_scans(s, plan, _timing(plan, camp)) for s in ss)
     dp = debye_for(chosen)
     warnings = list(pred.notes)
     for s in ss:
@@ -2070,20 +2102,10 @@ def _plot_compound(c: CompoundPlan, cplan: CampaignPlan, path: Path) -> None:
     matplotlib.use("Agg", force=False)
     import matplotlib.pyplot as plt
 
-    camp, st = cplan.campaign, cplan.settings
+    st = cplan.settings
     fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(7, 6), sharex=True)
     for s in c.series:
-        model = SeriesModel(
-            s.alpha_eff_pred_A3,
-            cplan.coupling / (c.mass_u * AMU),
-            s.velocity_m_s,
-            s.velocity_spread_m_s,
-            camp.layout,
-            1.0,
-            st.visibility,
-            st.visibility,
-            camp.settings.velocity_nodes,
-        )
+        model = s.model
         vv = np.linspace(0.0, 1.15 * s.voltage_max_V, 300)[1:]
         ph, mod = model.phase(vv)
         (line,) = ax1.plot(vv, ph, label=f"{s.temperature_K:g} K")
