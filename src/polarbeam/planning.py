@@ -2097,13 +2097,13 @@ def _render_markdown(p: CampaignPlan) -> str:
 
 
 def _plot_compound(c: CompoundPlan, cplan: CampaignPlan, path: Path) -> None:
-    import matplotlib
-
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
 
     st = cplan.settings
-    fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(7, 6), sharex=True)
+    fig = Figure(figsize=(7, 6))
+    FigureCanvasAgg(fig)
+    ax1, ax2 = fig.subplots(2, 1, sharex=True)
     for s in c.series:
         model = s.model
         vv = np.linspace(0.0, 1.15 * s.voltage_max_V, 300)[1:]
@@ -2124,7 +2124,6 @@ def _plot_compound(c: CompoundPlan, cplan: CampaignPlan, path: Path) -> None:
     ax2.legend(fontsize=8)
     fig.tight_layout()
     fig.savefig(path, dpi=110)
-    plt.close(fig)
 
 
 def write_plan(cplan: CampaignPlan, out: str | Path, *, rehearsal: bool | None = None) -> Path:
