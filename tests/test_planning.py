@@ -19,6 +19,7 @@ from typer.testing import CliRunner
 from polarbeam.cli import app
 from polarbeam.errors import InputError
 from polarbeam.fringes import fit_scans
+from polarbeam.pipeline import analyze
 from polarbeam.planning import (
     SeriesModel,
     _fixed_covariance,
@@ -33,6 +34,7 @@ from polarbeam.planning import (
     plan_campaign,
     rehearsal_scatter,
     voltage_max,
+    write_plan,
 )
 
 runner = CliRunner()
@@ -212,7 +214,7 @@ def test_time_domain_plan_closed_form(tmp_path):
     (tmp_path / "campaign.toml").write_text(
         head
         + '[data]\ncompounds = "compounds.csv"\n\n[plan]\ntemperatures_K = [400, 600]\n'
-        + 'visibility = 0.3\ncounts_per_bin = 100\nscan_time = "10 s"\nphase_limit = "2.5 rad"\n'
+        + 'visibility = 0.3\ncounts_per_bin = 100\nscan_time = "10 s"\nphase_limit = "2.5 rad"\ntemperature_err = "1 K"\n'
     )
     (tmp_path / "compounds.csv").write_text("compound,mass_u,alpha_A3,dipole_D\ntd-1,250,30,1.0\n")
     camp_text = (tmp_path / "campaign.toml").read_text()
@@ -230,6 +232,11 @@ def test_time_domain_plan_closed_form(tmp_path):
         vmax = math.sqrt(2.5 * 250 * sc.atomic_mass / (a_si * p.coupling))
         assert s.voltage_max_V == pytest.approx(vmax, rel=1e-6)
         assert s.sigma_velocity_A3 == 0.0
+    # the time-domain rehearsal goes through the analysis too
+    write_plan(p, tmp_path / "plan")
+    res = analyze(tmp_path / "plan" / "rehearsal" / "campaign.toml")
+    assert [c.status for c in res.compounds] != ["failed"], res.compounds[0].message
+    assert len(res.compounds[0].series) == 2
 
 
 # ---------------------------------------------------------------------------------------------
@@ -489,3 +496,22 @@ def test_cli_structural_error_is_one_line(tmp_path):
 
 def test_even_ladder_is_evenly_spaced():
     assert np.allclose(even_ladder(300.0, 6), [50, 100, 150, 200, 250, 300])
+
+
+def test_velocity_scaling_and_design_margin(demo_plan):
+    camp = demo_plan.campaign
+    _, _, comps = load_plan(EXAMPLE)
+    one = [c for c in comps if c.name == "DM-101"]
+    plan = replace(demo_plan.settings, velocity_temperature_K=340.0, design_margin=1.0)
+    p = plan_campaign(camp, plan, one)
+    lo, hi = p.compounds[0].series
+    # a thermal source: v ∝ sqrt(T), spread and calibration error scale alike
+    assert hi.velocity_m_s == pytest.approx(210.0 * math.sqrt(640 / 340), rel=1e-12)
+    assert hi.velocity_spread_m_s == pytest.approx(25.0 * math.sqrt(640 / 340), rel=1e-12)
+    assert lo.velocity_m_s == pytest.approx(210.0)
+    # the margin designs the ladder for α_eff + 1σ of the prediction: the phase limit is reached
+    # there, so the predicted α_eff stays below it
+    a_hi = lo.alpha_eff_pred_A3 + lo.alpha_eff_pred_err_A3
+    ph, _ = lo.model.phase([lo.voltage_max_V], alpha_A3=a_hi)
+    assert ph[0] == pytest.approx(plan.phase_limit, abs=1e-6)
+    assert max(lo.ladder.phase_rad) < plan.phase_limit

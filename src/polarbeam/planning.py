@@ -1245,6 +1245,11 @@ class CampaignPlan:
                             if s.beam_time_target_s is None
                             else s.beam_time_target_s / 3600
                         ),
+                        "beam_time_dipole_target_h": (
+                            math.nan
+                            if c.beam_time_dipole_target_s is None
+                            else c.beam_time_dipole_target_s / 3600
+                        ),
                         "velocity_m_s": s.velocity_m_s,
                     }
                 )
@@ -1608,11 +1613,11 @@ def _plan_compound_inner(pc, camp, ctx, plan: PlanSettings, scale_rel: float) ->
         scored = []
         for ts in sets:
             dp = debye_for(ts)
-            val = _criterion(dp, plan.temperature_criterion) if dp else ss_alpha(series(ts[0]))
+            val = _criterion(dp, plan.temperature_criterion) if dp else _series_sigma(series(ts[0]))
             scored.append((val, ts, dp))
         for label, ts in named.items():
             dp = debye_for(ts)
-            val = _criterion(dp, plan.temperature_criterion) if dp else ss_alpha(series(ts[0]))
+            val = _criterion(dp, plan.temperature_criterion) if dp else _series_sigma(series(ts[0]))
             scored.append((val, ts, dp))
             temperature_sets.append(_set_record(label, ts, dp, val))
         scored.sort(key=lambda r: r[0])
@@ -1673,7 +1678,7 @@ def _plan_compound_inner(pc, camp, ctx, plan: PlanSettings, scale_rel: float) ->
     )
 
 
-def ss_alpha(s: SeriesPlan) -> float:
+def _series_sigma(s: SeriesPlan) -> float:
     return s.sigma_total_A3
 
 
@@ -2089,7 +2094,11 @@ def _render_markdown(p: CampaignPlan) -> str:
                 f"| {_fmt(r['sigma_alpha_A3'])} | {_fmt(r['sigma_mu2_D2'])} | "
                 f"{_fmt(r['corr'], '.2f')} |"
             )
-    notes = [f"{c.compound}: {w}" for c in p.compounds for w in c.warnings]
+    notes = [
+        w if w.startswith(c.compound) else f"{c.compound}: {w}"
+        for c in p.compounds
+        for w in c.warnings
+    ]
     if notes or p.notes:
         lines += ["", "Notes:", ""] + [f"* {n}" for n in (*p.notes, *notes)]
     lines += ["", "## Safety", "", CAUTIONS, ""]
