@@ -214,7 +214,8 @@ def test_time_domain_plan_closed_form(tmp_path):
     (tmp_path / "campaign.toml").write_text(
         head
         + '[data]\ncompounds = "compounds.csv"\n\n[plan]\ntemperatures_K = [400, 600]\n'
-        + 'visibility = 0.3\ncounts_per_bin = 100\nscan_time = "10 s"\nphase_limit = "2.5 rad"\ntemperature_err = "1 K"\n'
+        + 'visibility = 0.3\ncounts_per_bin = 100\nscan_time = "10 s"\nphase_limit = "2.5 rad"\n'
+        + 'temperature_err = "1 K"\n'
     )
     (tmp_path / "compounds.csv").write_text("compound,mass_u,alpha_A3,dipole_D\ntd-1,250,30,1.0\n")
     camp_text = (tmp_path / "campaign.toml").read_text()
