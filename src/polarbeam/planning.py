@@ -2003,15 +2003,26 @@ def write_rehearsal(cplan: CampaignPlan, out_dir: str | Path, seed: int | None =
         lines.append(f"[{tname}]")
         lines += [f"{k} = {_toml_value(v)}" for k, v in tab.items()]
         lines.append("")
-    lines += ["[data]", 'scans = "scans.csv"', 'compounds = "compounds.csv"', ""]
+    lines += ["[data]", 'scans = "scans.csv"', 'compounds = "compounds.csv"']
+    sdf = raw.get("data", {}).get("structures")
+    if isinstance(sdf, str):  # the structures travel with the rehearsal for the cross-check
+        src = (camp.path.parent / sdf).resolve()
+        shutil.copyfile(src, out / src.name)
+        lines.append(f"structures = {_toml_value(src.name)}")
+    lines.append("")
     write_text_atomic(
         out / "scans.csv", table.to_csv(index=False, float_format="%.10g", lineterminator="\n")
     )
-    clines = ["compound,mass_u,mass_err_u,smiles"]
+    import csv
+    import io
+
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow(["compound", "mass_u", "mass_err_u", "smiles"])
     for c in cplan.compounds:
         if c.status != "failed":
-            clines.append(f"{c.compound},{c.mass_u:.8g},{c.mass_err_u:g},{c.smiles or ''}")
-    write_text_atomic(out / "compounds.csv", "\n".join(clines) + "\n")
+            writer.writerow([c.compound, f"{c.mass_u:.8g}", f"{c.mass_err_u:g}", c.smiles or ""])
+    write_text_atomic(out / "compounds.csv", buf.getvalue())
     write_text_atomic(
         out / "truth.csv",
         "# invented truth of the simulated rehearsal (not measurements)\n"
