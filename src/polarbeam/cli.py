@@ -108,6 +108,38 @@ def reduce(
 
 
 @app.command()
+def plan(
+    campaign: Path = typer.Argument(..., help="campaign.toml with a [plan] table and no data"),
+    out: Path = typer.Option(Path("plan"), "--out", "-o", help="plan folder"),
+    rehearsal: bool = typer.Option(True, help="write rehearsal/ (simulated raw scans)"),
+):
+    """Plan a campaign: predicted phases, voltage ladders, expected precision, beam time."""
+    from .planning import make_plan, write_plan
+
+    try:
+        result = make_plan(campaign)
+        write_plan(result, out, rehearsal=rehearsal and result.settings.rehearsal)
+    except PolarbeamError as exc:
+        _fail(exc)
+    table = result.table()
+    if len(table):
+        cols = [
+            "compound",
+            "temperature_K",
+            "alpha_eff_pred_A3",
+            "sigma_alpha_eff_pred_A3",
+            "voltage_max_V",
+            "beam_time_h",
+        ]
+        typer.echo(table[cols].to_string(index=False, float_format=lambda x: f"{x:.4g}"))
+    typer.echo(f"plan written to {out}/ (plan.csv, plan.json, plan.md, plots, rehearsal/)")
+    for c in result.compounds:
+        if c.status == "failed":
+            typer.echo(f"failed: {c.compound}: {c.message}", err=True)
+    raise typer.Exit(result.exit_code)
+
+
+@app.command()
 def estimate(
     input: Path = typer.Argument(..., help="CSV with compound, smiles (+ any columns) or an SDF"),
     out: Path = typer.Option(..., "--out", "-o", help="output CSV"),
