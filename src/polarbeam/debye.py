@@ -59,10 +59,10 @@ def debye_fit(alpha_eff: list[UFloat], temperatures: list[UFloat]) -> DebyeFit:
     unit = ANGSTROM3_SI  # work in Å³ and 1/K so the normal equations stay well scaled
     alpha_eff = [a / unit for a in alpha_eff]
     x = [1.0 / t for t in temperatures]
-    xn = np.array([xi.nominal_value for xi in x])
+    xn = np.array([getattr(xi, "nominal_value", xi) for xi in x])
     yn = np.array([a.nominal_value for a in alpha_eff])
     var = specific_variances(alpha_eff)
-    sx = np.array([xi.std_dev for xi in x])
+    sx = np.array([getattr(xi, "std_dev", 0.0) for xi in x])
     if np.any(var <= 0):  # nothing series-specific: fall back to the total variances
         var = np.array([a.std_dev**2 for a in alpha_eff])
     beta = 0.0

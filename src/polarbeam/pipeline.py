@@ -13,7 +13,6 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-import uncertainties
 from uncertainties import ufloat
 
 from .campaign import Campaign, CompoundData, load_campaign
@@ -293,7 +292,7 @@ def _analyze_compound(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float
         temps.append(
             ufloat(s.temperature.value, s.temperature.error, tag=f"temperature: {s.label}")
             if s.temperature.error > 0
-            else uncertainties.ufloat(s.temperature.value, 0.0)
+            else s.temperature.value
         )
     if not results:
         raise CompoundError(f"compound {cd.name!r}: no series to analyse")
