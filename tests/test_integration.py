@@ -235,3 +235,30 @@ def test_monte_carlo_agrees_with_linear_propagation():
         mc = float(np.std(draws[k], ddof=1))
         # 250 draws: the MC standard deviation itself is uncertain by ~4.5 %
         assert abs(mc / sigma - 1) < 0.15, (k, mc, sigma)
+
+
+def test_mass_from_structure_when_not_stated(tmp_path):
+    d = tmp_path / "camp"
+    shutil.copytree(DEMO, d)
+    comp = pd.read_csv(d / "compounds.csv")
+    comp = comp.drop(columns=["mass_u"])
+    comp.to_csv(d / "compounds.csv", index=False)
+    res = analyze(d / "campaign.toml")
+    c = next(c for c in res.compounds if c.compound == "DM-102")
+    # biphenyl C12H10: average molecular mass 154.21 u (IUPAC atomic weights via RDKit)
+    assert abs(c.mass_u - 154.21) < 0.01 and c.alpha is not None
+    toml = (d / "campaign.toml").read_text() + '\n[analysis]\nmass = "monoisotopic"\n'
+    (d / "campaign.toml").write_text(toml)
+    c = next(c for c in analyze(d / "campaign.toml").compounds if c.compound == "DM-102")
+    assert abs(c.mass_u - 154.0783) < 1e-3  # 12 × 12 + 10 × 1.007825 (monoisotopic)
+
+
+def test_no_mass_and_no_structure_fails_only_that_compound(tmp_path):
+    d = tmp_path / "camp"
+    shutil.copytree(DEMO, d)
+    text = (d / "compounds.csv").read_text().replace("DM-103,181.45", "DM-103,")
+    text = text.replace("Clc1cc(Cl)cc(Cl)c1", "")
+    (d / "compounds.csv").write_text(text)
+    by = {c.compound: c for c in analyze(d / "campaign.toml").compounds}
+    assert by["DM-103"].status == "failed" and "mass_u" in by["DM-103"].message
+    assert by["DM-102"].status != "failed"

@@ -108,6 +108,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "conformers": None,
         "conformer_seed": None,
         "calibration": None,
+        "mass": None,
     },
 }
 # the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
@@ -162,6 +163,7 @@ class AnalysisSettings:
     conformers: int = 10  # conformers for the predicted dipole (0: no dipole prediction)
     conformer_seed: int = 61453
     calibration: str = "auto"  # "auto" | "check" | "off": use of reference compounds
+    mass: str = "average"  # mass from a structure when mass_u is empty: average | monoisotopic
 
     def __post_init__(self):
         if self.scale_errors not in ("never", "birge"):
@@ -181,6 +183,10 @@ class AnalysisSettings:
         if not (isinstance(self.conformers, int) and 0 <= self.conformers <= 1000):
             raise InputError(
                 f"[analysis] conformers: expected an integer 0..1000, found {self.conformers!r}"
+            )
+        if self.mass not in ("average", "monoisotopic"):
+            raise InputError(
+                f"[analysis] mass: expected one of 'average', 'monoisotopic', found {self.mass!r}"
             )
         if self.calibration not in ("auto", "check", "off"):
             raise InputError(
@@ -492,6 +498,7 @@ def _settings(doc: dict, fname: str) -> AnalysisSettings:
         "conformers": int,
         "conformer_seed": int,
         "calibration": str,
+        "mass": str,
     }
     kw = {}
     for k, v in a.items():
@@ -529,8 +536,28 @@ def _optional_measured(table: Table, i: int, col: str, errcol: str, convert) -> 
     return Measured(convert(val), abs(convert(err)))
 
 
-def _load_compounds(path: Path):
-    table = read_table(path, ("compound", "mass_u"), "compounds")
+def _structure_mass_u(name: str, row: dict, structures: dict, kind: str) -> float | None:
+    """Mass (u) of a compound from its SDF record or SMILES, or None without a structure."""
+    rec = structures.get(name)
+    smiles = (row.get("smiles") or "").strip()
+    if rec is None and not smiles:
+        return None
+    from . import structure as st
+
+    if isinstance(rec, str):
+        raise CompoundError(f"structures file: record {name!r} could not be read ({rec})")
+    mol = rec if rec is not None else st.parse_smiles(smiles, name)
+    return st.mass_monoisotopic_u(mol) if kind == "monoisotopic" else st.mass_average_u(mol)
+
+
+def _load_compounds(path: Path, structures: dict | None = None, mass_kind: str = "average"):
+    structures = structures or {}
+    table = read_table(path, ("compound",), "compounds")
+    if "mass_u" not in table.columns and "smiles" not in table.columns and not structures:
+        raise InputError(
+            f"{table.name}: missing column(s) mass_u; expected compound, mass_u (or a smiles "
+            f"column / [data] structures to take the mass from), found {', '.join(table.columns)}"
+        )
     info: dict[str, dict] = {}
     for i, row in enumerate(table.rows):
         name = row.get("compound", "").strip()
@@ -544,7 +571,16 @@ def _load_compounds(path: Path):
                 raise CompoundError(
                     f"{table.name} line {table.lines[i]}: compound {name!r} listed twice"
                 )
-            m = table.number(i, "mass_u", positive=True)
+            if (row.get("mass_u") or "").strip():
+                m = table.number(i, "mass_u", positive=True)
+            else:  # no stated mass: the structure's (average, or monoisotopic on request)
+                m = _structure_mass_u(name, row, structures, mass_kind)
+                if m is None:
+                    raise CompoundError(
+                        f"{table.name} line {table.lines[i]}: column 'mass_u' expected a number "
+                        "> 0 (or a structure to take the mass from), found ''"
+                    )
+                entry["mass_source"] = f"{mass_kind} mass of the structure"
             dm = table.number(i, "mass_err_u", nonnegative=True, default=0.0)
             entry["mass"] = Measured(m * AMU, dm * AMU)
             entry["alpha_known"] = _optional_measured(
@@ -686,6 +722,7 @@ def load_campaign(path: str | Path) -> Campaign:
         waveform = _read_waveform((base / wf).resolve())
     data = doc.get("data", {})
     compounds_path = _data_path(base, doc, "compounds", fname)
+    structures = _load_structures(base, doc, fname)
     reduction = None
     notes: dict[str, list[str]] = {}
     ignored: tuple[str, ...] = ()
@@ -698,12 +735,12 @@ def load_campaign(path: str | Path) -> Campaign:
                 "(talbot-lau or time-domain), found 'beam-profile'"
             )
         shifts_path = _data_path(base, doc, "scans", fname)
-        info = _load_compounds(compounds_path)
+        info = _load_compounds(compounds_path, structures, settings.mass)
         reduction = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
         series, problems, notes = series_from_reduction(reduction)
     else:
         shifts_path = _data_path(base, doc, "shifts", fname, required=not has_recoil)
-        info = _load_compounds(compounds_path)
+        info = _load_compounds(compounds_path, structures, settings.mass)
         if shifts_path is not None:
             series, problems, ignored = _load_shifts(shifts_path, layout)
         else:
@@ -765,7 +802,6 @@ def load_campaign(path: str | Path) -> Campaign:
     unmeasured = tuple(
         n for n in info if n not in series and n not in problems and n not in in_recoil
     )
-    structures = _load_structures(base, doc, fname)
     computed = _data_path(base, doc, "computed", fname, required=False)
     if computed is not None and not computed.is_file():
         raise InputError(f"{computed}: computed-values file not found ([data] computed)")
