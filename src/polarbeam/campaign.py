@@ -674,6 +674,18 @@ def _load_shifts(path: Path, layout: str):
     return series, problems, ignored
 
 
+def read_toml(path: Path) -> dict:
+    """The TOML document of a campaign file, or a one-line :class:`InputError`."""
+    if not path.is_file():
+        raise InputError(f"{path}: campaign file not found")
+    try:
+        return tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{path.name}: invalid TOML ({exc})") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"{path}: cannot read campaign file ({exc.__class__.__name__})") from None
+
+
 def load_campaign(path: str | Path) -> Campaign:
     """Load and validate ``campaign.toml`` and its data files.
 
@@ -684,14 +696,7 @@ def load_campaign(path: str | Path) -> Campaign:
     """
     path = Path(path)
     fname = path.name
-    if not path.is_file():
-        raise InputError(f"{path}: campaign file not found")
-    try:
-        doc = tomllib.loads(path.read_text(encoding="utf-8"))
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"{fname}: invalid TOML ({exc})") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"{path}: cannot read campaign file ({exc.__class__.__name__})") from None
+    doc = read_toml(path)
     _check_keys(doc, fname)
     inst = doc.get("instrument", {})
     defl = doc.get("deflector", {})

@@ -61,7 +61,6 @@ import itertools
 import json
 import math
 import shutil
-import tomllib
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass, replace
 from pathlib import Path
@@ -1010,14 +1009,7 @@ def load_plan(path: str | Path):
 
     path = Path(path)
     fname = path.name
-    if not path.is_file():
-        raise InputError(f"{path}: campaign file not found")
-    try:
-        doc = tomllib.loads(path.read_text(encoding="utf-8"))
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"{fname}: invalid TOML ({exc})") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"{path}: cannot read campaign file ({exc.__class__.__name__})") from None
+    doc = cm.read_toml(path)
     if "plan" not in doc:
         raise InputError(
             f"{fname} [plan]: required table missing (a planning campaign describes the planned "
