@@ -52,7 +52,7 @@ from .constants import AMU
 from .errors import CompoundError, FitError, InputError
 from .extraction import FIT_TAG
 from .quantities import Measured, format_value_error, parse_quantity
-from .results import CAUTIONS, CampaignResult, variance_budget
+from .results import CAUTIONS, CampaignResult, _num, variance_budget
 from .tables import read_table
 from .velocity import velocity_nodes
 
@@ -938,13 +938,6 @@ class CrossSectionFit:
                 )
             ],
         }
-
-
-def _num(x):
-    if x is None:
-        return None
-    x = float(x)
-    return x if math.isfinite(x) else None
 
 
 @dataclass(frozen=True)
