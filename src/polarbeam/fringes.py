@@ -81,7 +81,7 @@ import logging
 import math
 import os
 import tempfile
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -753,11 +753,13 @@ def _banded_covariance(
     t_r: np.ndarray | None,
     diffusion: float,
     jitter: float,
-) -> np.ndarray:
+    sparse_out: bool = False,
+):
     """:func:`corrected_phase_covariance` for linear interpolation and independent references.
 
     Only scans sharing a reference or an interval are correlated: their pairs are enumerated
-    (upper triangle, then mirrored) and accumulated with one ``bincount``.
+    (upper triangle, then mirrored) and accumulated with one ``bincount`` (dense), or summed
+    into a CSR matrix (``sparse_out``: the memory and time grow with the band, not with n²).
     """
     n = var_s.size
     inner = np.flatnonzero(~exact)
@@ -785,6 +787,11 @@ def _banded_covariance(
     idx_up, val_up = np.concatenate(idx), np.concatenate(val)
     row, col = np.divmod(idx_up, n)
     off = row != col  # mirror the strict upper triangle: the same sums, so exactly symmetric
+    if sparse_out:
+        upper = sparse.coo_matrix((val_up, (row, col)), shape=(n, n)).tocsr()
+        upper.sum_duplicates()
+        strict = sparse.triu(upper, k=1, format="csr")
+        return (upper + strict.T).tocsr()
     flat = np.bincount(
         np.r_[idx_up, col[off] * n + row[off]],
         weights=np.r_[val_up, val_up[off]],
@@ -1417,6 +1424,37 @@ def read_phase_covariance(
 SeriesKey = tuple[str, float]
 
 
+def _shape0(cov, key) -> int:
+    return (cov.sparse(key) if isinstance(cov, DenseOnAccess) else cov[key]).shape[0]
+
+
+class DenseOnAccess(Mapping):
+    """Read-only mapping of series covariances kept sparse (banded) and handed out dense.
+
+    The reduction itself needs only the diagonals (``phase_err_rad``); a dense n×n matrix is made
+    (once, then cached) when a fit asks for it.
+    """
+
+    def __init__(self, blocks: dict):
+        self._sparse = dict(blocks)
+        self._dense: dict = {}
+
+    def __getitem__(self, key):
+        if key not in self._dense:
+            self._dense[key] = self._sparse[key].toarray()
+        return self._dense[key]
+
+    def __iter__(self):
+        return iter(self._sparse)
+
+    def __len__(self) -> int:
+        return len(self._sparse)
+
+    def sparse(self, key):
+        """The covariance of ``key`` as a SciPy CSR matrix (no dense copy)."""
+        return self._sparse[key]
+
+
 @dataclass(frozen=True, eq=False)
 class ReducedPhases:
     """Drift-corrected fringe phases of a campaign.
@@ -1490,7 +1528,7 @@ class ReducedPhases:
                 {
                     "compound": k[0],
                     "temperature_K": k[1],
-                    "kept": int(self.covariance[k].shape[0]),
+                    "kept": int(_shape0(self.covariance, k)),
                     "reference_visibility": self.reference_visibility.get(k, (np.nan, np.nan)),
                     "noise": self.noise[k].summary() if k in self.noise else None,
                 }
@@ -1706,10 +1744,11 @@ def reduce_table(
             times[good],
             est.level if est.model == "random-walk" else 0.0,
             est.level if est.model == "jitter" else 0.0,
+            sparse_out=True,
         )
         covariance[key] = cov
         out_phase[keep] = delta
-        out_err[keep] = np.sqrt(np.diag(cov))
+        out_err[keep] = np.sqrt(cov.diagonal())
         for i in sig[flags[sig] != 0]:
             messages.append(
                 f"{source}: scan {fits.scan[i]} ({key[0]}, {key[1]:g} K, "
@@ -1752,7 +1791,7 @@ def reduce_table(
         log.warning("%s: %d of %d scans flagged (see messages)", source, n_flagged, len(flags))
     return ReducedPhases(
         table=table,
-        covariance=covariance,
+        covariance=DenseOnAccess(covariance),
         references=references,
         reference_visibility=ref_vis,
         noise=noise,
