@@ -841,13 +841,12 @@ def load_campaign(path: str | Path) -> Campaign:
 def reduce_scans_file(path: Path, period_m: float):
     """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases."""
     from .errors import RowValueError
-    from .fringes import read_scans, reduce_table
+    from .fringes import reduce_file
 
     try:
-        df = read_scans(path)
+        return reduce_file(path, period_m)
     except RowValueError as exc:  # a bad cell in a raw-scan file is reported as structural
         raise InputError(str(exc)) from None
-    return reduce_table(df, period_m, source=Path(path).name)
 
 
 def series_from_reduction(reduction):

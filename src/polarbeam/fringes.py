@@ -110,6 +110,7 @@ __all__ = [
     "interpolation_weights",
     "read_phase_covariance",
     "read_scans",
+    "reduce_file",
     "reduce_table",
     "validate_scans",
     "write_phases",
@@ -787,11 +788,11 @@ def _banded_covariance(
     idx_up, val_up = np.concatenate(idx), np.concatenate(val)
     row, col = np.divmod(idx_up, n)
     off = row != col  # mirror the strict upper triangle: the same sums, so exactly symmetric
-    if sparse_out:
-        upper = sparse.coo_matrix((val_up, (row, col)), shape=(n, n)).tocsr()
-        upper.sum_duplicates()
-        strict = sparse.triu(upper, k=1, format="csr")
-        return (upper + strict.T).tocsr()
+    if sparse_out:  # both triangles at once; duplicates are summed by the CSR conversion
+        return sparse.csr_matrix(
+            (np.r_[val_up, val_up[off]], (np.r_[row, col[off]], np.r_[col, row[off]])),
+            shape=(n, n),
+        )
     flat = np.bincount(
         np.r_[idx_up, col[off] * n + row[off]],
         weights=np.r_[val_up, val_up[off]],
@@ -959,13 +960,13 @@ def _noise_moments(
     coef = np.stack([-(t[j + 1] - t[j]) / gap, np.ones(rows), -(t[j] - t[j - 1]) / gap], 1)
     r = coef[:, 0] * phase_ref[j - 1] + phase_ref[j] + coef[:, 2] * phase_ref[j + 1]
 
-    def band(d: int, kernel) -> np.ndarray:
+    three = np.arange(3)
+
+    def band(d: int, kernel) -> np.ndarray:  # Σ_αβ P[q,α] P[q+d,β] kernel(q+α, q+d+β)
         q = np.arange(rows - d)
-        total = np.zeros(q.size)
-        for al in range(3):
-            for be in range(3):
-                total += coef[q, al] * coef[q + d, be] * kernel(q + al, q + d + be)
-        return total
+        c1 = q[:, None, None] + three[None, :, None]
+        c2 = q[:, None, None] + d + three[None, None, :]
+        return np.einsum("qa,qb,qab->q", coef[q], coef[q + d], kernel(c1, c2))
 
     def stat(c1, c2):
         return np.where(c1 == c2, var_ref[c1], 0.0)
@@ -1179,20 +1180,21 @@ def _checked_columns(df: pd.DataFrame, source: str) -> dict[str, np.ndarray]:
                 i = int(bad[0])
                 raise _row_error(source, i, col, "a number", raw.iloc[i])
             raw = num
+        if col == "scan" and pd.api.types.is_integer_dtype(raw) and not raw.hasnans:
+            out[col] = raw.to_numpy(dtype=np.int64)  # whole numbers by type: nothing to check
+            continue
         vals = raw.to_numpy(dtype=float, na_value=np.nan)
-        bad = np.flatnonzero(~np.isfinite(vals))
-        if bad.size:
-            i = int(bad[0])
+        # fast paths (one reduction each); the offending row is located only on failure
+        if not np.isfinite(vals).all():
+            i = int(np.flatnonzero(~np.isfinite(vals))[0])
             found = "empty cell" if pd.isna(raw.iloc[i]) else vals[i]
             raise _row_error(source, i, col, "a finite number", found)
-        if col in _POSITIVE:
+        if col in _POSITIVE and vals.min() <= 0:
             bad = np.flatnonzero(vals <= 0)
-            if bad.size:
-                raise _row_error(source, int(bad[0]), col, "a value > 0", vals[bad[0]])
-        if col in _NON_NEGATIVE:
+            raise _row_error(source, int(bad[0]), col, "a value > 0", vals[bad[0]])
+        if col in _NON_NEGATIVE and vals.min() < 0:
             bad = np.flatnonzero(vals < 0)
-            if bad.size:
-                raise _row_error(source, int(bad[0]), col, "a value >= 0", vals[bad[0]])
+            raise _row_error(source, int(bad[0]), col, "a value >= 0", vals[bad[0]])
         if col == "scan":
             bad = np.flatnonzero((vals != np.round(vals)) | (np.abs(vals) > 2**53))
             if bad.size:
@@ -1312,6 +1314,18 @@ def _read_table(path: Path) -> pd.DataFrame:
             msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
             raise InputError(f"{path}: cannot parse CSV: {msg}") from exc
     raise InputError(f"{path}: unknown table format {suffix!r} (expected .csv or .parquet)")
+
+
+def reduce_file(path: str | os.PathLike, period_m: float, **options) -> ReducedPhases:
+    """Read a raw scan file (CSV or Parquet) and reduce it: :func:`reduce_table` on the file.
+
+    The table is validated once, inside :func:`reduce_table` (which names the file, row and
+    column of a bad cell); ``options`` are those of :func:`reduce_table`.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"{path}: scans file not found")
+    return reduce_table(_read_table(path), period_m, source=path.name, **options)
 
 
 def read_scans(path: str | os.PathLike) -> pd.DataFrame:
