@@ -25,7 +25,6 @@ kept with its compound (``CompoundData.problem``) so that only that compound fai
 
 from __future__ import annotations
 
-import math
 import tomllib
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -916,7 +915,3 @@ def _load_structures(base: Path, doc: dict, fname: str) -> dict[str, Any]:
             rec.compound, rec.mol if rec.mol is not None else (rec.error or "unreadable")
         )
     return out
-
-
-def finite(x) -> bool:
-    return x is not None and math.isfinite(x)
