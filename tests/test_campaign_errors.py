@@ -7,11 +7,13 @@ import re
 from pathlib import Path
 
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from typer.testing import CliRunner
 
 from polarbeam.campaign import load_campaign
 from polarbeam.cli import app
-from polarbeam.errors import InputError
+from polarbeam.errors import InputError, PolarbeamError
 from polarbeam.pipeline import analyze
 
 runner = CliRunner()
@@ -181,3 +183,48 @@ def test_single_temperature_leaves_alpha_empty_with_reason(camp, tmp_path):
         if ln.startswith("single-three")
     )
     assert row.split(",")[1] == ""  # alpha_A3 empty
+
+
+_CELLS = st.one_of(
+    st.text(alphabet=st.characters(blacklist_characters=',"\n\r'), max_size=12),
+    st.sampled_from(["nan", "inf", "-inf", "1e999", "", " ", "0", "-0", "1,5", "0x10", "1e-400"]),
+)
+
+
+@settings(
+    max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(
+    column=st.sampled_from(
+        [
+            "temperature_K",
+            "velocity_m_s",
+            "velocity_spread_m_s",
+            "voltage_V",
+            "phase_rad",
+            "phase_err_rad",
+            "compound",
+        ]
+    ),
+    cell=_CELLS,
+)
+def test_fuzzed_shift_cells_never_crash(camp, column, cell):
+    """Any garbage in one cell: a result with that compound failed (or unaffected), or one
+    polarbeam error -- never another exception."""
+    shifts = camp.parent / "shifts.csv"
+    original = shifts.read_text()
+    try:
+        lines = original.splitlines()
+        head = lines[0].split(",")
+        cells = lines[3].split(",")
+        cells[head.index(column)] = cell
+        lines[3] = ",".join(cells)
+        shifts.write_text("\n".join(lines) + "\n")
+        try:
+            res = analyze(camp)
+        except PolarbeamError:
+            return
+        assert res.exit_code in (0, 1, 2)
+        assert all(c.status in ("ok", "warning", "failed") for c in res.compounds)
+    finally:
+        shifts.write_text(original)
