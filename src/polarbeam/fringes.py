@@ -744,6 +744,42 @@ def _pairs_within_groups(group: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return order[p], order[q]
 
 
+class _SymmetricTriplets:
+    """A symmetric matrix held as its upper-triangle entries (duplicates add up)."""
+
+    __slots__ = ("col", "n", "row", "val")
+
+    def __init__(self, n: int, row: np.ndarray, col: np.ndarray, val: np.ndarray):
+        self.n, self.row, self.col, self.val = n, row, col, val
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return (self.n, self.n)
+
+    def diagonal(self) -> np.ndarray:
+        on = self.row == self.col
+        return np.bincount(self.row[on], weights=self.val[on], minlength=self.n)
+
+    def tocsr(self) -> sparse.csr_matrix:
+        off = self.row != self.col
+        return sparse.csr_matrix(
+            (
+                np.r_[self.val, self.val[off]],
+                (np.r_[self.row, self.col[off]], np.r_[self.col, self.row[off]]),
+            ),
+            shape=self.shape,
+        )
+
+    def toarray(self) -> np.ndarray:
+        n, off = self.n, self.row != self.col
+        flat = np.bincount(
+            np.r_[self.row * n + self.col, self.col[off] * n + self.row[off]],
+            weights=np.r_[self.val, self.val[off]],
+            minlength=n * n,
+        )
+        return flat.reshape(n, n)
+
+
 def _banded_covariance(
     left: np.ndarray,
     w: np.ndarray,
@@ -788,11 +824,8 @@ def _banded_covariance(
     idx_up, val_up = np.concatenate(idx), np.concatenate(val)
     row, col = np.divmod(idx_up, n)
     off = row != col  # mirror the strict upper triangle: the same sums, so exactly symmetric
-    if sparse_out:  # both triangles at once; duplicates are summed by the CSR conversion
-        return sparse.csr_matrix(
-            (np.r_[val_up, val_up[off]], (np.r_[row, col[off]], np.r_[col, row[off]])),
-            shape=(n, n),
-        )
+    if sparse_out:  # the upper triangle as triplets; mirrored when a matrix is asked for
+        return _SymmetricTriplets(n, row, col, val_up)
     flat = np.bincount(
         np.r_[idx_up, col[off] * n + row[off]],
         weights=np.r_[val_up, val_up[off]],
@@ -1439,7 +1472,7 @@ SeriesKey = tuple[str, float]
 
 
 def _shape0(cov, key) -> int:
-    return (cov.sparse(key) if isinstance(cov, DenseOnAccess) else cov[key]).shape[0]
+    return (cov._sparse[key] if isinstance(cov, DenseOnAccess) else cov[key]).shape[0]
 
 
 class DenseOnAccess(Mapping):
@@ -1466,7 +1499,8 @@ class DenseOnAccess(Mapping):
 
     def sparse(self, key):
         """The covariance of ``key`` as a SciPy CSR matrix (no dense copy)."""
-        return self._sparse[key]
+        block = self._sparse[key]
+        return block.tocsr() if isinstance(block, _SymmetricTriplets) else block
 
 
 @dataclass(frozen=True, eq=False)
