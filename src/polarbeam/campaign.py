@@ -673,6 +673,22 @@ def _load_shifts(path: Path, layout: str):
     return series, problems, ignored
 
 
+def deflector_files(defl: dict, base: Path, fname: str, layout: str, model: str):
+    """(field map, waveform) profiles named in ``[deflector]``, read and validated (or None)."""
+    field_map = waveform = None
+    if model == "field-map" and layout != "time-domain":
+        fm = defl["field_map"]
+        if not isinstance(fm, str):
+            raise InputError(f"{fname} [deflector] field_map: expected a file path, found {fm!r}")
+        field_map = _read_profile((base / fm).resolve(), ("z_m", "field_factor_m3"), "field map")
+    if "waveform" in defl:
+        wf = defl["waveform"]
+        if not isinstance(wf, str):
+            raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
+        waveform = _read_waveform((base / wf).resolve())
+    return field_map, waveform
+
+
 def read_toml(path: Path) -> dict:
     """The TOML document of a campaign file, or a one-line :class:`InputError`."""
     if not path.is_file():
@@ -713,17 +729,7 @@ def load_campaign(path: str | Path) -> Campaign:
     stated = _stated_inputs(doc, fname, layout, model)
     settings = _settings(doc, fname)
     base = path.parent
-    field_map = waveform = None
-    if model == "field-map" and layout != "time-domain":
-        fm = defl["field_map"]
-        if not isinstance(fm, str):
-            raise InputError(f"{fname} [deflector] field_map: expected a file path, found {fm!r}")
-        field_map = _read_profile((base / fm).resolve(), ("z_m", "field_factor_m3"), "field map")
-    if "waveform" in defl:
-        wf = defl["waveform"]
-        if not isinstance(wf, str):
-            raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
-        waveform = _read_waveform((base / wf).resolve())
+    field_map, waveform = deflector_files(defl, base, fname, layout, model)
     data = doc.get("data", {})
     compounds_path = _data_path(base, doc, "compounds", fname)
     structures = _load_structures(base, doc, fname)

@@ -1040,17 +1040,7 @@ def load_plan(path: str | Path):
     stated = cm._stated_inputs(doc, fname, layout, model)
     settings = cm._settings(doc, fname)
     base = path.parent
-    field_map = waveform = None
-    if model == "field-map" and layout != "time-domain":
-        fm = defl["field_map"]
-        if not isinstance(fm, str):
-            raise InputError(f"{fname} [deflector] field_map: expected a file path, found {fm!r}")
-        field_map = cm._read_profile((base / fm).resolve(), ("z_m", "field_factor_m3"), "field map")
-    if "waveform" in defl:
-        wf = defl["waveform"]
-        if not isinstance(wf, str):
-            raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
-        waveform = cm._read_waveform((base / wf).resolve())
+    field_map, waveform = cm.deflector_files(defl, base, fname, layout, model)
     camp = cm.Campaign(
         path=path,
         title=title,
