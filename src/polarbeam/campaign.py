@@ -340,6 +340,11 @@ def build_deflector(c: Campaign, v: dict[str, float]):
 
 def _check_keys(doc: dict, fname: str) -> None:
     unknown = [k for k in doc if k not in _SCHEMA and k not in _ARRAY_TABLES]
+    if unknown == ["plan"]:
+        raise InputError(
+            f"{fname}: a [plan] table makes this a planning campaign (no data to analyse): "
+            "run `polarbeam plan` on it, or analyse its rehearsal/ folder"
+        )
     if unknown:
         raise InputError(
             f"{fname}: unknown table(s) {', '.join(repr(k) for k in unknown)}; expected "
