@@ -55,8 +55,42 @@ def piecewise_linear_integral(knots_x, knots_w, a: float, b: float) -> float:
     return float(np.sum(0.5 * (vals[1:] + vals[:-1]) * np.diff(pts)))
 
 
+class _TriangleWeight:
+    """The three-grating weight: 0 at the first grating (or pulse), rising linearly to L2 at the
+    second, falling to 0 at the third (L2 = third − second); fringe phase 2π Δx / period."""
+
+    def _points(self) -> tuple[float, float, float]:
+        raise NotImplementedError
+
+    def _check(self, key: str, names: str) -> None:
+        a, b, c = self._points()
+        if not (a < b < c):
+            raise InputError(f"[instrument] {key}: expected {names}, found {a!r}, {b!r}, {c!r}")
+        if not self.period > 0:
+            raise InputError(f"[instrument] grating_period: expected > 0, found {self.period!r}")
+
+    def _knots(self):
+        a, b, c = self._points()
+        return (a, b, c), (0.0, c - b, 0.0)
+
+    def weight(self, s):
+        """Weight w(s) (m for positions, s for times)."""
+        xs, ws = self._knots()
+        return np.interp(np.asarray(s, dtype=float), xs, ws, left=0.0, right=0.0)
+
+    def weight_integral(self, a: float, b: float) -> float:
+        """∫_a^b w ds, exact (m² for positions, s² for times)."""
+        xs, ws = self._knots()
+        return piecewise_linear_integral(xs, ws, a, b)
+
+    @property
+    def scale(self) -> float:
+        """Observable per metre of shift: 2π/d."""
+        return 2.0 * math.pi / self.period
+
+
 @dataclass(frozen=True)
-class TalbotLau:
+class TalbotLau(_TriangleWeight):
     """Three-grating near-field interferometer; observable: fringe phase (rad)."""
 
     z1: float
@@ -68,13 +102,10 @@ class TalbotLau:
     observable = "phase_rad"
 
     def __post_init__(self):
-        if not (self.z1 < self.z2 < self.z3):
-            raise InputError(
-                "[instrument] grating_positions: expected z1 < z2 < z3, "
-                f"found {self.z1!r}, {self.z2!r}, {self.z3!r}"
-            )
-        if not self.period > 0:
-            raise InputError(f"[instrument] grating_period: expected > 0, found {self.period!r}")
+        self._check("grating_positions", "z1 < z2 < z3")
+
+    def _points(self):
+        return self.z1, self.z2, self.z3
 
     @property
     def L1(self) -> float:
@@ -83,24 +114,6 @@ class TalbotLau:
     @property
     def L2(self) -> float:
         return self.z3 - self.z2
-
-    def _knots(self):
-        return (self.z1, self.z2, self.z3), (0.0, self.L2, 0.0)
-
-    def weight(self, z):
-        """Weight w(z) in metres."""
-        xs, ws = self._knots()
-        return np.interp(np.asarray(z, dtype=float), xs, ws, left=0.0, right=0.0)
-
-    def weight_integral(self, a: float, b: float) -> float:
-        """∫_a^b w(z) dz (m²), exact."""
-        xs, ws = self._knots()
-        return piecewise_linear_integral(xs, ws, a, b)
-
-    @property
-    def scale(self) -> float:
-        """Observable per metre of shift: 2π/d."""
-        return 2.0 * math.pi / self.period
 
 
 @dataclass(frozen=True)
@@ -133,7 +146,7 @@ class BeamProfile:
 
 
 @dataclass(frozen=True)
-class TimeDomain:
+class TimeDomain(_TriangleWeight):
     """Pulsed three-grating interferometer in the time domain; observable: fringe phase (rad).
 
     Weights in time with T1 = t2 − t1, T2 = t3 − t2: w(t) = (t − t1)·T2/T1 on [t1, t2],
@@ -149,29 +162,10 @@ class TimeDomain:
     observable = "phase_rad"
 
     def __post_init__(self):
-        if not (self.t1 < self.t2 < self.t3):
-            raise InputError(
-                "[instrument] pulse_times: expected t1 < t2 < t3, "
-                f"found {self.t1!r}, {self.t2!r}, {self.t3!r}"
-            )
-        if not self.period > 0:
-            raise InputError(f"[instrument] grating_period: expected > 0, found {self.period!r}")
+        self._check("pulse_times", "t1 < t2 < t3")
 
-    def _knots(self):
-        return (self.t1, self.t2, self.t3), (0.0, self.t3 - self.t2, 0.0)
-
-    def weight(self, t):
-        xs, ws = self._knots()
-        return np.interp(np.asarray(t, dtype=float), xs, ws, left=0.0, right=0.0)
-
-    def weight_integral(self, a: float, b: float) -> float:
-        """∫_a^b w(t) dt (s²), exact."""
-        xs, ws = self._knots()
-        return piecewise_linear_integral(xs, ws, a, b)
-
-    @property
-    def scale(self) -> float:
-        return 2.0 * math.pi / self.period
+    def _points(self):
+        return self.t1, self.t2, self.t3
 
 
 Layout = TalbotLau | BeamProfile | TimeDomain
