@@ -735,7 +735,7 @@ def _pairs_within_groups(group: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     order = np.argsort(group, kind="stable")
     g = group[order]
     starts = np.flatnonzero(np.r_[True, g[1:] != g[:-1]]) if g.size else np.zeros(0, int)
-    sizes = np.diff(np.r_[starts, g.size])
+    sizes = np.diff(np.append(starts, g.size))
     size_e = np.repeat(sizes, sizes)
     start_e = np.repeat(starts, sizes)
     p = np.repeat(np.arange(g.size), size_e)
@@ -764,8 +764,11 @@ class _SymmetricTriplets:
         off = self.row != self.col
         return sparse.csr_matrix(
             (
-                np.r_[self.val, self.val[off]],
-                (np.r_[self.row, self.col[off]], np.r_[self.col, self.row[off]]),
+                np.concatenate((self.val, self.val[off])),
+                (
+                    np.concatenate((self.row, self.col[off])),
+                    np.concatenate((self.col, self.row[off])),
+                ),
             ),
             shape=self.shape,
         )
@@ -773,8 +776,8 @@ class _SymmetricTriplets:
     def toarray(self) -> np.ndarray:
         n, off = self.n, self.row != self.col
         flat = np.bincount(
-            np.r_[self.row * n + self.col, self.col[off] * n + self.row[off]],
-            weights=np.r_[self.val, self.val[off]],
+            np.concatenate((self.row * n + self.col, self.col[off] * n + self.row[off])),
+            weights=np.concatenate((self.val, self.val[off])),
             minlength=n * n,
         )
         return flat.reshape(n, n)
@@ -802,9 +805,9 @@ def _banded_covariance(
     inner = np.flatnonzero(~exact)
     idx, val = [np.arange(n) * (n + 1)], [var_s + jitter]
     # W (R + τ² I) Wᵀ: entries (scan, reference, weight), paired by reference.
-    e_sig = np.r_[np.arange(n), inner]
-    e_ref = np.r_[left, left[inner] + 1]
-    e_w = np.r_[1.0 - w, w[inner]]
+    e_sig = np.concatenate((np.arange(n), inner))
+    e_ref = np.concatenate((left, left[inner] + 1))
+    e_w = np.concatenate((1.0 - w, w[inner]))
     p, q = _pairs_within_groups(e_ref)
     i, k = e_sig[p], e_sig[q]
     up = i <= k
@@ -1708,7 +1711,15 @@ def reduce_table(
     is_ref = volt_s == 0.0
     unwrapped_ref = np.full(len(fits), np.nan)
 
-    groups = pd.DataFrame({"c": code_s, "t": temp_s}).groupby(["c", "t"], sort=True).indices
+    # series = (compound, temperature): scan indices per series, series sorted, scans in order
+    order = np.lexsort((temp_s, code_s))  # stable: scans of one series keep their order
+    ck, tk = code_s[order], temp_s[order]
+    cuts = np.flatnonzero((ck[1:] != ck[:-1]) | (tk[1:] != tk[:-1])) + 1
+    heads = np.concatenate(([0], cuts)) if order.size else np.zeros(0, dtype=np.int64)
+    groups = {
+        (int(ck[h]), float(tk[h])): part
+        for h, part in zip(heads, np.split(order, cuts), strict=True)
+    }
     messages: list[str] = []
     prepared = {}
     pooled = {"q": 0.0, "trs": 0.0, "trk": 0.0, "ss": 0.0, "sk": 0.0, "kk": 0.0, "n": 0}
