@@ -759,7 +759,7 @@ def calibration_campaign(
     knows it only through the references.  The references' "published" α and μ are their true
     values plus a draw from the stated errors, like every other stated input of the simulator.
     """
-    from .simulate import CompoundTruth, InstrumentSpec, simulate_campaign
+    from .simulate import CompoundTruth, InstrumentSpec, random_beam_conditions, simulate_campaign
 
     layout = layout or str(rng.choice(["talbot-lau", "beam-profile"]))
     rel = float(rng.uniform(0.002, 0.02))
@@ -805,17 +805,7 @@ def calibration_campaign(
             )
         )
     sim = simulate_campaign(
-        out_dir,
-        refs + unknowns,
-        spec=spec,
-        seed=rng,
-        velocity_m_s=float(rng.uniform(100, 400)),
-        velocity_err_frac=float(rng.uniform(0.002, 0.02)),
-        spread_frac=float(rng.uniform(0, 0.15)),
-        n_voltages=int(rng.integers(5, 13)),
-        max_signal=float(rng.uniform(1, 4)),
-        noise=float(rng.uniform(0.01, 0.05)),
-        temperature_err_K=float(rng.uniform(0, 3)),
+        out_dir, refs + unknowns, spec=spec, seed=rng, **random_beam_conditions(rng)
     )
     out = Path(out_dir)
     toml = out / "campaign.toml"

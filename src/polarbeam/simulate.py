@@ -28,6 +28,7 @@ __all__ = [
     "CompoundTruth",
     "InstrumentSpec",
     "SimulationTruth",
+    "random_beam_conditions",
     "random_campaign",
     "random_time_domain_campaign",
     "simulate_campaign",
@@ -321,19 +322,22 @@ def random_campaign(
         temperatures_K=temps,
         mass_err_u=float(rng.choice([0.0, 0.05])),
     )
-    return simulate_campaign(
-        out_dir,
-        [comp],
-        spec=spec,
-        seed=rng,
-        velocity_m_s=float(rng.uniform(100, 400)),
-        velocity_err_frac=float(rng.uniform(0.002, 0.02)),
-        spread_frac=float(rng.uniform(0, 0.15)),
-        n_voltages=int(rng.integers(5, 13)),
-        max_signal=float(rng.uniform(1, 4)),
-        noise=float(rng.uniform(0.01, 0.05)),
-        temperature_err_K=float(rng.uniform(0, 3)),
-    )
+    return simulate_campaign(out_dir, [comp], spec=spec, seed=rng, **random_beam_conditions(rng))
+
+
+def random_beam_conditions(rng: np.random.Generator) -> dict:
+    """Randomised beam and acquisition keywords of :func:`simulate_campaign` for round trips:
+    velocities 100–400 m/s known to 0.2–2 %, spreads up to 15 %, 5–12 voltages, signals of 1–4
+    (rad or µm), point errors 1–5 %, temperature errors up to 3 K (drawn in this order)."""
+    return {
+        "velocity_m_s": float(rng.uniform(100, 400)),
+        "velocity_err_frac": float(rng.uniform(0.002, 0.02)),
+        "spread_frac": float(rng.uniform(0, 0.15)),
+        "n_voltages": int(rng.integers(5, 13)),
+        "max_signal": float(rng.uniform(1, 4)),
+        "noise": float(rng.uniform(0.01, 0.05)),
+        "temperature_err_K": float(rng.uniform(0, 3)),
+    }
 
 
 def random_time_domain_campaign(
