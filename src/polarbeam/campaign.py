@@ -678,6 +678,19 @@ def _load_shifts(path: Path, layout: str):
     return series, problems, ignored
 
 
+def check_geometry(camp: Campaign) -> None:
+    """Build the nominal set-up once: bad geometry is structural (named with the file)."""
+    try:
+        if camp.model == "none":
+            build_layout(camp.layout, camp.nominal())
+        else:
+            camp.build()
+    except QuantityError:
+        raise
+    except InputError as exc:
+        raise InputError(f"{camp.path.name} {exc}") from None
+
+
 def deflector_files(defl: dict, base: Path, fname: str, layout: str, model: str):
     """(field map, waveform) profiles named in ``[deflector]``, read and validated (or None)."""
     field_map = waveform = None
@@ -773,13 +786,7 @@ def load_campaign(path: str | Path) -> Campaign:
         waveform=waveform,
         raw=doc,
     )
-    # validate the nominal geometry once: bad geometry is structural
-    try:
-        camp.build() if model != "none" else build_layout(layout, camp.nominal())
-    except QuantityError:
-        raise
-    except InputError as exc:
-        raise InputError(f"{fname} {exc}") from None
+    check_geometry(camp)
     if model == "numerical":  # the solve's mesh-refinement error becomes a stated input
         stated = {**stated, **numerical_error_inputs(camp)}
     recoil = None

@@ -1054,12 +1054,7 @@ def load_plan(path: str | Path):
         raw=doc,
         structures=cm._load_structures(base, doc, fname),
     )
-    try:
-        camp.build()
-    except QuantityError:
-        raise
-    except InputError as exc:
-        raise InputError(f"{fname} {exc}") from None
+    cm.check_geometry(camp)
     plan = _parse_settings(plan_table, fname, layout)
     compounds_path = cm._data_path(base, doc, "compounds", fname)
     compounds = _read_plan_compounds(compounds_path)
