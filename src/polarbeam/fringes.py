@@ -81,7 +81,7 @@ import logging
 import math
 import os
 import tempfile
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -286,57 +286,78 @@ def _sym3(a00, a01, a02, a11, a12, a22) -> np.ndarray:
     return m
 
 
-def _cofactors3(m: np.ndarray) -> tuple[np.ndarray, ...]:
-    a, b, c = m[:, 0, 0], m[:, 0, 1], m[:, 0, 2]
-    d, e, f = m[:, 1, 1], m[:, 1, 2], m[:, 2, 2]
-    return (
-        d * f - e * e,
-        c * e - b * f,
-        b * e - c * d,
-        a * f - c * c,
-        b * c - a * e,
-        a * d - b * b,
-    )
+# A stack of symmetric 3×3 matrices is held as its six distinct elements, each a contiguous
+# vector over the stack: (m00, m01, m02, m11, m12, m22).
+Sym6 = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]
+
+
+def _cofactors6(m: Sym6) -> tuple[Sym6, np.ndarray]:
+    """Cofactors (the adjugate, symmetric) and determinants of a stack of symmetric 3×3."""
+    a, b, c, d, e, f = m
+    cof = (d * f - e * e, c * e - b * f, b * e - c * d, a * f - c * c, b * c - a * e, a * d - b * b)
+    return cof, a * cof[0] + b * cof[1] + c * cof[2]
+
+
+def _sym6_of(m: np.ndarray) -> Sym6:
+    return tuple(np.ascontiguousarray(m[:, i, j]) for i, j in _UPPER)  # type: ignore[return-value]
+
+
+_UPPER = ((0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2))
 
 
 def _det3(m: np.ndarray) -> np.ndarray:
     """Determinants of a stack of symmetric 3×3 matrices (closed form)."""
-    c00, c01, c02 = _cofactors3(m)[:3]
-    return m[:, 0, 0] * c00 + m[:, 0, 1] * c01 + m[:, 0, 2] * c02
+    return _cofactors6(_sym6_of(m))[1]
+
+
+def _solve6(m: Sym6, rhs: np.ndarray) -> np.ndarray:
+    """Solve symmetric 3×3 systems ``m x = rhs`` (rhs and x of shape (3, N)): by cofactors where
+    well conditioned (10x faster than LAPACK for 3×3), by :func:`numpy.linalg.solve` (pivoted
+    LU) for the others."""
+    (c00, c01, c02, c11, c12, c22), det = _cofactors6(m)
+    r0, r1, r2 = rhs
+    x = np.empty_like(rhs)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv_det = 1.0 / det
+        np.multiply(c00 * r0 + c01 * r1 + c02 * r2, inv_det, out=x[0])
+        np.multiply(c01 * r0 + c11 * r1 + c12 * r2, inv_det, out=x[1])
+        np.multiply(c02 * r0 + c12 * r1 + c22 * r2, inv_det, out=x[2])
+    poor = ~(np.abs(det) > 1e-6 * np.abs(m[0] * m[3] * m[5]))
+    if poor.any():
+        a = _sym3(*(v[poor] for v in m))
+        x[:, poor] = np.linalg.solve(a, rhs[:, poor].T[:, :, None])[:, :, 0].T
+    return x
 
 
 def _solve_sym3(a: np.ndarray, rhs: np.ndarray) -> np.ndarray:
-    """Solve a stack of symmetric 3×3 systems: by cofactors where well conditioned (10x faster
-    than LAPACK for 3×3), by :func:`numpy.linalg.solve` (pivoted LU) for the others."""
-    c00, c01, c02, c11, c12, c22 = _cofactors3(a)
-    det = a[:, 0, 0] * c00 + a[:, 0, 1] * c01 + a[:, 0, 2] * c02
-    scale = a[:, 0, 0] * a[:, 1, 1] * a[:, 2, 2]
-    r0, r1, r2 = rhs[:, 0], rhs[:, 1], rhs[:, 2]
+    """Solve a stack of symmetric 3×3 systems ``a[k] x[k] = rhs[k]`` (shapes (N,3,3), (N,3))."""
+    return _solve6(_sym6_of(a), np.ascontiguousarray(np.asarray(rhs, float).T)).T
+
+
+def _inv6(m: Sym6) -> Sym6:
+    """Inverses of a stack of symmetric 3×3 matrices by cofactors (NaN where singular)."""
+    cof, det = _cofactors6(m)
     with np.errstate(divide="ignore", invalid="ignore"):
-        x = (
-            np.stack(
-                [
-                    c00 * r0 + c01 * r1 + c02 * r2,
-                    c01 * r0 + c11 * r1 + c12 * r2,
-                    c02 * r0 + c12 * r1 + c22 * r2,
-                ],
-                axis=1,
-            )
-            / det[:, None]
-        )
-    poor = ~(np.abs(det) > 1e-6 * np.abs(scale))
-    if poor.any():
-        x[poor] = np.linalg.solve(a[poor], rhs[poor][:, :, None])[:, :, 0]
-    return x
+        inv_det = np.where(det != 0, 1.0 / det, np.nan)
+    return tuple(c * inv_det for c in cof)  # type: ignore[return-value]
 
 
 def _inv_sym3(m: np.ndarray) -> np.ndarray:
     """Inverses of a stack of symmetric 3×3 matrices by cofactors (NaN where singular)."""
-    c00, c01, c02, c11, c12, c22 = _cofactors3(m)
-    det = m[:, 0, 0] * c00 + m[:, 0, 1] * c01 + m[:, 0, 2] * c02
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv_det = np.where(det != 0, 1.0 / det, np.nan)
-    return _sym3(c00, c01, c02, c11, c12, c22) * inv_det[:, None, None]
+    return _sym3(*_inv6(_sym6_of(m)))
+
+
+def _quad6(u, v, c: Sym6) -> np.ndarray:
+    """``Σ_ij u_i v_j C_ij`` for a stack of symmetric C (u, v: three vectors or scalars)."""
+    c00, c01, c02, c11, c12, c22 = c
+    return (
+        u[0] * v[0] * c00
+        + u[1] * v[1] * c11
+        + u[2] * v[2] * c22
+        + (u[0] * v[1] + u[1] * v[0]) * c01
+        + (u[0] * v[2] + u[2] * v[0]) * c02
+        + (u[1] * v[2] + u[2] * v[1]) * c12
+    )
 
 
 class _RaggedDesign:
@@ -362,7 +383,7 @@ class _RaggedDesign:
         return np.repeat(v, self.nb)
 
     def sums5(self, w: np.ndarray | None) -> np.ndarray:
-        """Per scan: Σw, Σw cos, Σw sin, Σw cos², Σw cos·sin (w = 1 when None)."""
+        """Per scan, shape (5, N): Σw, Σw cos, Σw sin, Σw cos², Σw cos·sin (w = 1 when None)."""
         basis = (self.c, self.s, self.cc, self.cs)
         if w is None:
             first = self.nb.astype(float)
@@ -370,28 +391,31 @@ class _RaggedDesign:
         else:
             first = self.scan_sum(w)
             rest = [self.scan_sum(w * f) for f in basis]
-        return np.stack([first, *rest], axis=1)
+        return np.stack([first, *rest])
 
     def sums3(self, v: np.ndarray) -> np.ndarray:
-        """Per scan: Σv, Σv cos, Σv sin."""
-        return np.stack([self.scan_sum(v), self.scan_sum(v * self.c), self.scan_sum(v * self.s)], 1)
+        """Per scan, shape (3, N): Σv, Σv cos, Σv sin."""
+        return np.stack([self.scan_sum(v), self.scan_sum(v * self.c), self.scan_sum(v * self.s)])
 
-    def model(self, p: np.ndarray) -> np.ndarray:
-        return (
-            self.per_row(p[:, 0]) + self.per_row(p[:, 1]) * self.c + self.per_row(p[:, 2]) * self.s
-        )
+    def model(self, p: np.ndarray, out: np.ndarray) -> np.ndarray:
+        """``c0 + a cos + b sin`` per row, from ``p`` of shape (3, N), written into ``out``."""
+        np.multiply(self.per_row(p[1]), self.c, out=out)
+        out += self.per_row(p[2]) * self.s
+        out += self.per_row(p[0])
+        return out
 
 
 class _SharedGridDesign:
     """Every scan has the same positions (the usual stepped grating): the grouped sums are the
-    matrix products (scans × bins) @ (bins × basis), and the model is params @ basisᵀ."""
+    matrix products (scans × bins) @ (bins × basis), and the model is paramsᵀ @ basisᵀ."""
 
     def __init__(self, grid: np.ndarray, n_scans: int, k: float):
         m = grid.size
         theta = k * grid
         c, s = np.cos(theta), np.sin(theta)
-        self.f5 = np.stack([np.ones(m), c, s, c * c, c * s], axis=1)
+        self.f5 = np.stack([np.ones(m), c, s, c * c, c * s], axis=1)  # (bins, 5)
         self.f3 = np.ascontiguousarray(self.f5[:, :3])
+        self.f3t = np.ascontiguousarray(self.f3.T)
         self.m = m
         self.nb = np.full(n_scans, m)
         self.xmin = np.full(n_scans, grid.min())
@@ -407,15 +431,16 @@ class _SharedGridDesign:
         return v[:, None]
 
     def sums5(self, w: np.ndarray | None) -> np.ndarray:
+        # (scans × bins) @ (bins × 5) is the fast BLAS layout; the transposed view is (5, N)
         if w is None:
-            return np.broadcast_to(self.f5.sum(axis=0), (len(self.nb), 5)).copy()
-        return w @ self.f5
+            return np.repeat(self.f5.sum(axis=0)[:, None], len(self.nb), axis=1)
+        return (w @ self.f5).T
 
     def sums3(self, v: np.ndarray) -> np.ndarray:
-        return v @ self.f3
+        return (v @ self.f3).T
 
-    def model(self, p: np.ndarray) -> np.ndarray:
-        return p @ self.f3.T
+    def model(self, p: np.ndarray, out: np.ndarray) -> np.ndarray:
+        return np.matmul(p.T, self.f3t, out=out)
 
 
 def _shared_grid(x: np.ndarray, starts: np.ndarray) -> bool:
@@ -423,6 +448,11 @@ def _shared_grid(x: np.ndarray, starts: np.ndarray) -> bool:
     nb = np.diff(np.r_[starts, len(x)])
     m = int(nb[0])
     return bool(np.all(nb == m)) and bool(np.all(x.reshape(-1, m) == x[:m]))
+
+
+#: Rows per block of the vectorised fit: small enough that the per-scan vectors and the work
+#: buffers of a block stay in cache and are reused (large fresh temporaries cost page faults).
+_BLOCK_ROWS = 1 << 18
 
 
 def _fit_segments(
@@ -436,8 +466,50 @@ def _fit_segments(
     chi2_pvalue_min: float,
     min_visibility_snr: float,
     mu_floor_fraction: float,
+    per_block: int,
 ) -> dict[str, np.ndarray]:
-    """Fit the scans whose bins are the contiguous segments of ``x, n`` beginning at ``starts``."""
+    """Fit the scans whose bins are the contiguous segments of ``x, n`` beginning at ``starts``,
+    ``per_block`` scans at a time (the blocks of all threads lie on one grid of scan indices, so
+    the results do not depend on the number of threads)."""
+    work = np.empty(2 * min(len(x), _BLOCK_ROWS + int(np.diff(np.r_[starts, len(x)]).max())))
+    parts = []
+    for lo in range(0, len(starts), per_block):
+        hi = min(lo + per_block, len(starts))
+        r0, r1 = int(starts[lo]), int(starts[hi]) if hi < len(starts) else len(x)
+        parts.append(
+            _fit_block(
+                x[r0:r1],
+                n[r0:r1],
+                starts[lo:hi] - r0,
+                grid,
+                period_m,
+                iterations,
+                min_bins,
+                chi2_pvalue_min,
+                min_visibility_snr,
+                mu_floor_fraction,
+                work,
+            )
+        )
+    if len(parts) == 1:
+        return parts[0]
+    return {key: np.concatenate([p[key] for p in parts]) for key in parts[0]}
+
+
+def _fit_block(
+    x: np.ndarray,
+    n: np.ndarray,
+    starts: np.ndarray,
+    grid: bool,
+    period_m: float,
+    iterations: int,
+    min_bins: int,
+    chi2_pvalue_min: float,
+    min_visibility_snr: float,
+    mu_floor_fraction: float,
+    work: np.ndarray,
+) -> dict[str, np.ndarray]:
+    """One block of :func:`_fit_segments`; ``work`` holds at least ``2 len(x)`` floats."""
     k = TWO_PI / period_m
     nb = np.diff(np.r_[starts, len(x)])
     m = int(nb[0])
@@ -454,46 +526,56 @@ def _fit_segments(
     coverage = np.where(nb > 1, (d.xmax - d.xmin) * nb / np.maximum(nb - 1, 1), 0.0)
     flags[coverage < period_m * (1.0 - 1e-6)] |= PARTIAL_PERIOD
 
-    def normal_matrix(sums: np.ndarray) -> np.ndarray:
-        sw, swc, sws, swcc, swcs = sums.T
+    def normal_matrix(sums: np.ndarray) -> Sym6:
+        sw, swc, sws, swcc, swcs = sums
         # cos² + sin² = 1 gives Σ w sin² = Σ w - Σ w cos².
-        return _sym3(sw, swc, sws, swcc, swcs, sw - swcc)
+        return (sw, swc, sws, swcc, swcs, sw - swcc)
 
     # Phase coverage: determinant of the scale-free unweighted Gram matrix (1 when the bins
     # cover whole periods evenly, 0 when the basis functions are linearly dependent).
     gram = normal_matrix(d.sums5(None))
-    diag = np.sqrt(np.maximum(np.einsum("kii->ki", gram), 1e-300))
-    det_corr = _det3(gram) / np.prod(diag, axis=1) ** 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        scale = np.maximum(gram[0], 1e-300) * np.maximum(gram[3], 1e-300)
+        det_corr = _cofactors6(gram)[1] / (scale * np.maximum(gram[5], 1e-300))
     flags[~(det_corr > 1e-10)] |= ILL_CONDITIONED
     solvable = ((flags & (ZERO_COUNTS | ILL_CONDITIONED)) == 0) & (nb >= 3)
-    eye = np.eye(3)
+    unsolvable = ~solvable
+    any_unsolvable = bool(unsolvable.any())
 
-    def solve(a, rhs):
-        a[~solvable] = eye
-        rhs[~solvable] = 0.0
-        return _solve_sym3(a, rhs)
+    def solve(a: Sym6, rhs: np.ndarray) -> np.ndarray:
+        if any_unsolvable:  # identity systems with zero right-hand side: parameters 0
+            a = tuple(np.where(unsolvable, float(i in (0, 3, 5)), v) for i, v in enumerate(a))
+            rhs = np.where(unsolvable, 0.0, rhs)
+        return _solve6(a, rhs)
 
-    def floored(mu, p):
-        return np.maximum(mu, d.per_row(mu_floor_fraction * np.maximum(p[:, 0], 1e-12)))
+    # Two row-sized work buffers, reused by every pass (no fresh large temporaries).
+    buf, buf2 = (d.shape(work[i * n.size : (i + 1) * n.size]) for i in (0, 1))
 
-    a_mat = gram.copy()
+    def floored_model(p: np.ndarray) -> np.ndarray:
+        mu = d.model(p, out=buf)
+        return np.maximum(mu, d.per_row(mu_floor_fraction * np.maximum(p[0], 1e-12)), out=mu)
+
+    a_mat = gram
     p = solve(a_mat, d.sums3(n))
     for _ in range(iterations):
-        w = 1.0 / floored(d.model(p), p)
+        w = np.divide(1.0, floored_model(p), out=buf)
         a_mat = normal_matrix(d.sums5(w))
-        p = solve(a_mat, d.sums3(w * n))
+        p = solve(a_mat, d.sums3(np.multiply(w, n, out=buf2)))
 
-    c0, ca, cb = p[:, 0], p[:, 1], p[:, 2]
-    mu_pos = floored(d.model(p), p)
-    a_inv = _inv_sym3(a_mat)
+    c0, ca, cb = p
+    a_inv = _inv6(a_mat)
     if iterations == 0:
         # Sandwich A⁻¹ B A⁻¹ with B = Xᵀ diag(μ) X (Poisson variance = model, unit weights).
-        cov = a_inv @ normal_matrix(d.sums5(mu_pos)) @ a_inv
+        ai = _sym3(*a_inv)
+        cov = _sym6_of(ai @ _sym3(*normal_matrix(d.sums5(floored_model(p)))) @ ai)
     else:
         # Weights 1/μ: B = A, the covariance is the inverse Fisher matrix of the Poisson fit.
         cov = a_inv
 
-    chi2 = d.scan_sum((n - mu_pos) ** 2 / mu_pos)
+    mu_pos = floored_model(p)
+    resid = np.subtract(n, mu_pos, out=buf2)
+    np.multiply(resid, resid, out=resid)
+    chi2 = d.scan_sum(np.divide(resid, mu_pos, out=resid))
     ndof = nb - 3
     with np.errstate(invalid="ignore"):
         pvalue = np.where(ndof > 0, stats.chi2.sf(chi2, np.maximum(ndof, 1)), np.nan)
@@ -503,12 +585,12 @@ def _fit_segments(
         vis = amp / c0
         phase = np.arctan2(cb, ca)
         # Jacobians of (visibility, phase) with respect to (c0, a, b).
-        j_vis = np.stack([-amp / c0**2, ca / (amp * c0), cb / (amp * c0)], axis=1)
-        j_phi = np.stack([np.zeros_like(amp), -cb / amp**2, ca / amp**2], axis=1)
-    var_vis = np.einsum("ki,kij,kj->k", j_vis, cov, j_vis)
-    var_phi = np.einsum("ki,kij,kj->k", j_phi, cov, j_phi)
-    cov_pv = np.einsum("ki,kij,kj->k", j_phi, cov, j_vis)
-    mean_err = np.sqrt(np.maximum(cov[:, 0, 0], 0.0))
+        j_vis = (-amp / c0**2, ca / (amp * c0), cb / (amp * c0))
+        j_phi = (0.0, -cb / amp**2, ca / amp**2)
+        var_vis = _quad6(j_vis, j_vis, cov)
+        var_phi = _quad6(j_phi, j_phi, cov)
+        cov_pv = _quad6(j_phi, j_vis, cov)
+    mean_err = np.sqrt(np.maximum(cov[0], 0.0))
     vis_err = np.sqrt(np.maximum(var_vis, 0.0))
     phase_err = np.sqrt(np.maximum(var_phi, 0.0))
 
@@ -614,8 +696,40 @@ def fit_scans(
         order = np.argsort(ids, kind="stable")
         ids, x, n = ids[order], x[order], n[order]
     starts = np.flatnonzero(np.r_[True, ids[1:] != ids[:-1]])
-    args = (period_m, iterations, min_bins, chi2_pvalue_min, min_visibility_snr, mu_floor_fraction)
-    n_chunks = max(1, min(int(workers), len(x) // 500_000, len(starts)))
+    return _fit_sorted(
+        ids,
+        x,
+        n,
+        starts,
+        period_m,
+        iterations=iterations,
+        min_bins=min_bins,
+        chi2_pvalue_min=chi2_pvalue_min,
+        min_visibility_snr=min_visibility_snr,
+        mu_floor_fraction=mu_floor_fraction,
+        workers=workers,
+    )
+
+
+def _fit_sorted(
+    ids: np.ndarray,
+    x: np.ndarray,
+    n: np.ndarray,
+    starts: np.ndarray,
+    period_m: float,
+    *,
+    iterations: int = 3,
+    min_bins: int = 4,
+    chi2_pvalue_min: float = 1e-6,
+    min_visibility_snr: float = 3.0,
+    mu_floor_fraction: float = 0.05,
+    workers: int = 2,
+) -> ScanFits:
+    """:func:`fit_scans` on validated rows sorted by scan, ``starts`` the first row of each."""
+    # Blocks of about _BLOCK_ROWS rows on one grid of scan indices; threads take whole blocks.
+    per_block = max(1, _BLOCK_ROWS * len(starts) // len(x))
+    n_blocks = -(-len(starts) // per_block)
+    n_chunks = max(1, min(int(workers), len(x) // 500_000, n_blocks))
     grid = _shared_grid(x, starts)
     limiter = contextlib.nullcontext()
     if grid:
@@ -628,27 +742,31 @@ def fit_scans(
             limiter = threadpool_limits(limits=1, user_api="blas")
         except ImportError:
             grid = n_chunks == 1
-    args = (grid, *args)
+    args = (
+        grid,
+        period_m,
+        iterations,
+        min_bins,
+        chi2_pvalue_min,
+        min_visibility_snr,
+        mu_floor_fraction,
+        per_block,
+    )
     if n_chunks == 1:
         with limiter:
             parts = [_fit_segments(x, n, starts, *args)]
     else:
-        # Split at scan boundaries; numpy releases the GIL inside its loops, so threads scale.
-        cut = starts[np.linspace(0, len(starts), n_chunks + 1).astype(int)[1:-1]]
-        bounds = np.r_[0, cut, len(x)]
-        chunks = [(lo, hi) for lo, hi in itertools.pairwise(bounds)]
+        # Split at block boundaries; numpy releases the GIL inside its loops, so threads scale.
+        first_scan = np.linspace(0, n_blocks, n_chunks + 1).astype(int) * per_block
+        first_scan[-1] = len(starts)
+        scan_ranges = list(itertools.pairwise(first_scan))
+
+        def run(r):
+            lo, hi = starts[r[0]], starts[r[1]] if r[1] < len(starts) else len(x)
+            return _fit_segments(x[lo:hi], n[lo:hi], starts[r[0] : r[1]] - lo, *args)
+
         with limiter, ThreadPoolExecutor(max_workers=n_chunks) as pool:
-            parts = list(
-                pool.map(
-                    lambda lh: _fit_segments(
-                        x[lh[0] : lh[1]],
-                        n[lh[0] : lh[1]],
-                        starts[(starts >= lh[0]) & (starts < lh[1])] - lh[0],
-                        *args,
-                    ),
-                    chunks,
-                )
-            )
+            parts = list(pool.map(run, scan_ranges))
     out = {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
     return ScanFits(scan=ids[starts], **out)
 
@@ -683,6 +801,58 @@ def interpolation_weights(
     return weights.toarray(), flags
 
 
+def _group_heads(group: np.ndarray) -> np.ndarray:
+    """Index of the first entry of each entry's group (entries sorted by group)."""
+    if group.size == 0:
+        return np.zeros(0, dtype=np.int64)
+    new = np.r_[True, group[1:] != group[:-1]]
+    return np.maximum.accumulate(np.where(new, np.arange(group.size), 0))
+
+
+def _grouped_bracket(
+    ts: np.ndarray,
+    s_sig: np.ndarray,
+    tr: np.ndarray,
+    s_ref: np.ndarray,
+    r_start: np.ndarray,
+    r_count: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Reference interval of each signal time within its own group (series).
+
+    ``tr`` holds the reference times of all groups one after the other (group ``g`` at
+    ``r_start[g] : r_start[g] + r_count[g]``, times strictly increasing within it); ``s_sig``
+    and ``s_ref`` are the groups of the signals and references.  Returns ``(left, w, exact,
+    flags)``: ``left`` indexes ``tr`` (the reference just before or at the signal time), ``w`` is
+    the weight of the one after it (0 for ``exact`` hits), ``flags`` the bracketing flags
+    (unbracketed signals get ``left`` at their group's start).
+    """
+    flags = np.zeros(ts.size, dtype=np.int64)
+    if tr.size == 0:
+        flags[:] = NO_REFERENCE_BEFORE | NO_REFERENCE_AFTER
+        zero = np.zeros(ts.size, dtype=np.int64)
+        return zero, np.zeros(ts.size), np.zeros(ts.size, dtype=bool), flags
+    # Exact integer keys (group, rank of the time among all times): one searchsorted for all
+    # groups, with ties (a signal at a reference time) compared exactly.
+    _, rank = np.unique(np.concatenate((tr, ts)), return_inverse=True)
+    base = np.int64(rank.size + 1)
+    key_r = s_ref.astype(np.int64) * base + rank[: tr.size]
+    key_s = s_sig.astype(np.int64) * base + rank[tr.size :]
+    local = np.searchsorted(key_r, key_s, side="right") - 1 - r_start[s_sig]
+    m = r_count[s_sig]
+    before = local < 0
+    flags[before] |= NO_REFERENCE_BEFORE
+    flags[m == 0] |= NO_REFERENCE_AFTER
+    left = np.minimum(r_start[s_sig] + np.clip(local, 0, np.maximum(m - 1, 0)), tr.size - 1)
+    exact = ~before & (tr[left] == ts)
+    after = ~before & ~exact & (local >= m - 1)
+    flags[after] |= NO_REFERENCE_AFTER
+    mid = ~before & ~exact & ~after
+    w = np.zeros(ts.size)
+    jm = left[mid]
+    w[mid] = (ts[mid] - tr[jm]) / (tr[jm + 1] - tr[jm])
+    return left, w, exact, flags
+
+
 def _bracket(
     t_signal: ArrayLike, t_reference: ArrayLike
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -695,23 +865,15 @@ def _bracket(
     tr = np.asarray(t_reference, dtype=float)
     if tr.size > 1 and np.any(np.diff(tr) <= 0):
         raise InputError("interpolation_weights: reference times must be strictly increasing")
-    flags = np.zeros(ts.size, dtype=np.int64)
-    if tr.size == 0:
-        flags[:] = NO_REFERENCE_BEFORE | NO_REFERENCE_AFTER
-        zero = np.zeros(ts.size, dtype=np.int64)
-        return zero, np.zeros(ts.size), np.zeros(ts.size, dtype=bool), flags
-    j = np.searchsorted(tr, ts, side="right") - 1
-    before = j < 0
-    flags[before] |= NO_REFERENCE_BEFORE
-    left = np.clip(j, 0, tr.size - 1)
-    exact = ~before & (tr[left] == ts)
-    after = ~before & ~exact & (j >= tr.size - 1)
-    flags[after] |= NO_REFERENCE_AFTER
-    mid = ~before & ~exact & ~after
-    w = np.zeros(ts.size)
-    jm = left[mid]
-    w[mid] = (ts[mid] - tr[jm]) / (tr[jm + 1] - tr[jm])
-    return left, w, exact, flags
+    one = np.zeros(1, dtype=np.int64)
+    return _grouped_bracket(
+        ts,
+        np.zeros(ts.size, dtype=np.int64),
+        tr,
+        np.zeros(tr.size, dtype=np.int64),
+        one,
+        np.array([tr.size]),
+    )
 
 
 def _interpolation_sparse(
@@ -783,6 +945,55 @@ class _SymmetricTriplets:
         return flat.reshape(n, n)
 
 
+def _banded_triplets(
+    left: np.ndarray,
+    w: np.ndarray,
+    exact: np.ndarray,
+    var_s: np.ndarray,
+    var_r: np.ndarray,
+    t_s: np.ndarray | None,
+    t_r: np.ndarray | None,
+    diffusion: np.ndarray | float,
+    jitter: np.ndarray | float,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Upper-triangle entries ``(row, col, value)`` of the banded corrected-phase covariance.
+
+    Scans may belong to several series at once: ``left`` indexes the references of all series
+    together, so only scans of one series ever share a reference; ``diffusion`` and ``jitter``
+    are per-scan (the level of the scan's series) or scalars.  Entries come in three runs
+    (own variance, shared references, Brownian bridge), each ordered by reference, so by series
+    when the scans and references are ordered by series.  Duplicates add up.
+    """
+    n = var_s.size
+    diffusion = np.broadcast_to(np.asarray(diffusion, dtype=float), (n,))
+    jitter = np.broadcast_to(np.asarray(jitter, dtype=float), (n,))
+    inner = np.flatnonzero(~exact)
+    rows, cols, vals = [np.arange(n)], [np.arange(n)], [var_s + jitter]
+    # W (R + τ² I) Wᵀ: entries (scan, reference, weight), paired by reference.
+    e_sig = np.concatenate((np.arange(n), inner))
+    e_ref = np.concatenate((left, left[inner] + 1))
+    e_w = np.concatenate((1.0 - w, w[inner]))
+    p, q = _pairs_within_groups(e_ref)
+    i, k = e_sig[p], e_sig[q]
+    up = i <= k
+    rows.append(i[up])
+    cols.append(k[up])
+    vals.append((e_w[p] * e_w[q] * (var_r[e_ref[p]] + jitter[i]))[up])
+    if inner.size and np.any(diffusion[inner] > 0):
+        # Brownian bridge within each reference interval.
+        p, q = _pairs_within_groups(left[inner])
+        i, k = inner[p], inner[q]
+        up = (i <= k) & (diffusion[i] > 0)
+        i, k = i[up], k[up]
+        u = t_s - t_r[left]
+        length = t_r[np.minimum(left + 1, t_r.size - 1)] - t_r[left]
+        lo, hi = np.minimum(u[i], u[k]), np.maximum(u[i], u[k])
+        rows.append(i)
+        cols.append(k)
+        vals.append(diffusion[i] * lo * (length[i] - hi) / length[i])
+    return np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
+
+
 def _banded_covariance(
     left: np.ndarray,
     w: np.ndarray,
@@ -798,43 +1009,14 @@ def _banded_covariance(
     """:func:`corrected_phase_covariance` for linear interpolation and independent references.
 
     Only scans sharing a reference or an interval are correlated: their pairs are enumerated
-    (upper triangle, then mirrored) and accumulated with one ``bincount`` (dense), or summed
-    into a CSR matrix (``sparse_out``: the memory and time grow with the band, not with n²).
+    (upper triangle, then mirrored, :func:`_banded_triplets`) and accumulated with one
+    ``bincount`` (dense), or kept as triplets (``sparse_out``: the memory and time grow with the
+    band, not with n²).
     """
     n = var_s.size
-    inner = np.flatnonzero(~exact)
-    idx, val = [np.arange(n) * (n + 1)], [var_s + jitter]
-    # W (R + τ² I) Wᵀ: entries (scan, reference, weight), paired by reference.
-    e_sig = np.concatenate((np.arange(n), inner))
-    e_ref = np.concatenate((left, left[inner] + 1))
-    e_w = np.concatenate((1.0 - w, w[inner]))
-    p, q = _pairs_within_groups(e_ref)
-    i, k = e_sig[p], e_sig[q]
-    up = i <= k
-    idx.append(i[up] * n + k[up])
-    val.append((e_w[p] * e_w[q] * (var_r[e_ref[p]] + jitter))[up])
-    if diffusion > 0 and inner.size:
-        # Brownian bridge within each reference interval.
-        p, q = _pairs_within_groups(left[inner])
-        i, k = inner[p], inner[q]
-        up = i <= k
-        i, k = i[up], k[up]
-        u = t_s - t_r[left]
-        length = t_r[np.minimum(left + 1, t_r.size - 1)] - t_r[left]
-        lo, hi = np.minimum(u[i], u[k]), np.maximum(u[i], u[k])
-        idx.append(i * n + k)
-        val.append(diffusion * lo * (length[i] - hi) / length[i])
-    idx_up, val_up = np.concatenate(idx), np.concatenate(val)
-    row, col = np.divmod(idx_up, n)
-    off = row != col  # mirror the strict upper triangle: the same sums, so exactly symmetric
-    if sparse_out:  # the upper triangle as triplets; mirrored when a matrix is asked for
-        return _SymmetricTriplets(n, row, col, val_up)
-    flat = np.bincount(
-        np.r_[idx_up, col[off] * n + row[off]],
-        weights=np.r_[val_up, val_up[off]],
-        minlength=n * n,
-    )
-    return flat.reshape(n, n)
+    row, col, val = _banded_triplets(left, w, exact, var_s, var_r, t_s, t_r, diffusion, jitter)
+    triplets = _SymmetricTriplets(n, row, col, val)
+    return triplets if sparse_out else triplets.toarray()
 
 
 def _brownian_kernel(ta: np.ndarray, tb: np.ndarray, t0: float) -> np.ndarray:
@@ -979,59 +1161,87 @@ class NoiseEstimate:
         return dict(self.__dict__)
 
 
+_MOMENTS = ("q", "trs", "trk", "ss", "sk", "kk")
+
+
+def _grouped_noise_moments(
+    t_ref: np.ndarray,
+    phase_ref: np.ndarray,
+    var_ref: np.ndarray,
+    group: np.ndarray,
+    n_groups: int,
+    model: str,
+) -> dict[str, np.ndarray]:
+    """Moments of the chord residuals ``r = P phi`` of every group (series) at once.
+
+    The references of all groups come one after the other (sorted by group, then time).  Row
+    ``q`` of ``P`` is reference q+1 minus the line through references q and q+2 of the same
+    group; the moments are the observed |r|², tr(S'), tr(K') and the traces needed for
+    Var(|r|²) = 2 tr((S' + level K')²), with S' = P S Pᵀ and K' = P K Pᵀ, per group.  P has three
+    entries per row, so S' and K' are banded (bandwidth 2) and are evaluated band by band.
+    """
+    m = {name: np.zeros(n_groups) for name in _MOMENTS}
+    m["n"] = np.zeros(n_groups, dtype=np.int64)
+    if t_ref.size < 3 or model == "none":
+        return m
+    same = group[1:] == group[:-1]
+    j = np.flatnonzero(same[:-1] & same[1:]) + 1  # chord centres with both neighbours in group
+    if j.size == 0:
+        return m
+    t = t_ref - t_ref[_group_heads(group)]  # time from the group's first reference
+    g_row = group[j]
+    gap = t[j + 1] - t[j - 1]
+    coef = (-(t[j + 1] - t[j]) / gap, np.ones(j.size), -(t[j] - t[j - 1]) / gap)
+    r = coef[0] * phase_ref[j - 1] + phase_ref[j] + coef[2] * phase_ref[j + 1]
+
+    bands = []
+    for d in range(3):
+        # Band d, rows q and q+d of one group, columns j-1+α and j-1+d+β:
+        # Σ_αβ P[q,α] P[q+d,β] kernel(j-1+α, j-1+d+β).  The statistical kernel is diagonal
+        # (α = d+β), the jitter kernel the identity, the random-walk kernel min(t, t') =
+        # t[j-1+min(α, d+β)] (times increase within a group).
+        q = np.flatnonzero(g_row[d:] == g_row[: g_row.size - d])
+        base = j[q] - 1
+        pa = [c[q] for c in coef]
+        pb = [c[q + d] for c in coef]
+        diag_terms = [(al, pa[al] * pb[al - d]) for al in range(d, 3)]
+        s_d = sum(w_ab * var_ref[base + al] for al, w_ab in diag_terms)
+        if model == "random-walk":
+            t_m = [t[base + m] for m in range(3)]
+            k_d = sum(pa[al] * pb[be] * t_m[min(al, be + d)] for al in range(3) for be in range(3))
+        else:
+            k_d = sum(w_ab for _, w_ab in diag_terms)
+        bands.append((g_row[q], s_d, k_d))
+
+    def per_group(g, v):
+        return np.bincount(g, weights=v, minlength=n_groups)
+
+    def frob(x, y):  # Σ_ij X_ij Y_ij of two symmetric banded matrices, per group
+        return sum(
+            (1.0 if d == 0 else 2.0) * per_group(bands[d][0], bands[d][x] * bands[d][y])
+            for d in range(3)
+        )
+
+    m.update(
+        q=per_group(g_row, r * r),
+        trs=per_group(bands[0][0], bands[0][1]),
+        trk=per_group(bands[0][0], bands[0][2]),
+        ss=frob(1, 1),
+        sk=frob(1, 2),
+        kk=frob(2, 2),
+        n=np.bincount(g_row, minlength=n_groups),
+    )
+    return m
+
+
 def _noise_moments(
     t_ref: np.ndarray, phase_ref: np.ndarray, var_ref: np.ndarray, model: str
 ) -> dict[str, float]:
-    """Moments of the chord residuals ``r = P phi`` (row q: reference q+1 minus the line through
-    references q and q+2): observed |r|², tr(S'), tr(K') and the traces needed for
-    Var(|r|²) = 2 tr((S' + level K')²), with S' = P S Pᵀ and K' = P K Pᵀ.  P has three entries
-    per row, so S' and K' are banded (bandwidth 2) and are evaluated band by band."""
-    m = {"q": 0.0, "trs": 0.0, "trk": 0.0, "ss": 0.0, "sk": 0.0, "kk": 0.0, "n": 0}
-    rows = t_ref.size - 2
-    if rows <= 0 or model == "none":
-        return m
-    t = t_ref - t_ref[0]
-    j = np.arange(1, rows + 1)
-    gap = t[j + 1] - t[j - 1]
-    coef = np.stack([-(t[j + 1] - t[j]) / gap, np.ones(rows), -(t[j] - t[j - 1]) / gap], 1)
-    r = coef[:, 0] * phase_ref[j - 1] + phase_ref[j] + coef[:, 2] * phase_ref[j + 1]
-
-    three = np.arange(3)
-
-    def band(d: int, kernel) -> np.ndarray:  # Σ_αβ P[q,α] P[q+d,β] kernel(q+α, q+d+β)
-        q = np.arange(rows - d)
-        c1 = q[:, None, None] + three[None, :, None]
-        c2 = q[:, None, None] + d + three[None, None, :]
-        return np.einsum("qa,qb,qab->q", coef[q], coef[q + d], kernel(c1, c2))
-
-    def stat(c1, c2):
-        return np.where(c1 == c2, var_ref[c1], 0.0)
-
-    if model == "random-walk":
-
-        def kern(c1, c2):
-            return np.minimum(t[c1], t[c2])
-    else:
-
-        def kern(c1, c2):
-            return (c1 == c2).astype(float)
-
-    s_b = [band(d, stat) for d in range(3)]
-    k_b = [band(d, kern) for d in range(3)]
-
-    def frob(x, y):  # Σ_ij X_ij Y_ij of two symmetric banded matrices
-        return float(x[0] @ y[0] + 2.0 * (x[1] @ y[1] + x[2] @ y[2]))
-
-    m.update(
-        q=float(r @ r),
-        trs=float(s_b[0].sum()),
-        trk=float(k_b[0].sum()),
-        ss=frob(s_b, s_b),
-        sk=frob(s_b, k_b),
-        kk=frob(k_b, k_b),
-        n=rows,
+    """:func:`_grouped_noise_moments` of one series, as plain numbers."""
+    m = _grouped_noise_moments(
+        t_ref, phase_ref, var_ref, np.zeros(t_ref.size, dtype=np.int64), 1, model
     )
-    return m
+    return {name: (int(v[0]) if name == "n" else float(v[0])) for name, v in m.items()}
 
 
 def _noise_from_moments(model: str, m: dict[str, float], scope: str) -> NoiseEstimate:
@@ -1087,6 +1297,19 @@ def estimate_excess_noise(
     return _noise_from_moments(model, m, "series")
 
 
+def _grouped_unwrap(phi: np.ndarray, group: np.ndarray) -> np.ndarray:
+    """:func:`numpy.unwrap` of each group (entries sorted by group) in one pass."""
+    if phi.size < 2:
+        return phi.astype(float, copy=True)
+    dd = np.diff(phi)
+    ddmod = np.mod(dd + np.pi, TWO_PI) - np.pi
+    ddmod[(ddmod == -np.pi) & (dd > 0)] = np.pi
+    turns = np.rint((ddmod - dd) / TWO_PI)
+    turns[(np.abs(dd) < np.pi) | (group[1:] != group[:-1])] = 0.0
+    total = np.r_[0.0, np.cumsum(turns)]  # whole turns: exact in floating point
+    return phi + TWO_PI * (total - total[_group_heads(group)])
+
+
 def _wrap(phi: np.ndarray) -> np.ndarray:
     """Wrap to (-π, π]."""
     return np.pi - np.mod(np.pi - phi, TWO_PI)
@@ -1135,19 +1358,49 @@ def choose_branches(
     if shift_sign not in (None, 1, -1):
         raise InputError(f"shift_sign must be +1, -1 or None, found {shift_sign!r}")
     w = np.ones_like(phi) if phase_err is None else 1.0 / np.asarray(phase_err, float) ** 2
+    return _grouped_branches(phi, v, w, np.zeros(phi.size, dtype=np.int64), 1, shift_sign)
+
+
+def _grouped_branches(
+    phi: np.ndarray,
+    v: np.ndarray,
+    w: np.ndarray,
+    group: np.ndarray,
+    n_groups: int,
+    shift_sign: int | None,
+) -> np.ndarray:
+    """:func:`choose_branches` (trend rule) for every group (series) at once.
+
+    Level ``k`` of every group (its k-th smallest ``|V|``) is placed in one vectorised step, on
+    the branch nearest ``β_g V²`` with ``β_g`` the weighted slope of the group's levels below.
+    """
+    phi = np.array(phi, dtype=float)
+    if phi.size == 0:
+        return phi
+    a = np.abs(v)
+    order = np.lexsort((a, group))
+    g, ao = group[order], a[order]
+    new_level = np.r_[True, (g[1:] != g[:-1]) | (ao[1:] != ao[:-1])]
+    level = np.cumsum(new_level) - 1
+    rank = level - level[_group_heads(g)]  # 0 for each group's lowest |V|
+    by_rank = order[np.argsort(rank, kind="stable")]
+    bounds = np.r_[0, np.cumsum(np.bincount(rank))]
     v2 = v * v
-    levels = np.unique(np.abs(v))
-    sxx = sxy = 0.0
-    for k, lev in enumerate(levels):
-        sel = np.abs(v) == lev
+    sxx = np.zeros(n_groups)
+    sxy = np.zeros(n_groups)
+    for k, (lo, hi) in enumerate(itertools.pairwise(bounds)):
+        sel = by_rank[lo:hi]
+        gs = group[sel]
         if k == 0 and shift_sign is not None:
-            lo = -0.5 * np.pi
-            phi[sel] = shift_sign * (lo + np.mod(shift_sign * phi[sel] - lo, TWO_PI))
+            lo_edge = -0.5 * np.pi
+            phi[sel] = shift_sign * (lo_edge + np.mod(shift_sign * phi[sel] - lo_edge, TWO_PI))
         else:
-            target = (sxy / sxx if sxx > 0 else 0.0) * v2[sel]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                slope = np.where(sxx > 0, sxy / sxx, 0.0)
+            target = slope[gs] * v2[sel]
             phi[sel] += TWO_PI * np.round((target - phi[sel]) / TWO_PI)
-        sxx += float(np.sum(w[sel] * v2[sel] ** 2))
-        sxy += float(np.sum(w[sel] * v2[sel] * phi[sel]))
+        sxx += np.bincount(gs, weights=w[sel] * v2[sel] ** 2, minlength=n_groups)
+        sxy += np.bincount(gs, weights=w[sel] * v2[sel] * phi[sel], minlength=n_groups)
     return phi
 
 
@@ -1180,11 +1433,36 @@ def _first_non_number(raw: pd.Series) -> int:
     return 0
 
 
-def _checked_columns(df: pd.DataFrame, source: str) -> dict[str, np.ndarray]:
+#: Columns that hold one value per scan (checked per scan once the rows are grouped).
+_PER_SCAN = ("temperature_K", "voltage_V", *CARRIED_COLUMNS)
+
+
+def _all_finite(vals: np.ndarray) -> bool:
+    # A finite sum implies finite terms (NaN and inf propagate); an overflowing sum of finite
+    # values falls through to the element-wise test.
+    with np.errstate(over="ignore", invalid="ignore"):
+        return math.isfinite(vals.sum()) or bool(np.isfinite(vals).all())
+
+
+def _check_range(source: str, col: str, vals: np.ndarray) -> None:
+    """Raise the row error for the first value of ``col`` outside its allowed range."""
+    if col in _POSITIVE and vals.min() <= 0:
+        bad = int(np.flatnonzero(vals <= 0)[0])
+        raise _row_error(source, bad, col, "a value > 0", vals[bad])
+    if col in _NON_NEGATIVE and vals.min() < 0:
+        bad = int(np.flatnonzero(vals < 0)[0])
+        raise _row_error(source, bad, col, "a value >= 0", vals[bad])
+
+
+def _checked_columns(
+    df: pd.DataFrame, source: str, deferred: tuple[str, ...] = ()
+) -> dict[str, np.ndarray]:
     """Validate the columns of a raw scan table and return them as arrays (no frame copy).
 
     Numeric columns come back as float64 (``scan`` as int64); the compound column as
-    ``compound_codes`` (int) indexing the sorted, stripped ``compound_names``.
+    ``compound_codes`` (int) indexing the sorted, stripped ``compound_names``.  Columns named in
+    ``deferred`` are only converted to numbers: the caller checks their values (per scan) and
+    calls this again without ``deferred`` to name the first bad cell if that check fails.
     """
     if not isinstance(df, pd.DataFrame):
         raise InputError(f"{source}: expected a table, found {type(df).__name__}")
@@ -1220,35 +1498,39 @@ def _checked_columns(df: pd.DataFrame, source: str) -> dict[str, np.ndarray]:
             out[col] = raw.to_numpy(dtype=np.int64)  # whole numbers by type: nothing to check
             continue
         vals = raw.to_numpy(dtype=float, na_value=np.nan)
+        if col in deferred:
+            out[col] = vals
+            continue
         # fast paths (one reduction each); the offending row is located only on failure
-        if not np.isfinite(vals).all():
+        if not _all_finite(vals):
             i = int(np.flatnonzero(~np.isfinite(vals))[0])
             found = "empty cell" if pd.isna(raw.iloc[i]) else vals[i]
             raise _row_error(source, i, col, "a finite number", found)
-        if col in _POSITIVE and vals.min() <= 0:
-            bad = np.flatnonzero(vals <= 0)
-            raise _row_error(source, int(bad[0]), col, "a value > 0", vals[bad[0]])
-        if col in _NON_NEGATIVE and vals.min() < 0:
-            bad = np.flatnonzero(vals < 0)
-            raise _row_error(source, int(bad[0]), col, "a value >= 0", vals[bad[0]])
+        _check_range(source, col, vals)
         if col == "scan":
             bad = np.flatnonzero((vals != np.round(vals)) | (np.abs(vals) > 2**53))
             if bad.size:
                 raise _row_error(source, int(bad[0]), col, "a whole-number scan id", vals[bad[0]])
             vals = vals.astype(np.int64)
         out[col] = vals
-    codes, uniques = pd.factorize(df["compound"], use_na_sentinel=True)
-    if np.any(codes < 0):
+    compound = df["compound"]
+    if isinstance(compound.dtype, pd.CategoricalDtype):  # e.g. from Parquet: codes as they are
+        codes = compound.cat.codes.to_numpy()
+        uniques = compound.cat.categories
+    else:
+        codes, uniques = pd.factorize(compound, use_na_sentinel=True)
+    if codes.min() < 0:
         raise _row_error(
             source, int(np.flatnonzero(codes < 0)[0]), "compound", "a compound name", "empty cell"
         )
     names = np.array([str(u).strip() for u in uniques], dtype=object)
     for k in np.flatnonzero(names == ""):
-        raise _row_error(
-            source, int(np.flatnonzero(codes == k)[0]), "compound", "a compound name", uniques[k]
-        )
+        rows = np.flatnonzero(codes == k)  # (an unused category of a Categorical has none)
+        if rows.size:
+            raise _row_error(source, int(rows[0]), "compound", "a compound name", uniques[k])
     sorted_names, remap = np.unique(names.astype(str), return_inverse=True)
-    out["compound_codes"] = remap[codes]
+    same = remap.size == sorted_names.size and np.array_equal(remap, np.arange(remap.size))
+    out["compound_codes"] = codes if same else remap[codes]
     out["compound_names"] = sorted_names.astype(object)
     return out
 
@@ -1309,15 +1591,19 @@ def _arrow_to_frame(table) -> pd.DataFrame:
     """Arrow table → DataFrame without pandas' generic conversion (numeric columns are handed
     over as NumPy views; the dictionary-encoded compound column becomes a Categorical)."""
     cols = {}
+    table = table.unify_dictionaries().combine_chunks()  # one chunk per column (threaded)
     for name in table.column_names:
         col = table.column(name)
         if name == "compound":
-            arr = col.unify_dictionaries().combine_chunks()
+            arr = col.combine_chunks()
             if not hasattr(arr, "indices"):
                 raise TypeError("compound column is not dictionary encoded")
             codes = arr.indices.fill_null(-1).to_numpy(zero_copy_only=False)
             cats = [str(v) for v in arr.dictionary.to_pylist()]
-            cols[name] = pd.Categorical.from_codes(codes.astype(np.int64), cats)
+            if len(set(cats)) != len(cats):
+                raise TypeError("repeated dictionary entries")
+            # Codes straight from Arrow lie in range (or are null, -1) by construction.
+            cols[name] = pd.Categorical.from_codes(codes, cats, validate=False)
         else:
             cols[name] = col.to_numpy()
     return pd.DataFrame(cols, copy=False)
@@ -1611,9 +1897,15 @@ class ReducedPhases:
         return "<pre>" + escape(self.report()) + "</pre>"
 
 
-def _flag_strings(flags: np.ndarray) -> np.ndarray:
+def _text_column(labels: Sequence[str], codes: np.ndarray):
+    """``labels[codes]`` as pandas' default text array (built once per label, then taken)."""
+    text_dtype = pd.Series(["x"]).dtype  # object before pandas 3, "str" since
+    return pd.array(np.asarray(labels, dtype=object), dtype=text_dtype).take(codes)
+
+
+def _flag_strings(flags: np.ndarray):
     uniq, inverse = np.unique(flags, return_inverse=True)
-    return np.array([describe_flags(u) for u in uniq], dtype=object)[inverse]
+    return _text_column([describe_flags(u) for u in uniq], inverse)
 
 
 def reduce_table(
@@ -1667,7 +1959,9 @@ def reduce_table(
         )
     if not (isinstance(period_m, int | float) and math.isfinite(period_m) and period_m > 0):
         raise InputError(f"{source}: grating period must be a positive length, found {period_m!r}")
-    cols = _checked_columns(df, source)
+    if not (isinstance(iterations, int) and iterations >= 0):
+        raise InputError(f"{source}: iterations must be a whole number >= 0, found {iterations!r}")
+    cols = _checked_columns(df, source, deferred=_PER_SCAN)
     names = cols["compound_names"]
     row_keys = [*_NUMERIC, "compound_codes"]
     scan = cols["scan"]
@@ -1677,13 +1971,28 @@ def reduce_table(
         scan = cols["scan"]
     starts = np.flatnonzero(np.r_[True, scan[1:] != scan[:-1]])
     nb = np.diff(np.r_[starts, len(scan)])
-    # Every column that describes a scan must be the same in all its bins.
-    same_scan = scan[1:] == scan[:-1]
-    for col in ("compound_codes", "temperature_K", "voltage_V", *CARRIED_COLUMNS):
+    # Every column that describes a scan must be the same in all its bins; then its values
+    # need checking once per scan.  On any failure the full row-by-row validation runs first,
+    # so a bad cell is named exactly as it would be without this shortcut.
+    is_start = np.zeros(len(scan) + 1, dtype=bool)
+    is_start[starts] = True
+    for col in ("compound_codes", *_PER_SCAN):
         v = cols[col]
-        bad = np.flatnonzero(same_scan & (v[1:] != v[:-1]))
-        if bad.size:
-            i = int(bad[0]) + 1
+        change = np.flatnonzero(v[1:] != v[:-1]) + 1
+        inside = change[~is_start[change]]
+        first = v[starts]
+        if col != "compound_codes":
+            try:
+                if not _all_finite(first):
+                    raise InputError(col)
+                _check_range(source, col, first)
+            except (InputError, RowValueError):
+                inside = np.r_[0, inside]  # a bad value: let the full validation name it
+        if inside.size:
+            _checked_columns(df, source)  # raises for a bad cell anywhere
+            inside = inside[inside > 0]
+        if inside.size:
+            i = int(inside[0])
             shown = (names[v[i - 1]], names[v[i]]) if col == "compound_codes" else (v[i - 1], v[i])
             raise InputError(
                 f"{source}: scan {scan[i]} has more than one "
@@ -1691,10 +2000,11 @@ def reduce_table(
                 f"{shown[1]!r}); a scan must have one value"
             )
 
-    fits = fit_scans(
+    fits = _fit_sorted(
         scan,
         cols["position_m"],
         cols["counts"],
+        starts,
         period_m,
         iterations=iterations,
         min_bins=min_bins,
@@ -1711,114 +2021,141 @@ def reduce_table(
     is_ref = volt_s == 0.0
     unwrapped_ref = np.full(len(fits), np.nan)
 
-    # series = (compound, temperature): scan indices per series, series sorted, scans in order
-    order = np.lexsort((temp_s, code_s))  # stable: scans of one series keep their order
+    # Series = (compound, temperature), numbered in sorted order; every stage below works on
+    # all series at once, on scans grouped by series (scan order kept within a series).
+    order = np.lexsort((temp_s, code_s))
     ck, tk = code_s[order], temp_s[order]
-    cuts = np.flatnonzero((ck[1:] != ck[:-1]) | (tk[1:] != tk[:-1])) + 1
-    heads = np.concatenate(([0], cuts)) if order.size else np.zeros(0, dtype=np.int64)
-    groups = {
-        (int(ck[h]), float(tk[h])): part
-        for h, part in zip(heads, np.split(order, cuts), strict=True)
-    }
-    messages: list[str] = []
-    prepared = {}
-    pooled = {"q": 0.0, "trs": 0.0, "trk": 0.0, "ss": 0.0, "sk": 0.0, "kk": 0.0, "n": 0}
-    for key, idx in groups.items():
-        key = (str(names[key[0]]), float(key[1]))
-        idx = np.asarray(idx)
-        refs = idx[is_ref[idx]]
-        sig = idx[~is_ref[idx]]
-        refs = refs[np.argsort(times[refs], kind="stable")]
-        good = refs[flags[refs] == 0]
-        # Two references at the same time: keep the first (times must increase strictly).
-        if good.size > 1:
-            good = good[np.r_[True, np.diff(times[good]) > 0]]
-        ph_good = np.unwrap(phase[good]) if good.size else np.zeros(0)
-        unwrapped_ref[good] = ph_good
-        for r in refs[flags[refs] != 0]:
-            messages.append(
-                f"{source}: reference scan {fits.scan[r]} ({key[0]}, {key[1]:g} K): "
-                f"{describe_flags(flags[r])} -- not used for drift correction"
-            )
-        if good.size:
-            vw = 1.0 / fits.visibility_err[good] ** 2
-            vis_ref = (
-                float(np.sum(vw * fits.visibility[good]) / vw.sum()),
-                float(1.0 / math.sqrt(vw.sum())),
-            )
-        else:
-            vis_ref = (math.nan, math.nan)
-        moments = _noise_moments(times[good], ph_good, var[good], noise_model)
-        for name in pooled:
-            pooled[name] += moments[name]
-        prepared[key] = (sig, good, ph_good, vis_ref, moments)
+    first = np.r_[True, (ck[1:] != ck[:-1]) | (tk[1:] != tk[:-1])]
+    sid = np.empty(len(fits), dtype=np.int64)
+    sid[order] = np.cumsum(first) - 1
+    keys: list[SeriesKey] = [(str(names[code_s[h]]), float(temp_s[h])) for h in order[first]]
+    n_ser = len(keys)
 
+    # References: by series, then time (ties in scan order); good ones unwrapped per series.
+    refs = np.flatnonzero(is_ref)
+    refs = refs[np.lexsort((times[refs], sid[refs]))]
+    good = refs[flags[refs] == 0]
+    if good.size > 1:  # two references at the same time: keep the first
+        gs = sid[good]
+        good = good[np.r_[True, (gs[1:] != gs[:-1]) | (np.diff(times[good]) > 0)]]
+    g_sid = sid[good]
+    g_count = np.bincount(g_sid, minlength=n_ser)
+    g_start = np.cumsum(g_count) - g_count
+    t_good = times[good]
+    ph_good = _grouped_unwrap(phase[good], g_sid)
+    unwrapped_ref[good] = ph_good
+    vw = 1.0 / fits.visibility_err[good] ** 2
+    with np.errstate(invalid="ignore", divide="ignore"):
+        vis_mean = np.bincount(g_sid, vw * fits.visibility[good], n_ser) / np.bincount(
+            g_sid, vw, n_ser
+        )
+        vis_err = 1.0 / np.sqrt(np.bincount(g_sid, vw, n_ser))
+    vis_mean[g_count == 0] = vis_err[g_count == 0] = np.nan
+
+    # Excess phase noise per series (and pooled) from the chord residuals of the references.
+    moments = _grouped_noise_moments(t_good, ph_good, var[good], g_sid, n_ser, noise_model)
+    pooled = {name: float(v.sum()) for name, v in moments.items()}
     pooled_est = _noise_from_moments(noise_model, pooled, "pooled")
-
-    out_phase = np.full(len(fits), np.nan)
-    out_err = np.full(len(fits), np.nan)
-    covariance: dict[SeriesKey, np.ndarray] = {}
-    ref_vis: dict[SeriesKey, tuple[float, float]] = {}
+    n_sig = np.bincount(sid[~is_ref], minlength=n_ser)
     noise: dict[SeriesKey, NoiseEstimate] = {}
-    for key, (sig, good, ph_good, vis_ref, moments) in prepared.items():
-        ref_vis[key] = vis_ref
-        if noise_scope == "pooled" or good.size < 3:
-            est = pooled_est
-            if noise_scope == "series" and noise_model != "none" and sig.size:
-                messages.append(
-                    f"{source}: {key[0]} at {key[1]:g} K has {good.size} usable reference(s); "
+    fallback: dict[int, str] = {}
+    for s, key in enumerate(keys):
+        if noise_scope == "pooled" or g_count[s] < 3:
+            noise[key] = pooled_est
+            if noise_scope == "series" and noise_model != "none" and n_sig[s]:
+                fallback[s] = (
+                    f"{source}: {key[0]} at {key[1]:g} K has {g_count[s]} usable reference(s); "
                     f"excess phase noise taken from all series pooled"
                 )
         else:
-            est = _noise_from_moments(noise_model, moments, "series")
-        noise[key] = est
-        left, w_right, exact, bracket = _bracket(times[sig], times[good])
-        flags[sig] |= bracket
-        ok = flags[sig] == 0
-        keep = sig[ok]
-        left, w_right, exact = left[ok], w_right[ok], exact[ok]
-        if good.size:
-            right = np.minimum(left + 1, good.size - 1)
-            ref_phase = (1.0 - w_right) * ph_good[left] + w_right * ph_good[right]
-        else:
-            ref_phase = np.zeros(0)
-        delta = _wrap(phase[keep] - ref_phase)
-        vk = volt_s[keep]
-        expected = None
-        if expected_phase is not None:
+            m_s = {name: v[s] for name, v in moments.items()}
+            noise[key] = _noise_from_moments(noise_model, m_s, "series")
+    diffusion = np.array([e.level if e.model == "random-walk" else 0.0 for e in noise.values()])
+    jitter = np.array([e.level if e.model == "jitter" else 0.0 for e in noise.values()])
 
-            def expected(v, _key=key):
+    # Signal scans: bracket by the good references of their series, subtract the interpolated
+    # reference phase, choose the 2π branch.
+    sig = np.flatnonzero(~is_ref)
+    sig = sig[np.argsort(sid[sig], kind="stable")]
+    left, w_right, exact, bracket = _grouped_bracket(
+        times[sig], sid[sig], t_good, g_sid, g_start, g_count
+    )
+    flags[sig] |= bracket
+    ok = flags[sig] == 0
+    keep = sig[ok]
+    left, w_right, exact = left[ok], w_right[ok], exact[ok]
+    k_sid = sid[keep]
+    if keep.size:
+        right = np.minimum(left + 1, g_start[k_sid] + g_count[k_sid] - 1)
+        delta = _wrap(phase[keep] - ((1.0 - w_right) * ph_good[left] + w_right * ph_good[right]))
+    else:
+        delta = np.zeros(0)
+    k_count = np.bincount(k_sid, minlength=n_ser)
+    k_start = np.cumsum(k_count) - k_count
+    if expected_phase is not None:
+        for s in np.flatnonzero(k_count):
+            part = slice(k_start[s], k_start[s] + k_count[s])
+
+            def expected(v, _key=keys[s]):
                 return expected_phase(_key, v)
 
-        delta = choose_branches(
-            delta, vk, np.sqrt(var[keep]), expected=expected, shift_sign=shift_sign
-        )
-        cov = _banded_covariance(
-            left,
-            w_right,
-            exact,
-            var[keep],
-            var[good],
-            times[keep],
-            times[good],
-            est.level if est.model == "random-walk" else 0.0,
-            est.level if est.model == "jitter" else 0.0,
-            sparse_out=True,
-        )
-        covariance[key] = cov
-        out_phase[keep] = delta
-        out_err[keep] = np.sqrt(cov.diagonal())
-        for i in sig[flags[sig] != 0]:
-            messages.append(
-                f"{source}: scan {fits.scan[i]} ({key[0]}, {key[1]:g} K, "
-                f"{volt_s[i]:g} V): {describe_flags(flags[i])} -- dropped"
-            )
+            delta[part] = choose_branches(delta[part], volt_s[keep[part]], expected=expected)
+    else:
+        delta = _grouped_branches(delta, volt_s[keep], 1.0 / var[keep], k_sid, n_ser, shift_sign)
 
-    flag_text = _flag_strings(flags)
+    # Covariance of the corrected phases: banded, per series (triplets in local indices).
+    row, col, val = _banded_triplets(
+        left,
+        w_right,
+        exact,
+        var[keep],
+        var[good],
+        times[keep],
+        t_good,
+        diffusion[k_sid],
+        jitter[k_sid],
+    )
+    on = row == col
+    out_phase = np.full(len(fits), np.nan)
+    out_err = np.full(len(fits), np.nan)
+    out_phase[keep] = delta
+    out_err[keep] = np.sqrt(np.bincount(row[on], weights=val[on], minlength=keep.size))
+    e_sid = k_sid[row]
+    by_series = np.argsort(e_sid, kind="stable")  # three runs, each already by series
+    e_sid = e_sid[by_series]
+    row = row[by_series] - k_start[e_sid]
+    col = col[by_series] - k_start[e_sid]
+    val = val[by_series]
+    e_bounds = np.searchsorted(e_sid, np.arange(n_ser + 1))
+    covariance: dict[SeriesKey, _SymmetricTriplets] = {}
+    ref_vis: dict[SeriesKey, tuple[float, float]] = {}
+    for s, key in enumerate(keys):
+        part = slice(e_bounds[s], e_bounds[s + 1])
+        covariance[key] = _SymmetricTriplets(int(k_count[s]), row[part], col[part], val[part])
+        ref_vis[key] = (float(vis_mean[s]), float(vis_err[s]))
+
+    messages = [
+        f"{source}: reference scan {fits.scan[r]} ({keys[sid[r]][0]}, {keys[sid[r]][1]:g} K): "
+        f"{describe_flags(flags[r])} -- not used for drift correction"
+        for r in refs[flags[refs] != 0]
+    ]
+    dropped: dict[int, list[str]] = {}
+    for i in sig[flags[sig] != 0]:
+        key = keys[sid[i]]
+        dropped.setdefault(int(sid[i]), []).append(
+            f"{source}: scan {fits.scan[i]} ({key[0]}, {key[1]:g} K, "
+            f"{volt_s[i]:g} V): {describe_flags(flags[i])} -- dropped"
+        )
+    for s in sorted(fallback.keys() | dropped.keys()):
+        messages.extend(([fallback[s]] if s in fallback else []) + dropped.get(s, []))
+
     sel = np.flatnonzero(~is_ref)
+    rsel = np.flatnonzero(is_ref)
+    flag_text = _flag_strings(flags)
+    name_text = [str(x) for x in names]
     table = pd.DataFrame(
         {
-            "compound": names[code_s[sel]].astype(str),
+            "compound": _text_column(name_text, code_s[sel]),
             "temperature_K": temp_s[sel],
             "voltage_V": volt_s[sel],
             "scan": fits.scan[sel],
@@ -1827,14 +2164,13 @@ def reduce_table(
             "phase_err_rad": out_err[sel],
             "visibility": fits.visibility[sel],
             "visibility_err": fits.visibility_err[sel],
-            "flags": flag_text[sel],
+            "flags": flag_text.take(sel),
             **{c: cols[c][starts][sel] for c in CARRIED_COLUMNS},
         }
     )
-    rsel = np.flatnonzero(is_ref)
     references = pd.DataFrame(
         {
-            "compound": names[code_s[rsel]].astype(str),
+            "compound": _text_column(name_text, code_s[rsel]),
             "temperature_K": temp_s[rsel],
             "scan": fits.scan[rsel],
             "time_s": times[rsel],
@@ -1842,7 +2178,7 @@ def reduce_table(
             "phase_err_rad": fits.phase_err[rsel],
             "visibility": fits.visibility[rsel],
             "visibility_err": fits.visibility_err[rsel],
-            "flags": flag_text[rsel],
+            "flags": flag_text.take(rsel),
         }
     )
     n_flagged = int(np.count_nonzero(flags))
