@@ -2107,11 +2107,12 @@ def reduce_table(
     # so a bad cell is named exactly as it would be without this shortcut.
     is_start = np.zeros(len(scan) + 1, dtype=bool)
     is_start[starts] = True
+    per_scan: dict[str, np.ndarray] = {}  # each scan's value of the per-scan columns
     for col in ("compound_codes", *_PER_SCAN):
         v = cols[col]
         change = _value_changes(v)
         inside = change[~is_start[change]]
-        first = _at_rows(v, starts)
+        first = per_scan[col] = _at_rows(v, starts)
         if col != "compound_codes":
             try:
                 if not _all_finite(first):
@@ -2145,9 +2146,9 @@ def reduce_table(
         chi2_pvalue_min=chi2_pvalue_min,
         min_visibility_snr=min_visibility_snr,
     )
-    code_s = cols["compound_codes"][starts]
-    temp_s = _at_rows(cols["temperature_K"], starts)
-    volt_s = _at_rows(cols["voltage_V"], starts)
+    code_s = per_scan["compound_codes"]
+    temp_s = per_scan["temperature_K"]
+    volt_s = per_scan["voltage_V"]
     times = np.add.reduceat(cols["time_s"], starts) / nb
     flags = fits.flags.copy()
     phase = fits.phase
@@ -2299,7 +2300,7 @@ def reduce_table(
             "visibility": fits.visibility[sel],
             "visibility_err": fits.visibility_err[sel],
             "flags": flag_text.take(sel),
-            **{c: _at_rows(cols[c], starts)[sel] for c in CARRIED_COLUMNS},
+            **{c: per_scan[c][sel] for c in CARRIED_COLUMNS},
         }
     )
     references = pd.DataFrame(
