@@ -816,6 +816,11 @@ def test_parquet_in_many_row_groups_reduces_like_the_table(tmp_path):
     pd.testing.assert_frame_equal(
         reduce_file(path, PERIOD).table, reduce_table(df, PERIOD, source=path.name).table
     )
+    shuffled = df.sample(frac=1.0, random_state=3)  # rows out of scan order: sorted first
+    shuffled.to_parquet(path, index=False, row_group_size=333)
+    pd.testing.assert_frame_equal(
+        reduce_file(path, PERIOD).table, reduce_table(df, PERIOD, source=path.name).table
+    )
     bad = df.copy()
     row = int(bad.index[bad.scan == bad.scan.iloc[700]][5])
     bad.loc[row, "temperature_K"] = np.nan

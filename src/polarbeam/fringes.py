@@ -66,6 +66,8 @@ corrected phases (:func:`corrected_phase_covariance`) adds the scan's own varian
 interpolated reference covariance ``W R Wᵀ`` (scans sharing a reference are correlated) and the
 random-walk (or jitter) term.  The 2π branch of each corrected phase is chosen from an expected
 phase, the sign of the shift or, by default, a smooth trend in V² (:func:`choose_branches`).
+:func:`reduce_table` does each of these steps for all series together, in vectorised passes
+over the scans grouped by series; the result equals reducing each series alone.
 
 Flags
 -----
@@ -1521,7 +1523,9 @@ class _Chunks:
         return np.concatenate(found)
 
     def take(self, rows: np.ndarray) -> np.ndarray:
-        """Values at increasing ``rows``."""
+        """Values at ``rows`` (chunk by chunk when they increase)."""
+        if rows.size > 1 and np.any(rows[1:] < rows[:-1]):
+            return np.concatenate(self.parts)[rows]
         cut = np.searchsorted(rows, self.offsets)
         return np.concatenate(
             [p[rows[cut[k] : cut[k + 1]] - self.offsets[k]] for k, p in enumerate(self.parts)]
