@@ -309,11 +309,6 @@ def _sym6_of(m: np.ndarray) -> Sym6:
 _UPPER = ((0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2))
 
 
-def _det3(m: np.ndarray) -> np.ndarray:
-    """Determinants of a stack of symmetric 3×3 matrices (closed form)."""
-    return _cofactors6(_sym6_of(m))[1]
-
-
 def _solve6(m: Sym6, rhs: np.ndarray) -> np.ndarray:
     """Solve symmetric 3×3 systems ``m x = rhs`` (rhs and x of shape (3, N)): by cofactors where
     well conditioned (10x faster than LAPACK for 3×3), by :func:`numpy.linalg.solve` (pivoted
@@ -344,11 +339,6 @@ def _inv6(m: Sym6) -> Sym6:
     with np.errstate(divide="ignore", invalid="ignore"):
         inv_det = np.where(det != 0, 1.0 / det, np.nan)
     return tuple(c * inv_det for c in cof)  # type: ignore[return-value]
-
-
-def _inv_sym3(m: np.ndarray) -> np.ndarray:
-    """Inverses of a stack of symmetric 3×3 matrices by cofactors (NaN where singular)."""
-    return _sym3(*_inv6(_sym6_of(m)))
 
 
 def _quad6(u, v, c: Sym6) -> np.ndarray:
@@ -455,14 +445,19 @@ def _shared_grid(x: np.ndarray, starts: np.ndarray) -> bool:
 
 
 @dataclass(frozen=True)
-class _Passes:
-    """How many Poisson-reweighted passes the fit makes: at least ``minimum``; then more, up to
-    ``maximum``, while the last pass moved some scan's phase by more than ``tolerance`` times
-    its standard error."""
+class _FitSettings:
+    """Options of the per-scan fit (see :func:`fit_scans`).  The fit makes at least
+    ``min_passes`` Poisson-reweighted passes, then more, up to ``max_passes``, while the last
+    pass moved some scan's phase by more than ``tolerance`` times its standard error."""
 
-    minimum: int = 3
+    period_m: float
+    min_passes: int = 3
     tolerance: float = 1e-2
-    maximum: int = 50
+    max_passes: int = 50
+    min_bins: int = 4
+    chi2_pvalue_min: float = 1e-6
+    min_visibility_snr: float = 3.0
+    mu_floor_fraction: float = 0.05
 
 
 #: Rows per block of the vectorised fit: small enough that the per-scan vectors and the work
@@ -475,12 +470,7 @@ def _fit_segments(
     n: np.ndarray,
     starts: np.ndarray,
     grid: bool,
-    period_m: float,
-    passes: _Passes,
-    min_bins: int,
-    chi2_pvalue_min: float,
-    min_visibility_snr: float,
-    mu_floor_fraction: float,
+    settings: _FitSettings,
     per_block: int,
 ) -> dict[str, np.ndarray]:
     """Fit the scans whose bins are the contiguous segments of ``x, n`` beginning at ``starts``,
@@ -497,12 +487,7 @@ def _fit_segments(
                 n[r0:r1],
                 starts[lo:hi] - r0,
                 grid,
-                period_m,
-                passes,
-                min_bins,
-                chi2_pvalue_min,
-                min_visibility_snr,
-                mu_floor_fraction,
+                settings,
                 work,
             )
         )
@@ -516,15 +501,12 @@ def _fit_block(
     n: np.ndarray,
     starts: np.ndarray,
     grid: bool,
-    period_m: float,
-    passes: _Passes,
-    min_bins: int,
-    chi2_pvalue_min: float,
-    min_visibility_snr: float,
-    mu_floor_fraction: float,
+    settings: _FitSettings,
     work: np.ndarray,
 ) -> dict[str, np.ndarray]:
     """One block of :func:`_fit_segments`; ``work`` holds at least ``2 len(x)`` floats."""
+    period_m, min_bins = settings.period_m, settings.min_bins
+    mu_floor_fraction = settings.mu_floor_fraction
     k = TWO_PI / period_m
     nb = np.diff(np.r_[starts, len(x)])
     m = int(nb[0])
@@ -580,25 +562,25 @@ def _fit_block(
     p = solve(a_mat, d.sums3(n))
     phi_before = None
     done = 0
-    limit = 0 if passes.minimum == 0 else max(passes.minimum, passes.maximum)
+    limit = 0 if settings.min_passes == 0 else max(settings.min_passes, settings.max_passes)
     while done < limit:
-        if done >= passes.minimum - 1:
+        if done >= settings.min_passes - 1:
             phi_before = np.arctan2(p[2], p[1])
         w = np.divide(1.0, floored_model(p), out=buf)
         a_mat = normal_matrix(d.sums5(w))
         p = solve(a_mat, d.sums3(np.multiply(w, n, out=buf2)))
         done += 1
-        if done >= passes.minimum:
+        if done >= settings.min_passes:
             # Converged when no scan's phase moved by more than the tolerance (in σ).
             phi, err = phase_and_error(p, a_mat)
             with np.errstate(invalid="ignore", divide="ignore"):
                 moved = np.abs(_wrap(phi - phi_before)) / err
-            if not np.any(moved[solvable] > passes.tolerance):
+            if not np.any(moved[solvable] > settings.tolerance):
                 break
 
     c0, ca, cb = p
     a_inv = _inv6(a_mat)
-    if passes.minimum == 0:
+    if settings.min_passes == 0:
         # Sandwich A⁻¹ B A⁻¹ with B = Xᵀ diag(μ) X (Poisson variance = model, unit weights).
         ai = _sym3(*a_inv)
         cov = _sym6_of(ai @ _sym3(*normal_matrix(d.sums5(floored_model(p)))) @ ai)
@@ -630,8 +612,8 @@ def _fit_block(
 
     ok_value = solvable & (amp > 0)
     with np.errstate(invalid="ignore"):
-        flags[solvable & ~(vis >= min_visibility_snr * vis_err)] |= LOW_VISIBILITY
-        flags[solvable & (pvalue < chi2_pvalue_min)] |= POOR_CHI2
+        flags[solvable & ~(vis >= settings.min_visibility_snr * vis_err)] |= LOW_VISIBILITY
+        flags[solvable & (pvalue < settings.chi2_pvalue_min)] |= POOR_CHI2
 
     def masked(v, mask):
         return np.where(mask, v, np.nan)
@@ -746,21 +728,17 @@ def fit_scans(
         order = np.argsort(ids, kind="stable")
         ids, x, n = ids[order], x[order], n[order]
     starts = np.flatnonzero(np.r_[True, ids[1:] != ids[:-1]])
-    return _fit_sorted(
-        ids,
-        x,
-        n,
-        starts,
+    settings = _FitSettings(
         period_m,
-        iterations=iterations,
-        tolerance=tolerance,
-        max_iterations=max_iterations,
-        min_bins=min_bins,
-        chi2_pvalue_min=chi2_pvalue_min,
-        min_visibility_snr=min_visibility_snr,
-        mu_floor_fraction=mu_floor_fraction,
-        workers=workers,
+        iterations,
+        tolerance,
+        max(iterations, max_iterations),
+        min_bins,
+        chi2_pvalue_min,
+        min_visibility_snr,
+        mu_floor_fraction,
     )
+    return _fit_sorted(ids, x, n, starts, settings, workers)
 
 
 def _fit_sorted(
@@ -768,15 +746,7 @@ def _fit_sorted(
     x: np.ndarray,
     n: np.ndarray,
     starts: np.ndarray,
-    period_m: float,
-    *,
-    iterations: int = 3,
-    tolerance: float = 1e-2,
-    max_iterations: int = 50,
-    min_bins: int = 4,
-    chi2_pvalue_min: float = 1e-6,
-    min_visibility_snr: float = 3.0,
-    mu_floor_fraction: float = 0.05,
+    settings: _FitSettings,
     workers: int = 2,
 ) -> ScanFits:
     """:func:`fit_scans` on validated rows sorted by scan, ``starts`` the first row of each."""
@@ -796,16 +766,7 @@ def _fit_sorted(
             limiter = threadpool_limits(limits=1, user_api="blas")
         except ImportError:
             grid = n_chunks == 1
-    args = (
-        grid,
-        period_m,
-        _Passes(iterations, tolerance, max(iterations, max_iterations)),
-        min_bins,
-        chi2_pvalue_min,
-        min_visibility_snr,
-        mu_floor_fraction,
-        per_block,
-    )
+    args = (grid, settings, per_block)
     if n_chunks == 1:
         with limiter:
             parts = [_fit_segments(x, n, starts, *args)]
@@ -1531,11 +1492,10 @@ class _Chunks:
             [p[rows[cut[k] : cut[k + 1]] - self.offsets[k]] for k, p in enumerate(self.parts)]
         )
 
-    def __getitem__(self, i):
-        if isinstance(i, int | np.integer):
-            k = int(np.searchsorted(self.offsets, i, side="right")) - 1
-            return self.parts[k][i - self.offsets[k]]
-        return np.concatenate(self.parts)[i]
+    def __getitem__(self, i: int):
+        """One value (for messages)."""
+        k = int(np.searchsorted(self.offsets, i, side="right")) - 1
+        return self.parts[k][i - self.offsets[k]]
 
 
 def _value_changes(v) -> np.ndarray:
@@ -2139,17 +2099,14 @@ def reduce_table(
                 f"{shown[1]!r}); a scan must have one value"
             )
 
-    fits = _fit_sorted(
-        scan,
-        cols["position_m"],
-        cols["counts"],
-        starts,
-        period_m,
-        iterations=iterations,
+    settings = _FitSettings(
+        float(period_m),
+        min_passes=iterations,
         min_bins=min_bins,
         chi2_pvalue_min=chi2_pvalue_min,
         min_visibility_snr=min_visibility_snr,
     )
+    fits = _fit_sorted(scan, cols["position_m"], cols["counts"], starts, settings)
     code_s = per_scan["compound_codes"]
     temp_s = per_scan["temperature_K"]
     volt_s = per_scan["voltage_V"]
