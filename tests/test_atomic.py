@@ -5,7 +5,7 @@ import stat
 
 import pytest
 
-from polarbeam.atomic import write_text_atomic
+from polarbeam._util.atomic import write_text_atomic
 
 
 def test_atomic_write_replaces_and_cleans(tmp_path):

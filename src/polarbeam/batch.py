@@ -39,7 +39,7 @@ from uncertainties import UFloat
 from uncertainties.core import AffineScalarFunc, LinearCombination, Variable
 
 from . import __version__
-from .atomic import write_text_atomic
+from ._util.atomic import write_text_atomic
 from .errors import InputError, PolarbeamError
 from .results import CampaignResult, CompoundResult, SeriesResult
 
@@ -233,7 +233,7 @@ def _file_sha(path: Path) -> str:
 
 
 def _rows_by_compound(path: Path, what: str) -> dict[str, list]:
-    from .tables import read_table
+    from ._util.tables import read_table
 
     table = read_table(path, ("compound",), what)
     out: dict[str, list] = {}

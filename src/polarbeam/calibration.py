@@ -57,7 +57,7 @@ import uncertainties
 from scipy import stats
 from uncertainties import UFloat, covariance_matrix, ufloat, umath
 
-from .atomic import write_text_atomic
+from ._util.atomic import write_text_atomic
 from .constants import (
     BOLTZMANN,
     alpha_a3_from_si,
@@ -71,7 +71,7 @@ from .fieldmodel import field_factor_sensitivities
 from .pipeline import Context, _label, analyze_compound, build_context, make_result
 from .quantities import Measured, format_value_error
 from .results import CampaignResult, CompoundResult, variance_budget
-from .tables import Table, read_table
+from ._util.tables import Table, read_table
 
 __all__ = [
     "Calibration",

@@ -51,7 +51,7 @@ from .fieldmodel import (
 )
 from .layouts import LAYOUTS, BeamProfile, TalbotLau, TimeDomain
 from .quantities import Measured, parse_quantity
-from .tables import Table, read_table
+from ._util.tables import Table, read_table
 
 __all__ = [
     "AnalysisSettings",

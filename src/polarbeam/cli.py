@@ -182,7 +182,7 @@ def compute(
     d4: bool = typer.Option(False, "--d4", help="fast D4-model polarizability instead of SCF"),
 ):
     """Compute static polarizabilities and dipoles with PySCF (extra polarbeam[qc]); cached."""
-    from .atomic import write_text_atomic
+    from ._util.atomic import write_text_atomic
 
     try:
         from . import qchem
@@ -199,7 +199,7 @@ def compute(
     path = Path(input)
     try:
         if path.suffix.lower() == ".csv":
-            from .tables import read_table
+            from ._util.tables import read_table
 
             t = read_table(path, ("compound", "smiles"), "structures")
             jobs = [(r["compound"], r["smiles"]) for r in t.rows]

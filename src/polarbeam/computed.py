@@ -38,7 +38,7 @@ from .constants import (
     si_from_debye,
 )
 from .errors import InputError, RowValueError
-from .qc_compat import require
+from ._util.optional import require
 
 __all__ = [
     "ALPHA_UNITS",
@@ -410,7 +410,7 @@ def read_outputs(patterns: Sequence[str], base_dir=".") -> tuple[pd.DataFrame, l
 
     Raises
     ------
-    polarbeam.qc_compat.MissingExtraError
+    polarbeam._util.optional.MissingExtraError
         If cclib is not installed (extra ``polarbeam[qc]``).
     """
     cclib = require("cclib", "reading quantum-chemistry output files")

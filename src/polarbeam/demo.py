@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .atomic import write_text_atomic
+from ._util.atomic import write_text_atomic
 from .simulate import CompoundTruth, InstrumentSpec, simulate_campaign
 
 __all__ = ["DEMO_COMPOUNDS", "DEMO_COMPUTED", "write_demo", "write_demo_scans"]

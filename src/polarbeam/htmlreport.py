@@ -17,7 +17,7 @@ import math
 from collections.abc import Mapping
 from pathlib import Path
 
-from .atomic import write_bytes_atomic, write_text_atomic
+from ._util.atomic import write_bytes_atomic, write_text_atomic
 from .constants import alpha_a3_from_si, debye_from_si
 from .quantities import format_value_error
 from .results import CAUTIONS, CampaignResult, CompoundResult, variance_budget

@@ -68,7 +68,7 @@ from typing import Any, Literal
 
 import numpy as np
 
-from .atomic import write_text_atomic
+from ._util.atomic import write_text_atomic
 from .constants import (
     AMU,
     ANGSTROM3_SI,
@@ -956,7 +956,7 @@ class PlanCompound:
 
 
 def _read_plan_compounds(path: Path) -> list[PlanCompound]:
-    from .tables import read_table
+    from ._util.tables import read_table
 
     table = read_table(path, ("compound",), "compounds")
     out: list[PlanCompound] = []

@@ -48,7 +48,7 @@ from .constants import (
     debye_from_si,
 )
 from .errors import CompoundError, InputError
-from .qc_compat import MissingExtraError, require
+from ._util.optional import MissingExtraError, require
 
 __all__ = [
     "DEFAULT_COST_MODELS",

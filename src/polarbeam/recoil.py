@@ -46,14 +46,14 @@ from scipy import constants as _sc
 from scipy import stats
 from uncertainties import UFloat, ufloat, umath
 
-from .atomic import write_bytes_atomic, write_text_atomic
+from ._util.atomic import write_bytes_atomic, write_text_atomic
 from .campaign import build_layout
 from .constants import AMU
 from .errors import CompoundError, FitError, InputError
 from .extraction import FIT_TAG
 from .quantities import Measured, format_value_error, parse_quantity
 from .results import CAUTIONS, CampaignResult, _num, variance_budget
-from .tables import read_table
+from ._util.tables import read_table
 from .velocity import velocity_nodes
 
 __all__ = [

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .atomic import write_text_atomic
+from ._util.atomic import write_text_atomic
 from .quantities import format_value_error
 from .results import CAUTIONS, CampaignResult, variance_budget
 

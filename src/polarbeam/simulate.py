@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .atomic import write_text_atomic
+from ._util.atomic import write_text_atomic
 from .campaign import build_layout
 from .constants import AMU, alpha_si_from_a3, langevin_debye_si, si_from_debye
 from .deflectors import FieldMapDeflector, SwitchedField, TwoWireDeflector, UniformDeflector
