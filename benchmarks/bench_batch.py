@@ -5,7 +5,7 @@ Run on demand (not part of the test suite)::
     PYTHONPATH=src python benchmarks/bench_batch.py [--sizes 250,500,1000] [--json out.json]
 
 Simulates campaigns of 250, 500 and 1,000 compounds (3 source temperatures × 10 voltages each,
-Talbot–Lau layout, written by :mod:`polarbeam.simulate`), then times the command-line run end to
+Talbot–Lau layout, written by :mod:`polarbeam.simulation.campaigns`), then times the command-line run end to
 end as a subprocess (load, analysis, per-compound records, CSV/JSON/Markdown, report.html and
 figures/):
 
@@ -34,7 +34,7 @@ from pathlib import Path
 
 import numpy as np
 
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 
 def make_campaign(folder: Path, n: int, seed: int = 2026) -> Path:

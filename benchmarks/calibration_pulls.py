@@ -1,7 +1,7 @@
 """Pull study of the reference-compound calibration (run on demand; numbers in docs/calibration.md).
 
 Simulates campaigns whose uniform field factor is known only through one or two reference
-compounds (``polarbeam.calibration.calibration_campaign``), analyses them and prints, for the
+compounds (``polarbeam.calibration.calibrate.calibration_campaign``), analyses them and prints, for the
 unknowns' α_eff and α, the calibrated g and the references' own α_eff: the number of pulls, the
 fraction with |pull| < 1 (68.3 % for honest Gaussian errors), the mean and the spread, and the time
 per campaign.
@@ -18,9 +18,9 @@ from pathlib import Path
 
 import numpy as np
 
-from polarbeam.calibration import calibration_campaign
+from polarbeam.calibration.calibrate import calibration_campaign
 from polarbeam.constants import alpha_a3_from_si
-from polarbeam.pipeline import analyze
+from polarbeam.pipeline.analysis import analyze
 
 
 def main(n: int = 400, seed: int = 12) -> None:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 
 @pytest.fixture

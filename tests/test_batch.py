@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 from uncertainties import correlation_matrix, covariance_matrix
 
-from polarbeam.batch import (
+from polarbeam.batch.run import (
     ProgressEvent,
     decode_compound,
     discover_campaigns,
@@ -30,8 +30,8 @@ from polarbeam.batch import (
     run_batch,
 )
 from polarbeam.errors import InputError
-from polarbeam.pipeline import analyze
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 OUTPUTS = ("series.csv", "properties.csv", "results.json", "report.md", "report.html")
 TEMPS = (300.0, 450.0, 600.0)
@@ -137,7 +137,7 @@ def test_corrupt_compound_does_not_stop_the_others(tmp_path, monkeypatch):
     lines[i] = ",".join(cells)
     shifts.write_text("\n".join(lines) + "\n")
     # and one compound whose analysis raises an unexpected error
-    import polarbeam.pipeline as pipeline
+    import polarbeam.pipeline.analysis as pipeline
 
     real = pipeline.analyze_compound
 
@@ -243,7 +243,7 @@ import os
 import time
 
 if os.environ.get("PB_TEST_SLOW"):
-    import polarbeam.pipeline as _p
+    import polarbeam.pipeline.analysis as _p
 
     _real = _p.analyze_compound
 

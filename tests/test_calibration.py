@@ -18,20 +18,20 @@ import numpy as np
 import pytest
 from typer.testing import CliRunner
 
-from polarbeam.calibration import (
+from polarbeam.calibration.calibrate import (
     calibration_campaign,
     gls_log_mean,
     known_alpha_eff,
     load_reference_tables,
     reference_values,
 )
-from polarbeam.campaign import load_campaign
-from polarbeam.cli import app
+from polarbeam.contract.campaign import load_campaign
+from polarbeam.cli.commands import app
 from polarbeam.constants import alpha_a3_from_si, alpha_si_from_a3, si_from_debye
 from polarbeam.errors import InputError
-from polarbeam.pipeline import analyze
-from polarbeam.results import variance_budget
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.results.objects import variance_budget
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 runner = CliRunner()
 N_CAMPAIGNS = 100

@@ -11,10 +11,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from typer.testing import CliRunner
 
-from polarbeam.campaign import load_campaign
-from polarbeam.cli import app
+from polarbeam.contract.campaign import load_campaign
+from polarbeam.cli.commands import app
 from polarbeam.errors import InputError, PolarbeamError
-from polarbeam.pipeline import analyze
+from polarbeam.pipeline.analysis import analyze
 
 runner = CliRunner()
 

@@ -5,7 +5,7 @@ import math
 import numpy as np
 import pytest
 
-from polarbeam.deflectors import (
+from polarbeam.instrument.deflectors import (
     FieldMapDeflector,
     TwoWireDeflector,
     UniformDeflector,
@@ -15,7 +15,7 @@ from polarbeam.deflectors import (
     two_wire_potential,
 )
 from polarbeam.errors import InputError
-from polarbeam.layouts import TalbotLau
+from polarbeam.instrument.layouts import TalbotLau
 
 A, Z1, Z2 = 2.0e-3, 1.6e-3, 3.4e-3
 

@@ -19,14 +19,14 @@ import pytest
 from scipy import integrate
 from typer.testing import CliRunner
 
-from polarbeam import fieldmodel
-from polarbeam import fieldsolver as fs
-from polarbeam.campaign import load_campaign
-from polarbeam.cli import app
+from polarbeam.instrument import numerical as fieldmodel
+from polarbeam.instrument import fields as fs
+from polarbeam.contract.campaign import load_campaign
+from polarbeam.cli.commands import app
 from polarbeam.errors import InputError
-from polarbeam.pipeline import analyze, build_context, coupling
-from polarbeam.results import variance_budget
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.pipeline.analysis import analyze, build_context, coupling
+from polarbeam.results.objects import variance_budget
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 runner = CliRunner()
 A, Z1, Z2 = 2.0e-3, 1.6e-3, 3.4e-3

@@ -16,14 +16,14 @@ import pytest
 from uncertainties import ufloat
 
 from polarbeam.constants import BOLTZMANN, alpha_a3_from_si
-from polarbeam.pipeline import analyze
-from polarbeam.results import CAUTIONS
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.results.objects import CAUTIONS
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 pytest.importorskip("matplotlib", reason="figures need matplotlib (extra polarbeam[plots])")
 
-from polarbeam import figures
-from polarbeam.htmlreport import render_html, write_html
+from polarbeam.report import figures
+from polarbeam.report.html import render_html, write_html
 
 EVIL = "<script>alert(1)</script>"
 CHROMIUM = next(

@@ -14,10 +14,10 @@ import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
-from polarbeam.campaign import load_campaign
-from polarbeam.cli import app
+from polarbeam.contract.campaign import load_campaign
+from polarbeam.cli.commands import app
 from polarbeam.constants import alpha_a3_from_si, debye_from_si
-from polarbeam.pipeline import analyze, analyze_campaign
+from polarbeam.pipeline.analysis import analyze, analyze_campaign
 from polarbeam.quantities import Measured
 
 DEMO = Path(__file__).resolve().parents[1] / "examples" / "demo"
@@ -177,7 +177,7 @@ def test_estimate_cli(tmp_path):
 
 def test_compute_cli_round_trips_into_computed_csv(tmp_path):
     pytest.importorskip("pyscf", reason="needs the optional extra polarbeam[qc]")
-    from polarbeam.computed import read_computed
+    from polarbeam.chemistry import read_computed
 
     out = tmp_path / "computed.csv"
     r = runner.invoke(

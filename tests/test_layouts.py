@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from polarbeam.deflectors import UniformDeflector, overlap
+from polarbeam.instrument.deflectors import UniformDeflector, overlap
 from polarbeam.errors import InputError
-from polarbeam.layouts import BeamProfile, TalbotLau, TimeDomain
+from polarbeam.instrument.layouts import BeamProfile, TalbotLau, TimeDomain
 
 
 def test_talbot_lau_gravity_phase_limit():

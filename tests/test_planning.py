@@ -16,11 +16,11 @@ from scipy import constants as sc
 from scipy import integrate
 from typer.testing import CliRunner
 
-from polarbeam.cli import app
+from polarbeam.cli.commands import app
 from polarbeam.errors import InputError
-from polarbeam.fringes import fit_scans
-from polarbeam.pipeline import analyze
-from polarbeam.planning import (
+from polarbeam.reduction import fit_scans
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.planning.plan import (
     SeriesModel,
     _fixed_covariance,
     _precision_core,

@@ -33,13 +33,13 @@ from scipy import constants as sc
 from scipy import integrate, stats
 from typer.testing import CliRunner
 
-from polarbeam.campaign import load_campaign
-from polarbeam.cli import app
+from polarbeam.contract.campaign import load_campaign
+from polarbeam.cli.commands import app
 from polarbeam.constants import AMU
 from polarbeam.errors import InputError
-from polarbeam.layouts import TalbotLau, TimeDomain
-from polarbeam.pipeline import analyze
-from polarbeam.recoil import (
+from polarbeam.instrument.layouts import TalbotLau, TimeDomain
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.extraction.recoil import (
     CM2,
     LaserTruth,
     RecoilCompoundTruth,
@@ -55,7 +55,7 @@ from polarbeam.recoil import (
     recoil_velocity,
     simulate_recoil_campaign,
 )
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 runner = CliRunner()
 EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "recoil"
@@ -342,7 +342,7 @@ def test_area_and_energy_calibration_scale_sigma_exactly(camp):
 def test_budget_and_correlations(camp):
     res = analyze(camp)
     s = _sigmas(res)
-    from polarbeam.results import variance_budget
+    from polarbeam.results.objects import variance_budget
 
     b = variance_budget(s[("mol-one", "green")])
     assert {"laser green: area", "fit statistics", "laser green: position"} <= set(b)

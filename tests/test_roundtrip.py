@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 
 from polarbeam.constants import alpha_a3_from_si, debye_from_si, si_from_debye
-from polarbeam.pipeline import analyze
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, random_campaign, simulate_campaign
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, random_campaign, simulate_campaign
 
 N_CAMPAIGNS = 300
 

@@ -9,10 +9,10 @@ import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
-from polarbeam.cli import app
+from polarbeam.cli.commands import app
 from polarbeam.constants import alpha_a3_from_si, debye_from_si, si_from_debye
-from polarbeam.pipeline import analyze
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, simulate_scan_campaign
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_scan_campaign
 
 runner = CliRunner()
 

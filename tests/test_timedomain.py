@@ -23,14 +23,14 @@ import pytest
 from scipy import constants, integrate
 from typer.testing import CliRunner
 
-from polarbeam.campaign import load_campaign
-from polarbeam.cli import app
+from polarbeam.contract.campaign import load_campaign
+from polarbeam.cli.commands import app
 from polarbeam.constants import alpha_a3_from_si, debye_from_si, si_from_debye
-from polarbeam.deflectors import SwitchedField, overlap
+from polarbeam.instrument.deflectors import SwitchedField, overlap
 from polarbeam.errors import InputError
-from polarbeam.layouts import TimeDomain
-from polarbeam.pipeline import analyze, build_context
-from polarbeam.simulate import (
+from polarbeam.instrument.layouts import TimeDomain
+from polarbeam.pipeline.analysis import analyze, build_context
+from polarbeam.simulation.campaigns import (
     CompoundTruth,
     InstrumentSpec,
     random_time_domain_campaign,

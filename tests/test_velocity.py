@@ -5,7 +5,7 @@ import math
 import numpy as np
 from scipy import integrate, stats
 
-from polarbeam.velocity import averaged_phasor_phase, mean_inverse_square
+from polarbeam.beam.velocity import averaged_phasor_phase, mean_inverse_square
 
 
 def _gauss_avg(f, v0, s):

@@ -18,8 +18,8 @@ from pathlib import Path
 
 import numpy as np
 
-from polarbeam.pipeline import analyze
-from polarbeam.recoil import random_recoil_campaign
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.extraction.recoil import random_recoil_campaign
 
 
 def _line(name: str, p) -> str:

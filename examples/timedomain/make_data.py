@@ -16,7 +16,7 @@ import argparse
 import json
 from pathlib import Path
 
-from polarbeam.simulate import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 HERE = Path(__file__).resolve().parent
 SEED = 20260915

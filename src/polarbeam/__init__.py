@@ -28,19 +28,19 @@ __all__ = [
 def __getattr__(name: str):
     """Lazy public API (keeps ``import polarbeam`` light)."""
     if name == "analyze":
-        from .pipeline import analyze
+        from polarbeam.pipeline.analysis import analyze
 
         return analyze
     if name == "load_campaign":
-        from .campaign import load_campaign
+        from polarbeam.contract.campaign import load_campaign
 
         return load_campaign
     if name in ("CampaignResult", "CompoundResult", "SeriesResult"):
-        from . import results
+        from polarbeam.results import objects as results
 
         return getattr(results, name)
     if name == "PolarbeamError":
-        from .errors import PolarbeamError
+        from polarbeam.errors import PolarbeamError
 
         return PolarbeamError
     raise AttributeError(f"module 'polarbeam' has no attribute {name!r}")

@@ -1,3 +1,3 @@
-from .cli import main
+from polarbeam.cli.commands import main
 
 main()

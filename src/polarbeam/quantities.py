@@ -17,7 +17,7 @@ import re
 from dataclasses import dataclass
 from functools import lru_cache
 
-from .errors import QuantityError
+from polarbeam.errors import QuantityError
 
 __all__ = ["Measured", "format_value_error", "parse_quantity"]
 

@@ -12,7 +12,7 @@ import importlib
 import importlib.util
 from types import ModuleType
 
-from ..errors import InputError
+from polarbeam.errors import InputError
 
 __all__ = ["EXTRAS", "MissingExtraError", "extra_for", "has", "require"]
 

@@ -7,7 +7,7 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..errors import InputError, RowValueError
+from polarbeam.errors import InputError, RowValueError
 
 __all__ = ["Table", "read_table"]
 

@@ -1,0 +1,354 @@
+"""Command-line interface: a thin typer layer over the Python API.
+
+Exit codes: 0 all compounds analysed, 1 some compounds failed, 2 every compound failed or the
+input is structurally wrong (the error is printed as one line, never a traceback).
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import typer
+
+from polarbeam.errors import PolarbeamError
+
+__all__ = ["app", "main"]
+
+app = typer.Typer(
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    no_args_is_help=True,
+    help="polarbeam: polarizabilities and dipole moments from beam-deflection campaigns.",
+)
+
+
+def _fail(exc: Exception, code: int = 2):
+    typer.echo(f"error: {exc}", err=True)
+    raise typer.Exit(code)
+
+
+@app.command()
+def analyze(
+    campaigns: list[Path] = typer.Argument(
+        ..., help="campaign.toml file(s), or folder(s) of campaigns"
+    ),
+    out: Path = typer.Option(Path("results"), "--out", "-o", help="results folder"),
+    quiet: bool = typer.Option(False, "--quiet", "-q", help="no terminal table or progress"),
+    jobs: int = typer.Option(
+        None,
+        "--jobs",
+        "-j",
+        help="worker processes (default 1: in this process; 0: one per core; with "
+        "--scheduler local: Dask workers, default one per core)",
+    ),
+    scheduler: str = typer.Option(
+        None,
+        "--scheduler",
+        help="run on Dask: 'local' starts a cluster on 127.0.0.1, or tcp://host:port of a "
+        "running scheduler (its workers must see the campaign files at the same paths)",
+    ),
+    dashboard: bool = typer.Option(
+        False, "--dashboard", help="with --scheduler local: serve Dask's dashboard on 127.0.0.1"
+    ),
+    resume: bool = typer.Option(
+        False, "--resume", help="keep compounds already done whose inputs are unchanged"
+    ),
+    report_details: int = typer.Option(
+        None,
+        "--report-details",
+        help="compounds given figures in report.html and figures/ (default 20; -1: all)",
+    ),
+):
+    """Analyse campaigns: α_eff per series, α and μ per compound, report and budgets."""
+    from polarbeam.batch.run import run_cli
+
+    try:
+        code = run_cli(
+            campaigns,
+            out,
+            quiet=quiet,
+            jobs=jobs,
+            scheduler=scheduler,
+            dashboard=dashboard,
+            resume=resume,
+            report_details=report_details,
+            echo=typer.echo,
+        )
+    except PolarbeamError as exc:
+        _fail(exc)
+    raise typer.Exit(code)
+
+
+@app.command()
+def reduce(
+    campaign: Path = typer.Argument(..., help="campaign.toml with [data] scans"),
+    out: Path = typer.Option(Path("phases.csv"), "--out", "-o", help="phases CSV to write"),
+):
+    """Reduce raw fringe scans to drift-corrected phases (one row per non-reference scan)."""
+    from polarbeam.contract.campaign import load_campaign
+    from polarbeam.reduction import write_phases
+
+    try:
+        camp = load_campaign(campaign)
+        if camp.reduction is None:
+            raise PolarbeamError(
+                f"{campaign.name} [data] scans: expected a raw-scan file to reduce, found none"
+            )
+    except PolarbeamError as exc:
+        _fail(exc)
+    write_phases(camp.reduction, out)
+    t = camp.reduction.table
+    kept = int(t["phase_rad"].notna().sum())
+    typer.echo(
+        f"{kept} of {len(t)} scans reduced ({len(t) - kept} dropped, flagged); written to {out}"
+    )
+    for msg in camp.reduction.messages:
+        typer.echo(f"note: {msg}", err=True)
+
+
+@app.command()
+def plan(
+    campaign: Path = typer.Argument(..., help="campaign.toml with a [plan] table and no data"),
+    out: Path = typer.Option(Path("plan"), "--out", "-o", help="plan folder"),
+    rehearsal: bool = typer.Option(True, help="write rehearsal/ (simulated raw scans)"),
+):
+    """Plan a campaign: predicted phases, voltage ladders, expected precision, beam time."""
+    from polarbeam.planning.plan import make_plan, write_plan
+
+    try:
+        result = make_plan(campaign)
+        write_plan(result, out, rehearsal=rehearsal and result.settings.rehearsal)
+    except PolarbeamError as exc:
+        _fail(exc)
+    table = result.table()
+    if len(table):
+        cols = [
+            "compound",
+            "temperature_K",
+            "alpha_eff_pred_A3",
+            "sigma_alpha_eff_pred_A3",
+            "voltage_max_V",
+            "beam_time_h",
+        ]
+        typer.echo(table[cols].to_string(index=False, float_format=lambda x: f"{x:.4g}"))
+    typer.echo(f"plan written to {out}/ (plan.csv, plan.json, plan.md, plots, rehearsal/)")
+    for c in result.compounds:
+        if c.status == "failed":
+            typer.echo(f"failed: {c.compound}: {c.message}", err=True)
+    raise typer.Exit(result.exit_code)
+
+
+@app.command()
+def estimate(
+    input: Path = typer.Argument(..., help="CSV with compound, smiles (+ any columns) or an SDF"),
+    out: Path = typer.Option(..., "--out", "-o", help="output CSV"),
+    dipoles: bool = typer.Option(False, "--dipoles", help="conformer dipoles (slower)"),
+    conformers: int = typer.Option(10, help="conformers per molecule for --dipoles"),
+    seed: int = typer.Option(61453, help="random seed of the conformer embedding"),
+    temperature: float = typer.Option(300.0, help="temperature (K) of the Boltzmann average"),
+):
+    """Structure-based estimates (additive α, mass, dipoles) for a library without measurements."""
+    from polarbeam.chemistry import estimate_table
+
+    try:
+        counts = estimate_table(
+            input,
+            out,
+            dipoles=dipoles,
+            conformers=conformers,
+            seed=seed,
+            temperature_K=temperature,
+        )
+    except PolarbeamError as exc:
+        _fail(exc)
+    typer.echo(
+        f"{counts['ok']} of {counts['rows']} rows estimated, {counts['failed']} failed; "
+        f"written to {out}"
+    )
+    raise typer.Exit(0 if counts["failed"] == 0 else (2 if counts["ok"] == 0 else 1))
+
+
+@app.command()
+def compute(
+    input: str = typer.Argument(
+        ..., help="SMILES, a .xyz/.sdf/.mol file, or a CSV compound,smiles"
+    ),
+    method: str = typer.Option("b3lyp", help="hf or a DFT functional known to PySCF"),
+    basis: str = typer.Option("def2-svpd", help="basis set"),
+    out: Path = typer.Option(Path("computed.csv"), "--out", "-o", help="computed.csv to write"),
+    polarizability: str = typer.Option("analytic", help="analytic (CPHF/CPKS) or finite-field"),
+    max_seconds: float = typer.Option(1800.0, help="refuse calculations estimated to take longer"),
+    d4: bool = typer.Option(False, "--d4", help="fast D4-model polarizability instead of SCF"),
+):
+    """Compute static polarizabilities and dipoles with PySCF (extra polarbeam[qc]); cached."""
+    from polarbeam._util.atomic import write_text_atomic
+
+    try:
+        from polarbeam import chemistry as qchem
+    except ImportError as exc:  # pragma: no cover - depends on the installed extras
+        _fail(PolarbeamError(f"compute needs the optional extra polarbeam[qc] ({exc})"))
+    if polarizability not in ("analytic", "finite-field"):
+        _fail(
+            PolarbeamError(
+                "--polarizability: expected one of analytic, finite-field, "
+                f"found {polarizability!r}"
+            )
+        )
+    jobs: list[tuple[str, str]] = []
+    path = Path(input)
+    try:
+        if path.suffix.lower() == ".csv":
+            from polarbeam._util.tables import read_table
+
+            t = read_table(path, ("compound", "smiles"), "structures")
+            jobs = [(r["compound"], r["smiles"]) for r in t.rows]
+        else:
+            jobs = [(path.stem if path.is_file() else input, input)]
+    except PolarbeamError as exc:
+        _fail(exc)
+    results, failed = [], 0
+
+    def progress(step, total, message):
+        typer.echo(f"  [{step}/{total}] {message}", err=True)
+
+    for name, structure in jobs:
+        typer.echo(f"{name}: {method}/{basis}", err=True)
+        try:
+            if d4:
+                r = qchem.d4_polarizability(structure, name=name)
+            else:
+                r = qchem.compute_properties(
+                    structure,
+                    method,
+                    basis,
+                    name=name,
+                    polarizability=polarizability,
+                    max_seconds=max_seconds,
+                    progress=progress,
+                )
+            results.append(r)
+        except PolarbeamError as exc:
+            failed += 1
+            typer.echo(f"failed: {name}: {exc}", err=True)
+    if results:
+        import io
+
+        buf = io.StringIO()
+        table = qchem.results_table(results)
+        table = table.rename(
+            columns={
+                "alpha_computed_A3": "alpha",
+                "dipole_computed_D": "dipole_D",
+                "alpha_xx_A3": "alpha_xx",
+                "alpha_yy_A3": "alpha_yy",
+                "alpha_zz_A3": "alpha_zz",
+            }
+        )
+        table.insert(3, "alpha_unit", "A3")  # the [data] computed input contract
+        keep = [
+            "compound",
+            "method",
+            "alpha",
+            "alpha_unit",
+            "dipole_D",
+            "alpha_xx",
+            "alpha_yy",
+            "alpha_zz",
+            "source",
+        ]
+        table[[c for c in keep if c in table]].to_csv(buf, index=False, lineterminator="\n")
+        write_text_atomic(out, buf.getvalue())
+        typer.echo(f"{len(results)} result(s) written to {out}")
+    raise typer.Exit(0 if failed == 0 else (2 if not results else 1))
+
+
+@app.command()
+def simulate(
+    out: Path = typer.Option(..., "--out", "-o", help="folder to write the campaign into"),
+    seed: int = typer.Option(0, help="random seed"),
+    layout: str = typer.Option("talbot-lau", help="talbot-lau, beam-profile or time-domain"),
+):
+    """Write a simulated campaign (random compound, known truth) in the input contract."""
+    import json
+
+    import numpy as np
+
+    from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
+
+    specs = {
+        "talbot-lau": InstrumentSpec.talbot_lau,
+        "beam-profile": InstrumentSpec.beam_profile,
+        "time-domain": InstrumentSpec.time_domain,
+    }
+    if layout not in specs:
+        _fail(PolarbeamError(f"--layout: expected one of {', '.join(specs)}, found {layout!r}"))
+    rng = np.random.default_rng(seed)
+    comp = CompoundTruth(
+        "sample-1",
+        float(rng.uniform(80, 600)),
+        float(rng.uniform(10, 80)),
+        float(rng.uniform(0, 3)),
+        (300.0, 400.0, 500.0, 600.0),
+    )
+    truth = simulate_campaign(out, [comp], spec=specs[layout](), seed=rng)
+    typer.echo(
+        json.dumps(
+            {
+                "alpha_A3": comp.alpha_A3,
+                "dipole_D": comp.dipole_D,
+                "campaign": str(truth.path / "campaign.toml"),
+            }
+        )
+    )
+
+
+@app.command()
+def field(
+    campaign: Path = typer.Argument(..., help="campaign.toml"),
+    voltage: str = typer.Option(..., "--voltage", help='voltage between the electrodes, "10 kV"'),
+    as_json: bool = typer.Option(False, "--json", help="print one JSON object (SI units)"),
+    plot: Path | None = typer.Option(None, "--plot", help="save equipotentials and the beam"),
+):
+    """Deflector field at the beam: E, ∂E/∂x, E·∂E/∂x, g, its variation and numerical error."""
+    import json
+
+    from polarbeam.instrument.numerical import deflector_field, plot_deflector_field
+
+    try:
+        report = deflector_field(campaign, voltage)
+        if plot is not None:
+            plot_deflector_field(campaign, plot, voltage)
+    except PolarbeamError as exc:
+        _fail(exc)
+    typer.echo(json.dumps(report.summary(), ensure_ascii=False) if as_json else report.to_text())
+    if plot is not None and not as_json:
+        typer.echo(f"cross-section plot written to {plot}")
+
+
+@app.command()
+def demo(
+    out: Path = typer.Option(Path("examples/demo"), "--out", "-o"),
+    scans: bool = typer.Option(False, "--scans", help="the raw-scan variant instead"),
+):
+    """Rewrite the invented demo campaign (deterministic)."""
+    from polarbeam.simulation.demo import write_demo, write_demo_scans
+
+    (write_demo_scans if scans else write_demo)(out)
+    typer.echo(f"demo campaign written to {out}/campaign.toml")
+
+
+def main() -> None:  # pragma: no cover - entry point
+    try:
+        app()
+    except KeyboardInterrupt:
+        typer.echo("interrupted", err=True)
+        sys.exit(130)
+    except PolarbeamError as exc:
+        typer.echo(f"error: {exc}", err=True)
+        sys.exit(2)
+    except Exception as exc:  # a bug, not bad input: still one line, and say so
+        typer.echo(
+            f"error: internal error ({type(exc).__name__}: {exc}); please report it", err=True
+        )
+        sys.exit(2)

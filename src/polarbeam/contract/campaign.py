@@ -1,0 +1,935 @@
+"""Campaign loading: ``campaign.toml`` plus its data tables into validated, frozen objects.
+
+The contract (kept stable; see README):
+
+.. code-block:: toml
+
+    [campaign]
+    title = "…"
+    [instrument]
+    layout = "talbot-lau"              # or "beam-profile", "time-domain"
+    grating_period = "250 nm"
+    grating_positions = ["0 m", "0.6 m", "1.2 m"]
+    [deflector]
+    model = "uniform"                  # or "two-wire", "field-map"
+    entrance = "0.52 ± 0.001 m"
+    length = "0.05 ± 0.0005 m"
+    field_factor = "1.21e5 ± 600 m^-3"
+    [data]
+    shifts = "shifts.csv"
+    compounds = "compounds.csv"
+
+Structural problems raise :class:`~polarbeam.errors.InputError`; a bad value in a data row is
+kept with its compound (``CompoundData.problem``) so that only that compound fails.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from polarbeam._util.tables import Table, read_table
+from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
+from polarbeam.instrument.deflectors import (
+    DEFLECTOR_MODELS,
+    UNCALIBRATED_FIELD_FACTOR,
+    FieldMapDeflector,
+    SwitchedField,
+    TwoWireDeflector,
+    UniformDeflector,
+)
+from polarbeam.errors import CompoundError, InputError, QuantityError
+from polarbeam.instrument.numerical import (
+    NUMERICAL_KEYS,
+    numerical_deflector,
+    numerical_error_inputs,
+    numerical_stated_inputs,
+)
+from polarbeam.instrument.layouts import LAYOUTS, BeamProfile, TalbotLau, TimeDomain
+from polarbeam.quantities import Measured, parse_quantity
+
+__all__ = [
+    "AnalysisSettings",
+    "Campaign",
+    "CompoundData",
+    "SeriesData",
+    "load_campaign",
+]
+
+# key -> expected SI unit (pint syntax); None marks a non-quantity key
+_SCHEMA: dict[str, dict[str, str | None]] = {
+    "campaign": {"title": None, "description": None},
+    "instrument": {
+        "layout": None,
+        "grating_period": "m",
+        "grating_positions": "m",
+        "detector_position": "m",
+        "pulse_times": "s",
+    },
+    "deflector": {
+        "model": None,
+        "entrance": "m",
+        "length": "m",
+        "field_factor": "m^-3",
+        "field_per_volt": "m^-1",
+        "line_half_spacing": "m",
+        "convex_crossing": "m",
+        "concave_crossing": "m",
+        "beam_height": "m",
+        "field_map": None,
+        "field_scale": "",
+        "field_on": "s",
+        "field_duration": "s",
+        "waveform": None,
+    },
+    "data": {
+        "shifts": None,
+        "scans": None,
+        "compounds": None,
+        "structures": None,
+        "computed": None,
+        "computed_outputs": None,
+        "recoil": None,
+    },
+    "analysis": {
+        "velocity_nodes": None,
+        "fit_offset": None,
+        "scale_errors": None,
+        "upper_limit_cl": None,
+        "dipole_significance": None,
+        "orientation_warning": None,
+        "structure_check": None,
+        "conformers": None,
+        "conformer_seed": None,
+        "calibration": None,
+        "mass": None,
+    },
+}
+# the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
+_SCHEMA["deflector"].update(
+    {k: u for k, u in NUMERICAL_KEYS.items() if k not in _SCHEMA["deflector"]}
+)
+
+# top-level arrays of tables ([[laser]]): their keys are checked by polarbeam.extraction.recoil
+_ARRAY_TABLES = ("laser",)
+
+_LAYOUT_KEYS = {
+    "talbot-lau": {"grating_period", "grating_positions"},
+    "beam-profile": {"detector_position"},
+    "time-domain": {"grating_period", "pulse_times"},
+}
+_MODEL_KEYS = {
+    "uniform": (set(), {"field_factor", "field_per_volt"}),  # no field_factor: calibrate
+    "two-wire": ({"line_half_spacing", "convex_crossing", "concave_crossing"}, {"beam_height"}),
+    "field-map": ({"field_map"}, {"field_scale", "field_per_volt"}),
+    "numerical": (set(), set(NUMERICAL_KEYS)),  # combinations checked in fieldmodel.py
+}
+_SPATIAL_KEYS = ({"entrance"}, {"length"})
+_TIME_KEYS = ({"field_on"}, {"field_duration", "waveform"})
+
+SHIFT_COLUMNS_COMMON = (
+    "compound",
+    "temperature_K",
+    "temperature_err_K",
+    "velocity_m_s",
+    "velocity_err_m_s",
+    "velocity_spread_m_s",
+    "voltage_V",
+)
+OBSERVABLE_COLUMNS = {
+    "talbot-lau": ("phase_rad", "phase_err_rad"),
+    "time-domain": ("phase_rad", "phase_err_rad"),
+    "beam-profile": ("shift_m", "shift_err_m"),
+}
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """Options of the ``[analysis]`` table (all optional)."""
+
+    velocity_nodes: int = 48
+    fit_offset: bool = True
+    scale_errors: str = "never"  # "never" | "birge" (inflate by sqrt(χ²/ν) when > 1)
+    upper_limit_cl: float = 0.95
+    dipole_significance: float = 3.0
+    orientation_warning: float = 0.2  # warn when μE/kT exceeds this at the largest field
+    structure_check: bool = True  # compare with structure-based predictions when possible
+    conformers: int = 10  # conformers for the predicted dipole (0: no dipole prediction)
+    conformer_seed: int = 61453
+    calibration: str = "auto"  # "auto" | "check" | "off": use of reference compounds
+    mass: str = "average"  # mass from a structure when mass_u is empty: average | monoisotopic
+
+    def __post_init__(self):
+        if self.scale_errors not in ("never", "birge"):
+            raise InputError(
+                "[analysis] scale_errors: expected one of 'never', 'birge', "
+                f"found {self.scale_errors!r}"
+            )
+        if not (isinstance(self.velocity_nodes, int) and 4 <= self.velocity_nodes <= 400):
+            raise InputError(
+                f"[analysis] velocity_nodes: expected an integer 4..400, found "
+                f"{self.velocity_nodes!r}"
+            )
+        if not 0.5 < self.upper_limit_cl < 1:
+            raise InputError(
+                f"[analysis] upper_limit_cl: expected 0.5 < cl < 1, found {self.upper_limit_cl!r}"
+            )
+        if not (isinstance(self.conformers, int) and 0 <= self.conformers <= 1000):
+            raise InputError(
+                f"[analysis] conformers: expected an integer 0..1000, found {self.conformers!r}"
+            )
+        if self.mass not in ("average", "monoisotopic"):
+            raise InputError(
+                f"[analysis] mass: expected one of 'average', 'monoisotopic', found {self.mass!r}"
+            )
+        if self.calibration not in ("auto", "check", "off"):
+            raise InputError(
+                "[analysis] calibration: expected one of 'auto', 'check', 'off', "
+                f"found {self.calibration!r}"
+            )
+        if not self.dipole_significance > 0:
+            raise InputError(
+                f"[analysis] dipole_significance: expected > 0, found {self.dipole_significance!r}"
+            )
+
+
+@dataclass(frozen=True)
+class SeriesData:
+    """Points of one compound at one source temperature."""
+
+    compound: str
+    temperature: Measured
+    velocity: Measured
+    velocities: np.ndarray
+    spreads: np.ndarray
+    voltages: np.ndarray
+    values: np.ndarray
+    errors: np.ndarray
+    lines: tuple[int, ...]
+    covariance: np.ndarray | None = None
+    visibility: np.ndarray | None = None
+    visibility_err: np.ndarray | None = None
+
+    @property
+    def label(self) -> str:
+        return f"{self.compound} @ {self.temperature.value:g} K"
+
+    @property
+    def n_points(self) -> int:
+        return int(self.voltages.size)
+
+
+@dataclass(frozen=True)
+class CompoundData:
+    """A compound: its mass, its series, its extra columns and any row problem found."""
+
+    name: str
+    mass: Measured | None
+    series: tuple[SeriesData, ...] = ()
+    extra: dict[str, str] = field(default_factory=dict)
+    problem: str | None = None
+    alpha_known: Measured | None = None
+    dipole_known: Measured | None = None
+    notes: tuple[str, ...] = ()  # e.g. scans dropped by the fringe reduction
+
+
+@dataclass(frozen=True)
+class Campaign:
+    """A loaded campaign: instrument description, stated inputs with errors, and compounds."""
+
+    path: Path
+    title: str
+    layout: str
+    model: str
+    stated: dict[str, Measured]
+    settings: AnalysisSettings
+    compounds: tuple[CompoundData, ...]
+    unmeasured: tuple[str, ...] = ()
+    field_map: tuple[tuple[float, ...], tuple[float, ...]] | None = None
+    waveform: tuple[tuple[float, ...], tuple[float, ...]] | None = None
+    raw: dict[str, Any] = field(default_factory=dict)
+    structures: dict[str, Any] = field(default_factory=dict)  # name → RDKit Mol or error text
+    computed_paths: tuple[Path, ...] = ()
+    computed_patterns: tuple[str, ...] = ()
+    reduction: Any = None  # fringes.ReducedPhases when the campaign starts from raw scans
+    ignored_columns: tuple[str, ...] = ()  # shifts.csv columns the layout does not use
+    recoil: Any = None  # polarbeam.extraction.recoil.RecoilData when [data] recoil is given
+
+    @property
+    def observable(self) -> str:
+        return OBSERVABLE_COLUMNS[self.layout][0]
+
+    def nominal(self) -> dict[str, float]:
+        return {k: m.value for k, m in self.stated.items()}
+
+    def build(self, values: dict[str, float] | None = None):
+        """(layout, deflector) for the given parameter values (nominal when omitted)."""
+        v = self.nominal() if values is None else values
+        return build_layout(self.layout, v), build_deflector(self, v)
+
+
+def build_layout(name: str, v: dict[str, float]):
+    if name == "talbot-lau":
+        return TalbotLau(
+            v["instrument.grating_positions[0]"],
+            v["instrument.grating_positions[1]"],
+            v["instrument.grating_positions[2]"],
+            v["instrument.grating_period"],
+        )
+    if name == "beam-profile":
+        return BeamProfile(v["instrument.detector_position"])
+    return TimeDomain(
+        v["instrument.pulse_times[0]"],
+        v["instrument.pulse_times[1]"],
+        v["instrument.pulse_times[2]"],
+        v["instrument.grating_period"],
+    )
+
+
+def build_deflector(c: Campaign, v: dict[str, float]):
+    g = v.get
+    if c.layout == "time-domain":
+        if c.model != "uniform":
+            raise InputError(
+                f"{c.path.name} [deflector] model: the time-domain layout expects 'uniform', "
+                f"found {c.model!r}"
+            )
+        return SwitchedField(
+            g("deflector.field_factor", UNCALIBRATED_FIELD_FACTOR),
+            v["deflector.field_on"],
+            g("deflector.field_duration"),
+            c.waveform,
+            g("deflector.field_per_volt"),
+            origin=v["instrument.pulse_times[0]"],  # field_on is measured from the first pulse
+            source=str(c.raw.get("deflector", {}).get("waveform", "waveform")),
+        )
+    if c.model == "uniform":
+        return UniformDeflector(
+            g("deflector.field_factor", UNCALIBRATED_FIELD_FACTOR),
+            v["deflector.entrance"],
+            v["deflector.length"],
+            g("deflector.field_per_volt"),
+        )
+    if c.model == "two-wire":
+        a = v["deflector.line_half_spacing"]
+        return TwoWireDeflector(
+            a,
+            v["deflector.convex_crossing"],
+            v["deflector.concave_crossing"],
+            g("deflector.beam_height", 1.2 * a),
+            v["deflector.entrance"],
+            v["deflector.length"],
+        )
+    if c.model == "numerical":
+        return numerical_deflector(c, v)
+    z, gz = c.field_map
+    return FieldMapDeflector(
+        z,
+        gz,
+        v["deflector.entrance"],
+        g("deflector.length"),
+        g("deflector.field_scale", 1.0),
+        g("deflector.field_per_volt"),
+    )
+
+
+def _check_keys(doc: dict, fname: str) -> None:
+    unknown = [k for k in doc if k not in _SCHEMA and k not in _ARRAY_TABLES]
+    if unknown == ["plan"]:
+        raise InputError(
+            f"{fname}: a [plan] table makes this a planning campaign (no data to analyse): "
+            "run `polarbeam plan` on it, or analyse its rehearsal/ folder"
+        )
+    if unknown:
+        raise InputError(
+            f"{fname}: unknown table(s) {', '.join(repr(k) for k in unknown)}; expected "
+            f"{', '.join([*_SCHEMA, *(f'[[{t}]]' for t in _ARRAY_TABLES)])}"
+        )
+    for table, keys in _SCHEMA.items():
+        sub = doc.get(table, {})
+        if not isinstance(sub, dict):
+            raise InputError(f"{fname}: [{table}] expected a table, found {type(sub).__name__}")
+        bad = [k for k in sub if k not in keys]
+        if bad:
+            raise InputError(
+                f"{fname}: unknown key(s) in [{table}]: {', '.join(repr(k) for k in bad)}; "
+                f"expected one of {', '.join(keys)}"
+            )
+
+
+def _require_str(table: dict, key: str, where: str, choices=None) -> str:
+    if key not in table:
+        raise InputError(f"{where} {key}: required key missing")
+    val = table[key]
+    if not isinstance(val, str):
+        raise InputError(f"{where} {key}: expected a string, found {val!r}")
+    if choices is not None and val not in choices:
+        raise InputError(f"{where} {key}: expected one of {', '.join(choices)}, found {val!r}")
+    return val
+
+
+def _stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, Measured]:
+    stated: dict[str, Measured] = {}
+    inst, defl = doc.get("instrument", {}), doc.get("deflector", {})
+
+    def quantity(table: str, key: str, raw):
+        unit = _SCHEMA[table][key]
+        return parse_quantity(raw, unit or "", where=f"{fname} [{table}] {key}")
+
+    need = _LAYOUT_KEYS[layout]
+    other = set().union(*_LAYOUT_KEYS.values()) - need
+    for k in sorted(other & set(inst)):
+        raise InputError(f"{fname} [instrument] {k}: not used by layout {layout!r}; remove it")
+    for k in sorted(need):
+        if k not in inst:
+            raise InputError(f"{fname} [instrument] {k}: required for layout {layout!r}")
+        raw = inst[k]
+        if k in ("grating_positions", "pulse_times"):
+            if not (isinstance(raw, list) and len(raw) == 3):
+                raise InputError(
+                    f"{fname} [instrument] {k}: expected a list of three quantities, found {raw!r}"
+                )
+            for i, item in enumerate(raw):
+                stated[f"instrument.{k}[{i}]"] = quantity("instrument", k, item)
+        else:
+            stated[f"instrument.{k}"] = quantity("instrument", k, raw)
+
+    if model == "none":  # no [deflector]: a photon-recoil-only campaign (polarbeam.extraction.recoil)
+        return stated
+    timing = layout == "time-domain"
+    req_m, opt_m = _MODEL_KEYS[model]
+    req_s, opt_s = _TIME_KEYS if timing else _SPATIAL_KEYS
+    allowed = {"model"} | req_m | opt_m | req_s | opt_s
+    by_layout = _SPATIAL_KEYS[0] | _SPATIAL_KEYS[1] | _TIME_KEYS[0] | _TIME_KEYS[1]
+    wrong = sorted((set(defl) - allowed) & by_layout)
+    if wrong:  # name every key of the other layout family at once
+        hint = (
+            "; the time-domain layout switches the field in time: give field_on and "
+            "field_duration (or a waveform)"
+            if timing
+            else ""
+        )
+        raise InputError(
+            f"{fname} [deflector] {', '.join(wrong)}: not used by layout {layout!r}; "
+            f"remove {'it' if len(wrong) == 1 else 'them'}{hint}"
+        )
+    for k in sorted(set(defl) - allowed):
+        raise InputError(f"{fname} [deflector] {k}: not used by model {model!r}; remove it")
+    for k in sorted(req_m | req_s):
+        if k not in defl:
+            why = f"layout {layout!r}" if k in req_s else f"model {model!r}"
+            raise InputError(f"{fname} [deflector] {k}: required for {why}")
+    if model == "field-map" and timing:
+        raise InputError(f"{fname} [deflector] model: 'field-map' is not used by layout {layout!r}")
+    if timing and "field_duration" not in defl and "waveform" not in defl:
+        raise InputError(f"{fname} [deflector] field_duration: required (or a waveform)")
+    if timing and "field_duration" in defl and "waveform" in defl:
+        raise InputError(
+            f"{fname} [deflector] field_duration, waveform: expected one of them (the waveform "
+            "fixes the switching), found both"
+        )
+    for k, raw in defl.items():
+        if k in ("model", "field_map", "waveform") or (
+            model == "numerical" and k in NUMERICAL_KEYS
+        ):
+            continue
+        stated[f"deflector.{k}"] = quantity("deflector", k, raw)
+    if model == "numerical":
+        stated.update(numerical_stated_inputs(defl, fname))
+    return stated
+
+
+def _read_profile(path: Path, cols: tuple[str, str], what: str):
+    table = read_table(path, cols, what)
+    xs, ys = [], []
+    for i in range(len(table.rows)):
+        try:
+            xs.append(table.number(i, cols[0]))
+            ys.append(table.number(i, cols[1]))
+        except CompoundError as exc:  # a bad map is structural: it concerns every compound
+            raise InputError(str(exc)) from exc
+    order = np.argsort(xs)
+    return tuple(np.asarray(xs)[order]), tuple(np.asarray(ys)[order])
+
+
+def _read_waveform(path: Path):
+    """Waveform CSV ``t_s, amplitude``: t relative to the switch-on, amplitude in 0..1."""
+    table = read_table(path, ("t_s", "amplitude"), "waveform")
+    ts, amps = [], []
+    try:
+        for i in range(len(table.rows)):
+            if "__bad__" in table.rows[i]:
+                raise InputError(f"{table.name} line {table.lines[i]}: {table.rows[i]['__bad__']}")
+            ts.append(table.number(i, "t_s"))
+            a = table.number(i, "amplitude")
+            if not 0.0 <= a <= 1.0:
+                raise InputError(
+                    f"{table.name} line {table.lines[i]}: column 'amplitude' expected a relative "
+                    f"amplitude in 0..1, found {table.rows[i]['amplitude']!r}"
+                )
+            amps.append(a)
+            if i and ts[-1] <= ts[-2]:
+                raise InputError(
+                    f"{table.name} line {table.lines[i]}: column 't_s' expected increasing times, "
+                    f"found {table.rows[i]['t_s']!r} after {table.rows[i - 1]['t_s']!r}"
+                )
+    except CompoundError as exc:  # a bad waveform is structural: it concerns every compound
+        raise InputError(str(exc)) from None
+    if len(ts) < 2:
+        raise InputError(
+            f"{table.name}: expected at least two rows (t_s, amplitude), found {len(ts)}"
+        )
+    if max(amps) <= 0:
+        raise InputError(f"{table.name}: column 'amplitude' is zero everywhere; the field is off")
+    return tuple(ts), tuple(amps)
+
+
+def _settings(doc: dict, fname: str) -> AnalysisSettings:
+    a = doc.get("analysis", {})
+    kinds: dict[str, Callable] = {
+        "velocity_nodes": int,
+        "fit_offset": bool,
+        "scale_errors": str,
+        "upper_limit_cl": float,
+        "dipole_significance": float,
+        "orientation_warning": float,
+        "structure_check": bool,
+        "conformers": int,
+        "conformer_seed": int,
+        "calibration": str,
+        "mass": str,
+    }
+    kw = {}
+    for k, v in a.items():
+        want = kinds[k]
+        ok = isinstance(v, want) and not (want is int and isinstance(v, bool))
+        if want is float and isinstance(v, int) and not isinstance(v, bool):
+            v, ok = float(v), True
+        if not ok:
+            raise InputError(f"{fname} [analysis] {k}: expected {want.__name__}, found {v!r}")
+        kw[k] = v
+    try:
+        return AnalysisSettings(**kw)
+    except InputError as exc:
+        raise InputError(f"{fname} {exc}") from None
+
+
+def _data_path(base: Path, doc: dict, key: str, fname: str, required=True) -> Path | None:
+    data = doc.get("data", {})
+    if key not in data:
+        if required:
+            raise InputError(f"{fname} [data] {key}: required key missing")
+        return None
+    val = data[key]
+    if not isinstance(val, str):
+        raise InputError(f"{fname} [data] {key}: expected a file path string, found {val!r}")
+    return (base / val).resolve()
+
+
+def _optional_measured(table: Table, i: int, col: str, errcol: str, convert) -> Measured | None:
+    raw = table.rows[i].get(col, "").strip()
+    if not raw:
+        return None
+    val = table.number(i, col)
+    err = table.number(i, errcol, nonnegative=True, default=0.0)
+    return Measured(convert(val), abs(convert(err)))
+
+
+def _structure_mass_u(name: str, row: dict, structures: dict, kind: str) -> float | None:
+    """Mass (u) of a compound from its SDF record or SMILES, or None without a structure."""
+    rec = structures.get(name)
+    smiles = (row.get("smiles") or "").strip()
+    if rec is None and not smiles:
+        return None
+    from polarbeam import chemistry as st
+
+    if isinstance(rec, str):
+        raise CompoundError(f"structures file: record {name!r} could not be read ({rec})")
+    mol = rec if rec is not None else st.parse_smiles(smiles, name)
+    return st.mass_monoisotopic_u(mol) if kind == "monoisotopic" else st.mass_average_u(mol)
+
+
+def _load_compounds(path: Path, structures: dict | None = None, mass_kind: str = "average"):
+    structures = structures or {}
+    table = read_table(path, ("compound",), "compounds")
+    if "mass_u" not in table.columns and "smiles" not in table.columns and not structures:
+        raise InputError(
+            f"{table.name}: missing column(s) mass_u; expected compound, mass_u (or a smiles "
+            f"column / [data] structures to take the mass from), found {', '.join(table.columns)}"
+        )
+    info: dict[str, dict] = {}
+    for i, row in enumerate(table.rows):
+        name = row.get("compound", "").strip()
+        entry: dict[str, Any] = {"extra": {k: v for k, v in row.items() if k != "__bad__"}}
+        try:
+            if "__bad__" in row:
+                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
+            if not name:
+                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            if name in info:
+                raise CompoundError(
+                    f"{table.name} line {table.lines[i]}: compound {name!r} listed twice"
+                )
+            if (row.get("mass_u") or "").strip():
+                m = table.number(i, "mass_u", positive=True)
+            else:  # no stated mass: the structure's (average, or monoisotopic on request)
+                m = _structure_mass_u(name, row, structures, mass_kind)
+                if m is None:
+                    raise CompoundError(
+                        f"{table.name} line {table.lines[i]}: column 'mass_u' expected a number "
+                        "> 0 (or a structure to take the mass from), found ''"
+                    )
+                entry["mass_source"] = f"{mass_kind} mass of the structure"
+            dm = table.number(i, "mass_err_u", nonnegative=True, default=0.0)
+            entry["mass"] = Measured(m * AMU, dm * AMU)
+            entry["alpha_known"] = _optional_measured(
+                table, i, "alpha_known_A3", "alpha_known_err_A3", alpha_si_from_a3
+            )
+            entry["dipole_known"] = _optional_measured(
+                table, i, "dipole_known_D", "dipole_known_err_D", si_from_debye
+            )
+        except CompoundError as exc:
+            if name in info and "problem" not in info[name]:
+                info[name]["problem"] = str(exc)
+                continue
+            entry["problem"] = str(exc)
+        info.setdefault(name, entry)
+    return info
+
+
+def _load_shifts(path: Path, layout: str):
+    obs, obs_err = OBSERVABLE_COLUMNS[layout]
+    required = (*SHIFT_COLUMNS_COMMON, obs, obs_err)
+    if layout == "time-domain":
+        required = tuple(c for c in required if not c.startswith("velocity"))
+    table = read_table(path, required, "shifts")
+    # the time-domain shift does not depend on velocity: its columns are not read at all
+    ignored = (
+        tuple(c for c in table.columns if c.startswith("velocity"))
+        if layout == "time-domain"
+        else ()
+    )
+    groups: dict[str, dict[float, list]] = {}
+    problems: dict[str, str] = {}
+    for i, row in enumerate(table.rows):
+        name = row.get("compound", "").strip()
+        if name in problems:
+            continue
+        try:
+            if "__bad__" in row:
+                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
+            if not name:
+                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            num = table.number
+            if layout == "time-domain":
+                v = dv = sv = 0.0  # placeholders, never used
+            else:
+                v = num(i, "velocity_m_s", positive=True)
+                dv = num(i, "velocity_err_m_s", nonnegative=True)
+                sv = num(i, "velocity_spread_m_s", nonnegative=True)
+            rec = (
+                num(i, "voltage_V"),
+                num(i, obs),
+                num(i, obs_err, positive=True),
+                v,
+                dv,
+                sv,
+                num(i, "temperature_err_K", nonnegative=True),
+                table.lines[i],
+            )
+            temp = num(i, "temperature_K", positive=True)
+        except CompoundError as exc:
+            problems[name] = str(exc)
+            groups.pop(name, None)
+            continue
+        groups.setdefault(name, {}).setdefault(temp, []).append(rec)
+    series: dict[str, list[SeriesData]] = {}
+    for name, by_t in groups.items():
+        out = []
+        for temp, recs in sorted(by_t.items()):
+            arr = np.array([r[:7] for r in recs], dtype=float)
+            volts = arr[:, 0]
+            if np.unique(np.round(volts**2, 9)).size < 2:
+                problems[name] = (
+                    f"{table.name}: series {name} @ {temp:g} K expected at least two different "
+                    f"voltages (|V|), found {np.unique(np.abs(volts)).size}"
+                )
+                break
+            out.append(
+                SeriesData(
+                    compound=name,
+                    temperature=Measured(temp, float(np.mean(arr[:, 6]))),
+                    velocity=Measured(float(np.mean(arr[:, 3])), float(np.mean(arr[:, 4]))),
+                    velocities=arr[:, 3],
+                    spreads=arr[:, 5],
+                    voltages=volts,
+                    values=arr[:, 1],
+                    errors=arr[:, 2],
+                    lines=tuple(r[7] for r in recs),
+                )
+            )
+        else:
+            series[name] = out
+    return series, problems, ignored
+
+
+def check_geometry(camp: Campaign) -> None:
+    """Build the nominal set-up once: bad geometry is structural (named with the file)."""
+    try:
+        if camp.model == "none":
+            build_layout(camp.layout, camp.nominal())
+        else:
+            camp.build()
+    except QuantityError:
+        raise
+    except InputError as exc:
+        raise InputError(f"{camp.path.name} {exc}") from None
+
+
+def deflector_files(defl: dict, base: Path, fname: str, layout: str, model: str):
+    """(field map, waveform) profiles named in ``[deflector]``, read and validated (or None)."""
+    field_map = waveform = None
+    if model == "field-map" and layout != "time-domain":
+        fm = defl["field_map"]
+        if not isinstance(fm, str):
+            raise InputError(f"{fname} [deflector] field_map: expected a file path, found {fm!r}")
+        field_map = _read_profile((base / fm).resolve(), ("z_m", "field_factor_m3"), "field map")
+    if "waveform" in defl:
+        wf = defl["waveform"]
+        if not isinstance(wf, str):
+            raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
+        waveform = _read_waveform((base / wf).resolve())
+    return field_map, waveform
+
+
+def read_toml(path: Path) -> dict:
+    """The TOML document of a campaign file, or a one-line :class:`InputError`."""
+    if not path.is_file():
+        raise InputError(f"{path}: campaign file not found")
+    try:
+        return tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{path.name}: invalid TOML ({exc})") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"{path}: cannot read campaign file ({exc.__class__.__name__})") from None
+
+
+def load_campaign(path: str | Path) -> Campaign:
+    """Load and validate ``campaign.toml`` and its data files.
+
+    Raises
+    ------
+    InputError
+        For any structural problem (the message names file, key, expected and found).
+    """
+    path = Path(path)
+    fname = path.name
+    doc = read_toml(path)
+    _check_keys(doc, fname)
+    inst = doc.get("instrument", {})
+    defl = doc.get("deflector", {})
+    layout = _require_str(inst, "layout", f"{fname} [instrument]", LAYOUTS)
+    data = doc.get("data", {})
+    # photon recoil (polarbeam.extraction.recoil): [data] recoil makes shifts, and then [deflector], optional
+    has_recoil = "recoil" in data or "laser" in doc
+    if has_recoil and not ({"shifts", "scans"} & set(data)) and "deflector" not in doc:
+        model = "none"
+    else:
+        model = _require_str(defl, "model", f"{fname} [deflector]", DEFLECTOR_MODELS)
+    title = doc.get("campaign", {}).get("title", path.stem)
+    if not isinstance(title, str):
+        raise InputError(f"{fname} [campaign] title: expected a string, found {title!r}")
+    stated = _stated_inputs(doc, fname, layout, model)
+    settings = _settings(doc, fname)
+    base = path.parent
+    field_map, waveform = deflector_files(defl, base, fname, layout, model)
+    data = doc.get("data", {})
+    compounds_path = _data_path(base, doc, "compounds", fname)
+    structures = _load_structures(base, doc, fname)
+    reduction = None
+    notes: dict[str, list[str]] = {}
+    ignored: tuple[str, ...] = ()
+    if "scans" in data:
+        if "shifts" in data:
+            raise InputError(f"{fname} [data]: expected either 'shifts' or 'scans', found both")
+        if layout == "beam-profile":
+            raise InputError(
+                f"{fname} [data] scans: raw fringe scans need a fringe layout "
+                "(talbot-lau or time-domain), found 'beam-profile'"
+            )
+        shifts_path = _data_path(base, doc, "scans", fname)
+        info = _load_compounds(compounds_path, structures, settings.mass)
+        reduction = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
+        series, problems, notes = series_from_reduction(reduction)
+    else:
+        shifts_path = _data_path(base, doc, "shifts", fname, required=not has_recoil)
+        info = _load_compounds(compounds_path, structures, settings.mass)
+        if shifts_path is not None:
+            series, problems, ignored = _load_shifts(shifts_path, layout)
+        else:
+            series, problems = {}, {}
+
+    camp = Campaign(
+        path=path,
+        title=title,
+        layout=layout,
+        model=model,
+        stated=stated,
+        settings=settings,
+        compounds=(),
+        field_map=field_map,
+        waveform=waveform,
+        raw=doc,
+    )
+    check_geometry(camp)
+    if model == "numerical":  # the solve's mesh-refinement error becomes a stated input
+        stated = {**stated, **numerical_error_inputs(camp)}
+    recoil = None
+    if has_recoil:  # [[laser]] tables and recoil.csv (polarbeam.extraction.recoil)
+        from polarbeam.extraction.recoil import load_recoil
+
+        recoil = load_recoil(doc, path, layout, stated, info, compounds_path.name)
+
+    compounds = []
+    measured_names = list(dict.fromkeys(list(series) + list(problems)))
+    for name in measured_names:
+        entry = info.get(name)
+        problem = problems.get(name)
+        if entry is None:
+            problem = problem or (
+                f"{compounds_path.name}: compound {name!r} measured in {shifts_path.name} but not "
+                "listed (expected a row with its mass_u)"
+            )
+            compounds.append(CompoundData(name, None, problem=problem))
+            continue
+        problem = entry.get("problem") or problem
+        compounds.append(
+            CompoundData(
+                name,
+                entry.get("mass"),
+                tuple(series.get(name, ())) if problem is None else (),
+                entry["extra"],
+                problem,
+                entry.get("alpha_known"),
+                entry.get("dipole_known"),
+                tuple(notes.get(name, ())),
+            )
+        )
+    in_recoil = set(recoil.compound_names) if recoil is not None else set()
+    unmeasured = tuple(
+        n for n in info if n not in series and n not in problems and n not in in_recoil
+    )
+    computed = _data_path(base, doc, "computed", fname, required=False)
+    if computed is not None and not computed.is_file():
+        raise InputError(f"{computed}: computed-values file not found ([data] computed)")
+    patterns = doc.get("data", {}).get("computed_outputs", [])
+    if isinstance(patterns, str):
+        patterns = [patterns]
+    if not (isinstance(patterns, list) and all(isinstance(p, str) for p in patterns)):
+        raise InputError(
+            f"{fname} [data] computed_outputs: expected a list of glob patterns, found {patterns!r}"
+        )
+    return Campaign(
+        path=path,
+        title=title,
+        layout=layout,
+        model=model,
+        stated=stated,
+        settings=settings,
+        compounds=tuple(compounds),
+        unmeasured=unmeasured,
+        field_map=field_map,
+        waveform=waveform,
+        raw=doc,
+        structures=structures,
+        computed_paths=(computed,) if computed is not None else (),
+        computed_patterns=tuple(str(base / p) for p in patterns),
+        reduction=reduction,
+        ignored_columns=ignored,
+        recoil=recoil,
+    )
+
+
+def reduce_scans_file(path: Path, period_m: float):
+    """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases."""
+    from polarbeam.errors import RowValueError
+    from polarbeam.reduction import reduce_file
+
+    try:
+        return reduce_file(path, period_m)
+    except RowValueError as exc:  # a bad cell in a raw-scan file is reported as structural
+        raise InputError(str(exc)) from None
+
+
+def series_from_reduction(reduction):
+    """Series (with full phase covariance and relative visibility) from reduced phases."""
+    t = reduction.table
+    vis = reduction.relative_visibility()
+    kept = t["phase_rad"].notna().to_numpy()
+    series: dict[str, list[SeriesData]] = {}
+    problems: dict[str, str] = {}
+    notes: dict[str, list[str]] = {}
+    names = list(dict.fromkeys(str(c) for c in t["compound"]))
+    for msg in reduction.messages:
+        for name in names:
+            if f"({name}, " in msg:
+                notes.setdefault(name, []).append(msg)
+    keys = list(dict.fromkeys(zip(t["compound"].astype(str), t["temperature_K"], strict=True)))
+    for name, temp in keys:
+        sel = ((t["compound"].astype(str) == name) & (t["temperature_K"] == temp)).to_numpy()
+        rows = sel & kept
+        if name in problems:
+            continue
+        volts = t["voltage_V"].to_numpy()[rows]
+        if np.unique(np.round(volts**2, 9)).size < 2:
+            problems[name] = (
+                f"{reduction.source}: series {name} @ {temp:g} K expected at least two different "
+                f"voltages with usable scans, found {np.unique(np.abs(volts)).size}"
+            )
+            series.pop(name, None)
+            continue
+        cov = reduction.covariance.get((name, temp))
+        if cov is None:
+            cov = reduction.covariance.get((t["compound"][sel].iloc[0], temp))
+        v = t["velocity_m_s"].to_numpy()[rows]
+        series.setdefault(name, []).append(
+            SeriesData(
+                compound=name,
+                temperature=Measured(float(temp), float(t["temperature_err_K"][rows].mean())),
+                velocity=Measured(float(v.mean()), float(t["velocity_err_m_s"][rows].mean())),
+                velocities=v.astype(float),
+                spreads=t["velocity_spread_m_s"].to_numpy()[rows].astype(float),
+                voltages=volts.astype(float),
+                values=t["phase_rad"].to_numpy()[rows].astype(float),
+                errors=t["phase_err_rad"].to_numpy()[rows].astype(float),
+                lines=tuple(str(x) for x in t["scan"].to_numpy()[rows]),
+                covariance=np.asarray(cov, dtype=float),
+                visibility=vis["relative_visibility"].to_numpy()[rows].astype(float),
+                visibility_err=vis["relative_visibility_err"].to_numpy()[rows].astype(float),
+            )
+        )
+    for name in series:
+        series[name].sort(key=lambda s: s.temperature.value)
+    return series, problems, notes
+
+
+def _load_structures(base: Path, doc: dict, fname: str) -> dict[str, Any]:
+    """Records of the ``[data] structures`` SDF file by name (Mol, or the error text)."""
+    path = _data_path(base, doc, "structures", fname, required=False)
+    if path is None:
+        return {}
+    if not path.is_file():
+        raise InputError(f"{path}: structures file not found ([data] structures)")
+    from polarbeam.chemistry import read_sdf
+
+    out: dict[str, Any] = {}
+    for rec in read_sdf(path):
+        out.setdefault(
+            rec.compound, rec.mol if rec.mol is not None else (rec.error or "unreadable")
+        )
+    return out

@@ -1,0 +1,6 @@
+# TEMPORARY (replaced by the split branch)
+import sys
+
+from polarbeam import fringes as _m
+
+sys.modules[__name__] = _m

@@ -1,0 +1,478 @@
+"""Figures of a campaign result, for the HTML report and for papers (PNG and SVG).
+
+Each function takes result objects and returns a :class:`matplotlib.figure.Figure` (or ``None``
+when the figure has nothing to show).  Figures are built without :mod:`matplotlib.pyplot`, so no
+global state or GUI backend is involved (PNG through Agg, SVG through matplotlib's SVG writer), and
+SVG output is deterministic (fixed id salt, no date).  matplotlib is imported lazily: it is the
+optional extra ``polarbeam[plots]``.
+
+Colours are the Okabe–Ito palette (distinguishable with the common colour-vision deficiencies);
+series are told apart by marker shape as well.  Like the rest of the reporting, nothing here
+computes physics: the curves drawn are the values the analysis stored.
+"""
+
+from __future__ import annotations
+
+import functools
+import io
+import math
+from typing import Any
+
+import numpy as np
+
+from polarbeam.constants import BOLTZMANN, alpha_a3_from_si, debye_from_si
+from polarbeam.results.objects import CampaignResult, CompoundResult, variance_budget
+
+__all__ = [
+    "OKABE_ITO",
+    "budget_figure",
+    "comparison_figure",
+    "compound_figures",
+    "debye_figure",
+    "have_matplotlib",
+    "parity_figure",
+    "series_figure",
+    "to_png",
+    "to_svg",
+    "visibility_figure",
+]
+
+#: Okabe & Ito (2008), "Color Universal Design": colour-blind-safe qualitative palette.
+OKABE_ITO = {
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky blue": "#56B4E9",
+    "bluish green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish purple": "#CC79A7",
+}
+_CYCLE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
+_MARKERS = ("o", "s", "^", "D", "v", "P", "X")
+
+#: (extra key, error key or None, label) of α values to compare with the measurement.
+ALPHA_PREDICTIONS = (
+    ("alpha_additive_A3", "alpha_additive_err_A3", "additive estimate"),
+    ("alpha_computed_A3", "alpha_computed_err_A3", "computed"),
+    ("alpha_d4_A3", "alpha_d4_err_A3", "D4 model"),
+)
+#: (extra key, error key or None, label) of dipole values to compare with the measurement.
+DIPOLE_PREDICTIONS = (
+    ("dipole_rms_D", "dipole_rms_err_D", "conformer ensemble"),
+    ("dipole_computed_D", "dipole_computed_err_D", "computed"),
+)
+
+_STYLE = {
+    "font.size": 9,
+    "axes.titlesize": 10,
+    "axes.labelsize": 9,
+    "legend.fontsize": 8,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.grid": True,
+    "grid.color": "#dddddd",
+    "grid.linewidth": 0.6,
+    "svg.fonttype": "none",
+    "svg.hashsalt": "polarbeam",
+    "axes.prop_cycle": None,  # set below once matplotlib is imported
+}
+
+
+def have_matplotlib() -> bool:
+    """Whether the optional plotting dependency is installed."""
+    try:
+        import matplotlib  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
+def _mpl():
+    import matplotlib
+    from cycler import cycler
+    from matplotlib.figure import Figure
+
+    style = dict(_STYLE)
+    style["axes.prop_cycle"] = cycler(color=list(_CYCLE))
+    return matplotlib, Figure, style
+
+
+def _styled(make):
+    """Run a figure builder with the report style (rcParams are read while artists are made)."""
+
+    @functools.wraps(make)
+    def wrapper(*args, **kwargs):
+        matplotlib, _, style = _mpl()
+        with matplotlib.rc_context(style):
+            fig = make(*args, **kwargs)
+        if fig is not None:
+            fig._polarbeam_style = style  # re-applied when saving
+        return fig
+
+    return wrapper
+
+
+def _new(width=5.6, height=3.4, rows=1, ratios=None, sharex=False, left=0.8):
+    """A figure with fixed margins in inches (no layout engine: drawing twice stays cheap)."""
+    _, Figure, _ = _mpl()
+    fig = Figure(figsize=(width, height))
+    kw: dict[str, Any] = {"sharex": sharex}
+    if ratios:
+        kw["gridspec_kw"] = {"height_ratios": ratios}
+    axes = fig.subplots(rows, 1, **kw)
+    fig.subplots_adjust(
+        left=left / width,
+        right=1 - 0.15 / width,
+        bottom=0.5 / height,
+        top=1 - 0.3 / height,
+        hspace=0.45 if rows > 1 and not sharex else 0.08,
+    )
+    return fig, axes
+
+
+def to_svg(fig) -> str:
+    """The figure as an SVG document (text; deterministic)."""
+    import matplotlib
+
+    buf = io.StringIO()
+    with matplotlib.rc_context(getattr(fig, "_polarbeam_style", {})):
+        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "polarbeam"})
+    text = buf.getvalue()
+    return text[text.index("<svg") :]  # drop the XML prolog and DOCTYPE for inline use
+
+
+def to_png(fig, dpi: int = 150) -> bytes:
+    """The figure as PNG bytes."""
+    import matplotlib
+
+    buf = io.BytesIO()
+    with matplotlib.rc_context(getattr(fig, "_polarbeam_style", {})):
+        fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": "polarbeam"})
+    return buf.getvalue()
+
+
+def _obs_label(observable: str) -> tuple[str, float]:
+    if observable.startswith("shift"):
+        return "beam shift (µm)", 1e6
+    return "fringe phase (rad)", 1.0
+
+
+def _tname(s) -> str:
+    return f"{s.temperature_K:g} K"
+
+
+@_styled
+def series_figure(c: CompoundResult):
+    """Observable versus voltage per series with the fitted model, and the normalised residuals."""
+    if not c.series:
+        return None
+    ylab, scale = _obs_label(c.series[0].observable)
+    fig, (ax, rax) = _new(5.6, 4.2, rows=2, ratios=(3, 1.3), sharex=True)
+    for i, s in enumerate(c.series):
+        col, mk = _CYCLE[i % len(_CYCLE)], _MARKERS[i % len(_MARKERS)]
+        order = np.argsort(s.voltages)
+        v = s.voltages[order]
+        ax.errorbar(
+            v,
+            s.values[order] * scale,
+            yerr=s.errors[order] * scale,
+            fmt=mk,
+            ms=4,
+            color=col,
+            capsize=2,
+            lw=0.8,
+            label=f"{_tname(s)}  α_eff = {s.alpha_eff_A3:.4g} Å³",
+        )
+        ax.plot(v, s.model[order] * scale, "-", color=col, lw=1.1, alpha=0.85)
+        rax.plot(
+            v,
+            (s.values[order] - s.model[order]) / s.errors[order],
+            mk + "-",
+            color=col,
+            ms=3.5,
+            lw=0.6,
+        )
+    ax.set_ylabel(ylab)
+    ax.set_title("measured (points, 1σ) and fitted model (lines)")
+    ax.legend(frameon=False, loc="best")
+    rax.axhline(0.0, color="#555555", lw=0.8)
+    for y in (-2, 2):
+        rax.axhline(y, color="#999999", lw=0.6, ls=":")
+    rax.set_ylabel("residual / σ")
+    rax.set_xlabel("deflector voltage (V)")
+    return fig
+
+
+def _visibility(s):
+    vis = getattr(s, "visibility", None)
+    err = getattr(s, "visibility_err", None)
+    if vis is None:
+        vis = s.extra.get("visibility")
+        err = s.extra.get("visibility_err")
+    if vis is None:
+        return None, None
+    vis = np.asarray(vis, dtype=float)
+    if vis.shape != s.voltages.shape:
+        return None, None
+    err = None if err is None else np.asarray(err, dtype=float)
+    return vis, err
+
+
+@_styled
+def visibility_figure(c: CompoundResult):
+    """Fringe visibility versus voltage: measured (when recorded) and the velocity-averaging
+    contrast factor of the fitted model, both relative to the lowest-|V| point."""
+    rows = []
+    for s in c.series:
+        vis, err = _visibility(s)
+        mod = np.asarray(s.modulus, dtype=float)
+        varies = mod.size and float(np.min(mod)) < 0.995
+        if vis is None and not varies:
+            continue
+        rows.append((s, vis, err, mod))
+    if not rows:
+        return None
+    fig, ax = _new(5.6, 3.0)
+    for i, (s, vis, err, mod) in enumerate(rows):
+        col, mk = _CYCLE[i % len(_CYCLE)], _MARKERS[i % len(_MARKERS)]
+        order = np.argsort(s.voltages)
+        v = s.voltages[order]
+        ref = int(np.argmin(np.abs(v)))
+        if vis is not None and vis[order][ref] > 0:
+            norm = vis[order][ref]
+            ax.errorbar(
+                v,
+                vis[order] / norm,
+                yerr=None if err is None else err[order] / norm,
+                fmt=mk,
+                ms=4,
+                color=col,
+                capsize=2,
+                lw=0.8,
+                label=f"{_tname(s)} measured",
+            )
+        if mod[order][ref] > 0:
+            ax.plot(
+                v,
+                mod[order] / mod[order][ref],
+                "-",
+                color=col,
+                lw=1.1,
+                label=f"{_tname(s)} model (velocity spread)",
+            )
+    ax.set_xlabel("deflector voltage (V)")
+    ax.set_ylabel("relative visibility")
+    ax.set_title("visibility relative to the lowest-field point")
+    ax.legend(frameon=False, loc="lower center")
+    return fig
+
+
+def _debye_band(c: CompoundResult, x: np.ndarray):
+    from uncertainties import covariance_matrix
+
+    cov = np.asarray(covariance_matrix([c.alpha, c.mu2]), dtype=float)
+    k3 = 3.0 * BOLTZMANN
+    a, b = c.alpha.nominal_value, c.mu2.nominal_value / k3
+    var = cov[0, 0] + 2 * x * cov[0, 1] / k3 + x**2 * cov[1, 1] / k3**2
+    line = a + b * x
+    sd = np.sqrt(np.clip(var, 0.0, None))
+    return alpha_a3_from_si(line), alpha_a3_from_si(sd)
+
+
+@_styled
+def debye_figure(c: CompoundResult):
+    """α_eff versus 1/T with the fitted line α + ⟨μ²⟩/(3kT) and its 1σ band."""
+    if c.alpha is None or c.mu2 is None or len(c.series) < 2:
+        return None
+    xs = np.array([1.0 / s.temperature_K for s in c.series])
+    xerr = np.array([s.temperature_err_K / s.temperature_K**2 for s in c.series])
+    ys = np.array([s.alpha_eff_A3 for s in c.series])
+    yerr = np.array([s.alpha_eff_err_A3 for s in c.series])
+    grid = np.linspace(0.0, 1.08 * float(xs.max()), 120)
+    line, sd = _debye_band(c, grid)
+    fig, ax = _new(5.6, 3.4)
+    k = 1e3  # plot 1000/T
+    ax.fill_between(
+        grid * k,
+        line - sd,
+        line + sd,
+        color=OKABE_ITO["sky blue"],
+        alpha=0.35,
+        lw=0,
+        label="fit ± 1σ (full covariance)",
+    )
+    ax.plot(grid * k, line, "-", color=OKABE_ITO["blue"], lw=1.3, label="α + ⟨μ²⟩/(3kT)")
+    ax.errorbar(
+        xs * k,
+        ys,
+        xerr=xerr * k,
+        yerr=yerr,
+        fmt="o",
+        color=OKABE_ITO["vermillion"],
+        ms=5,
+        capsize=2,
+        lw=0.9,
+        label="α_eff per series (1σ)",
+    )
+    ax.plot(
+        [0.0],
+        [alpha_a3_from_si(c.alpha.nominal_value)],
+        marker="D",
+        ls="none",
+        color=OKABE_ITO["black"],
+        ms=5,
+        label=f"α = {alpha_a3_from_si(c.alpha.nominal_value):.4g} Å³",
+    )
+    ax.set_xlim(left=0.0)
+    ax.set_xlabel("1000 / T  (1/K)")
+    ax.set_ylabel("α_eff (Å³)")
+    ax.set_title("Debye plot")
+    ax.legend(frameon=False, loc="best")
+    return fig
+
+
+@_styled
+def budget_figure(c: CompoundResult, top: int = 10):
+    """Share of each input in the variance of α (or of the first α_eff) as horizontal bars."""
+    target = c.alpha if c.alpha is not None else (c.series[0].alpha_eff if c.series else None)
+    what = "α" if c.alpha is not None else f"α_eff at {c.series[0].temperature_K:g} K"
+    budget = variance_budget(target)
+    if not budget:
+        return None
+    items = list(budget.items())
+    if len(items) > top:
+        rest = sum(v for _, v in items[top - 1 :])
+        items = [*items[: top - 1], (f"{len(items) - top + 1} other inputs", rest)]
+    labels = [k for k, _ in items][::-1]
+    vals = np.array([v for _, v in items][::-1]) * 100
+    longest = max(len(k) for k in labels)
+    fig, ax = _new(6.0, 0.9 + 0.28 * len(items), left=min(3.2, 0.3 + 0.065 * longest))
+    ax.barh(range(len(vals)), vals, color=OKABE_ITO["blue"], height=0.65)
+    for i, v in enumerate(vals):
+        ax.text(v + 0.8, i, f"{v:.1f} %", va="center", fontsize=8)
+    ax.set_yticks(range(len(vals)), labels)
+    ax.set_xlim(0, min(100.0, float(vals.max()) * 1.25 + 5))
+    ax.set_xlabel(f"share of the variance of {what} (%)")
+    ax.grid(axis="y", visible=False)
+    ax.set_title("uncertainty budget")
+    return fig
+
+
+def _num(v) -> float | None:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return None
+    return f if math.isfinite(f) else None
+
+
+def predictions(c: CompoundResult) -> dict[str, list[tuple[str, float, float | None]]]:
+    """{'alpha': [(label, value, err)], 'dipole': [...]} found in ``c.extra`` (Å³, D)."""
+    out: dict[str, list[tuple[str, float, float | None]]] = {"alpha": [], "dipole": []}
+    for kind, table in (("alpha", ALPHA_PREDICTIONS), ("dipole", DIPOLE_PREDICTIONS)):
+        for key, ekey, label in table:
+            v = _num(c.extra.get(key))
+            if v is not None:
+                out[kind].append((label, v, _num(c.extra.get(ekey)) if ekey else None))
+    return out
+
+
+@_styled
+def comparison_figure(c: CompoundResult):
+    """Measured α (and μ) next to the predicted and computed values stored with the compound."""
+    pred = predictions(c)
+    panels = []
+    if c.alpha is not None and pred["alpha"]:
+        m = (alpha_a3_from_si(c.alpha.nominal_value), alpha_a3_from_si(c.alpha.std_dev))
+        panels.append(("α (Å³)", m, pred["alpha"]))
+    if c.dipole is not None and pred["dipole"]:
+        m = (debye_from_si(c.dipole.nominal_value), debye_from_si(c.dipole.std_dev))
+        panels.append(("μ (D)", m, pred["dipole"]))
+    if not panels:
+        return None
+    n_rows = sum(len(p[2]) + 1 for p in panels)
+    fig, axes = _new(5.6, 0.9 + 0.6 * len(panels) + 0.3 * n_rows, rows=len(panels), left=1.5)
+    axes = np.atleast_1d(axes)
+    for ax, (label, (mv, me), rows) in zip(axes, panels, strict=True):
+        names = ["measured"] + [r[0] for r in rows]
+        vals = [mv] + [r[1] for r in rows]
+        errs = [me] + [r[2] if r[2] is not None else 0.0 for r in rows]
+        ys = np.arange(len(names))[::-1]
+        cols = [OKABE_ITO["vermillion"]] + [_CYCLE[(i + 2) % len(_CYCLE)] for i in range(len(rows))]
+        for y, v, e, col, mk in zip(ys, vals, errs, cols, _MARKERS, strict=False):
+            ax.errorbar([v], [y], xerr=[e], fmt=mk, color=col, ms=5, capsize=3, lw=1)
+        ax.axvspan(mv - me, mv + me, color=OKABE_ITO["vermillion"], alpha=0.12, lw=0)
+        ax.set_yticks(ys, names)
+        ax.set_ylim(-0.7, len(names) - 0.3)
+        ax.set_xlabel(label)
+        ax.grid(axis="y", visible=False)
+    axes[0].set_title("measured versus predicted / computed (1σ)")
+    return fig
+
+
+@_styled
+def parity_figure(result: CampaignResult):
+    """Measured α versus each kind of predicted or computed α over the campaign."""
+    groups: dict[str, list[tuple[float, float, float, float | None]]] = {}
+    for c in result.compounds:
+        if c.alpha is None:
+            continue
+        m = alpha_a3_from_si(c.alpha.nominal_value)
+        me = alpha_a3_from_si(c.alpha.std_dev)
+        for label, v, e in predictions(c)["alpha"]:
+            groups.setdefault(label, []).append((v, m, me, e))
+    if not groups:
+        return None
+    fig, ax = _new(4.6, 4.4, left=0.7)
+    lo, hi = math.inf, -math.inf
+    for i, (label, pts) in enumerate(groups.items()):
+        arr = np.array([(p[0], p[1], p[2], p[3] if p[3] is not None else 0.0) for p in pts])
+        ax.errorbar(
+            arr[:, 0],
+            arr[:, 1],
+            yerr=arr[:, 2],
+            xerr=arr[:, 3],
+            fmt=_MARKERS[i % 7],
+            color=_CYCLE[i % len(_CYCLE)],
+            ms=4,
+            capsize=1.5,
+            lw=0.7,
+            ls="none",
+            label=f"{label} ({len(pts)})",
+        )
+        lo = min(lo, float(arr[:, :2].min()))
+        hi = max(hi, float(arr[:, :2].max()))
+    pad = 0.06 * (hi - lo if hi > lo else 1.0)
+    ax.plot(
+        [lo - pad, hi + pad],
+        [lo - pad, hi + pad],
+        "-",
+        color="#777777",
+        lw=0.8,
+        label="measured = predicted",
+    )
+    ax.set_xlim(lo - pad, hi + pad)
+    ax.set_ylim(lo - pad, hi + pad)
+    ax.set_aspect("equal")
+    ax.set_xlabel("predicted / computed α (Å³)")
+    ax.set_ylabel("measured α (Å³)")
+    ax.set_title("parity")
+    ax.legend(frameon=False, loc="upper left")
+    return fig
+
+
+def compound_figures(c: CompoundResult) -> dict[str, Any]:
+    """The figures of one compound, in report order: {kind: Figure} (absent kinds left out)."""
+    out = {}
+    for kind, make in (
+        ("series", series_figure),
+        ("visibility", visibility_figure),
+        ("debye", debye_figure),
+        ("comparison", comparison_figure),
+        ("budget", budget_figure),
+    ):
+        fig = make(c)
+        if fig is not None:
+            out[kind] = fig
+    return out

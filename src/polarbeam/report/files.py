@@ -1,0 +1,296 @@
+"""Reporting: results folder (CSV, JSON, Markdown) and the terminal table.
+
+Reads :class:`~polarbeam.results.objects.CampaignResult` objects; computes no physics.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+
+from polarbeam._util.atomic import write_text_atomic
+from polarbeam.quantities import format_value_error
+from polarbeam.results.objects import CAUTIONS, CampaignResult, variance_budget
+
+__all__ = ["render_markdown", "render_terminal", "write_results"]
+
+SERIES_COLUMNS = (
+    "compound",
+    "temperature_K",
+    "n_points",
+    "alpha_eff_A3",
+    "alpha_eff_err_A3",
+    "reduced_chi2",
+)
+PROPERTY_COLUMNS = (
+    "compound",
+    "alpha_A3",
+    "alpha_err_A3",
+    "dipole_D",
+    "dipole_err_D",
+    "dipole_upper_D",
+    "status",
+    "message",
+)
+
+
+def _clean(obj):
+    """JSON-safe: NaN/inf → None, numpy scalars → Python."""
+    if isinstance(obj, dict):
+        return {str(k): _clean(v) for k, v in obj.items()}
+    if isinstance(obj, list | tuple):
+        return [_clean(v) for v in obj]
+    if isinstance(obj, np.generic):
+        obj = obj.item()
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    return obj
+
+
+def _csv(df, first: tuple[str, ...]) -> str:
+    cols = list(first) + [c for c in df.columns if c not in first]
+    for c in first:
+        if c not in df.columns:
+            df[c] = None
+    buf = io.StringIO()
+    df[cols].to_csv(buf, index=False, float_format="%.10g", lineterminator="\n")
+    return buf.getvalue()
+
+
+def write_results(result: CampaignResult, out: str | Path) -> None:
+    """Write ``series.csv``, ``properties.csv``, ``results.json`` and ``report.md`` atomically."""
+    out = Path(out)
+    out.mkdir(parents=True, exist_ok=True)
+    write_text_atomic(out / "series.csv", _csv(result.series, SERIES_COLUMNS))
+    write_text_atomic(out / "properties.csv", _csv(result.properties, PROPERTY_COLUMNS))
+    write_text_atomic(
+        out / "results.json",
+        json.dumps(_clean(result.summary()), indent=1, ensure_ascii=False, allow_nan=False) + "\n",
+    )
+    if result.comparison is not None and len(result.comparison):
+        write_text_atomic(out / "comparison.csv", _csv(result.comparison.copy(), ()))
+    if result.series_comparison is not None and len(result.series_comparison):
+        write_text_atomic(out / "comparison_series.csv", _csv(result.series_comparison.copy(), ()))
+    write_text_atomic(out / "report.md", render_markdown(result))
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
+    if recoil is not None:
+        from polarbeam.extraction.recoil import write_recoil_results
+
+        write_recoil_results(recoil, out)
+
+
+def _fmt(v, e) -> str:
+    return format_value_error(v, e) if v is not None and e is not None else "—"
+
+
+def _md(s: str) -> str:
+    """Escape a user string for Markdown table cells and text."""
+    out = str(s).replace("\\", "\\\\").replace("|", "\\|").replace("<", "&lt;").replace(">", "&gt;")
+    return out.replace("\n", " ")
+
+
+def render_markdown(result: CampaignResult) -> str:
+    """The human-readable report: summary table, per-compound fits and budgets, cautions."""
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
+    if recoil is not None and not result.compounds:
+        from polarbeam.extraction.recoil import render_recoil_only
+
+        return render_recoil_only(result)
+    obs = "phase (rad)" if result.layout in ("talbot-lau", "time-domain") else "shift (m)"
+    lines = [
+        f"# {_md(result.title)}",
+        "",
+        f"polarbeam {result.version} · layout `{result.layout}` · deflector `{result.model}` · "
+        f"source `{_md(result.source)}`",
+        "",
+        "## Summary",
+        "",
+        "| compound | α (Å³) | μ (D) | status | message |",
+        "|---|---|---|---|---|",
+    ]
+    for c in result.compounds:
+        r = c.row()
+        if r["dipole_D"] is not None:
+            dip = _fmt(r["dipole_D"], r["dipole_err_D"])
+        elif r["dipole_upper_D"] is not None:
+            dip = f"< {r['dipole_upper_D']:.2f} (95 % CL)"
+        else:
+            dip = "—"
+        lines.append(
+            f"| {_md(c.compound)} | {_fmt(r['alpha_A3'], r['alpha_err_A3'])} | {dip} | "
+            f"{c.status} | {_md(c.message)} |"
+        )
+    for note in result.notes:
+        lines += ["", f"> {_md(note)}"]
+    for c in result.compounds:
+        lines += ["", f"## {_md(c.compound)}", ""]
+        if c.status == "failed":
+            lines += [f"**failed:** {_md(c.message)}"]
+            continue
+        timed = result.layout == "time-domain"  # no velocity enters: no velocity column
+        lines += [
+            f"mass {c.mass_u:.4f} u · method: {c.method}",
+            "",
+            "| T (K) | points | α_eff (Å³) | χ²/ν |" + ("" if timed else " velocity (m/s) |"),
+            "|---|---|---|---|" + ("" if timed else "---|"),
+        ]
+        for s in c.series:
+            lines.append(
+                f"| {_fmt(s.temperature_K, s.temperature_err_K)} | {s.n_points} | "
+                f"{_fmt(s.alpha_eff_A3, s.alpha_eff_err_A3)} | {s.reduced_chi2:.2f} |"
+                + (
+                    ""
+                    if timed
+                    else f" {_fmt(s.velocity_m_s, s.velocity_err_m_s)} ± σ "
+                    f"{s.velocity_spread_m_s:g} |"
+                )
+            )
+        for s in c.series:
+            lines += [
+                "",
+                f"Fit at {s.temperature_K:g} K — {obs} versus voltage:",
+                "",
+                "| V (V) | measured | error | model | residual/σ |",
+                "|---|---|---|---|---|",
+            ]
+            for v, y, e, m in zip(s.voltages, s.values, s.errors, s.model, strict=True):
+                lines.append(f"| {v:g} | {y:.5g} | {e:.2g} | {m:.5g} | {(y - m) / e:+.2f} |")
+        r = c.row()
+        if c.alpha is not None:
+            lines += ["", f"**α = {_fmt(r['alpha_A3'], r['alpha_err_A3'])} Å³**"]
+        if c.dipole is not None:
+            lines += [f"**μ = {_fmt(r['dipole_D'], r['dipole_err_D'])} D**"]
+        elif c.dipole_upper_si is not None:
+            lines += [f"**μ < {r['dipole_upper_D']:.2f} D** (no significant dipole)"]
+        target = c.alpha if c.alpha is not None else (c.series[0].alpha_eff if c.series else None)
+        what = "α" if c.alpha is not None else "α_eff (first series)"
+        budget = variance_budget(target)
+        if budget:
+            lines += ["", f"Uncertainty budget of {what} (share of variance):", ""]
+            lines += ["| input | share |", "|---|---|"]
+            lines += [f"| {_md(k)} | {v:.1%} |" for k, v in budget.items()]
+        lines += _crosscheck_lines(c)
+        if c.warnings:
+            lines += ["", "Warnings:", ""] + [f"- {_md(w)}" for w in c.warnings]
+    lines += _parity_lines(result)
+    if recoil is not None:
+        lines += ["", *recoil.markdown_lines()]
+    lines += [
+        "",
+        "## Notes on the method",
+        "",
+        "- α_eff = α + ⟨μ²⟩/(3kT) (Langevin–Debye, weak-field high-temperature limit); "
+        "α is the static polarizability including vibrational contributions.",
+        "- Errors are 1σ standard uncertainties propagated linearly from every stated input and "
+        "the fit covariances; shared instrument inputs are correlated across series.",
+        "",
+        "## Cautions",
+        "",
+    ]
+    lines += [f"- {c}" for c in CAUTIONS]
+    return "\n".join(lines) + "\n"
+
+
+def _parity_lines(result: CampaignResult) -> list[str]:
+    par, cmp_ = result.parity, result.comparison
+    if par is None or len(par) == 0:
+        return []
+    from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
+
+    out = [
+        "",
+        "## Measured versus computed chemistry",
+        "",
+        "| method | n | mean signed dev. (Å³) | (%) | mean abs. dev. (Å³) | (%) | verdict |",
+        "|---|---|---|---|---|---|---|",
+    ]
+    for r in par.to_dict(orient="records"):
+        out.append(
+            f"| {_md(r['method'])} | {r['n_compounds']} | {r['mean_signed_dev_A3']:+.2f} | "
+            f"{r['mean_signed_dev_pct']:+.1f} | {r['mean_abs_dev_A3']:.2f} | "
+            f"{r['mean_abs_dev_pct']:.1f} | {_md(r['verdict'])} |"
+        )
+    out += [
+        "",
+        "Deviations in this table are computed − measured. In comparison.csv, alpha_diff_A3 is "
+        "measured − computed and its error is the experimental one only.",
+        "",
+        f"> {_md(ELECTRONIC_VS_VIBRATIONAL_NOTE)}",
+    ]
+    if cmp_ is not None and len(cmp_):
+        out += [
+            "",
+            "| compound | method | α computed (Å³) | α measured (Å³) | diff (Å³) |",
+            "|---|---|---|---|---|",
+        ]
+        for r in cmp_.to_dict(orient="records"):
+            out.append(
+                f"| {_md(r['compound'])} | {_md(r['method'])} | {r['alpha_computed_A3']:.2f} | "
+                f"{_fmt(r['alpha_measured_A3'], r['alpha_measured_err_A3'])} | "
+                f"{r['alpha_diff_A3']:+.2f} |"
+            )
+    return out
+
+
+def _crosscheck_lines(c) -> list[str]:
+    x = c.extra
+    if "verdict" not in x:
+        note = x.get("crosscheck")
+        return ["", f"Structure cross-check: {_md(note)}"] if note else []
+    out = [
+        "",
+        f"Structure cross-check: **{_md(x['verdict'])}**",
+        "",
+        "| additive scheme | α (Å³) |",
+        "|---|---|",
+    ]
+    for k in ("ahp", "ahc", "bs", "llmr", "d4"):
+        if x.get(f"alpha_{k}_A3") is not None:
+            out.append(f"| {k} | {x[f'alpha_{k}_A3']:.2f} |")
+    out.append(f"| default | {_fmt(x['alpha_additive_A3'], x['alpha_additive_err_A3'])} |")
+    if x.get("alpha_z") is not None and math.isfinite(x["alpha_z"]):
+        out += ["", f"measured α − additive: z = {x['alpha_z']:+.1f}"]
+    if x.get("dipole_predicted_D") is not None:
+        out += [
+            "",
+            f"force-field conformer dipole √⟨μ²⟩ ≈ {x['dipole_predicted_D']:.2f} D "
+            "(force-field charges give rough dipoles: expect tens of percent)",
+        ]
+    rows = [s for s in c.series if "alpha_eff_pred_A3" in s.extra]
+    if rows:
+        out += ["", "| T (K) | α_eff measured (Å³) | predicted (Å³) | z |", "|---|---|---|---|"]
+        for s in rows:
+            e = s.extra
+            out.append(
+                f"| {s.temperature_K:g} | {_fmt(s.alpha_eff_A3, s.alpha_eff_err_A3)} | "
+                f"{_fmt(e['alpha_eff_pred_A3'], e['alpha_eff_pred_err_A3'])} | "
+                f"{e['alpha_eff_z']:+.1f} |"
+            )
+    return out
+
+
+def render_terminal(result: CampaignResult) -> str:
+    """A compact fixed-width table for the terminal."""
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
+    if recoil is not None and not result.compounds:
+        return "\n".join([result.title, *recoil.terminal_lines()])
+    head = f"{'compound':<24} {'α (Å³)':>18} {'μ (D)':>16}  status"
+    out = [result.title, head, "-" * len(head)]
+    for c in result.compounds:
+        r = c.row()
+        a = _fmt(r["alpha_A3"], r["alpha_err_A3"])
+        if r["dipole_D"] is not None:
+            d = _fmt(r["dipole_D"], r["dipole_err_D"])
+        elif r["dipole_upper_D"] is not None:
+            d = f"< {r['dipole_upper_D']:.2f}"
+        else:
+            d = "—"
+        name = c.compound if len(c.compound) <= 24 else c.compound[:23] + "…"
+        out.append(f"{name:<24} {a:>18} {d:>16}  {c.status}")
+    if recoil is not None:
+        out += ["", *recoil.terminal_lines()]
+    return "\n".join(out)

@@ -1,0 +1,410 @@
+"""Result objects: typed, frozen, with ``summary()`` (plain dict for JSON) and renderings.
+
+Nothing here computes physics; values arrive as correlated :mod:`uncertainties` numbers in SI and
+are converted for display only.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from uncertainties import UFloat
+
+from polarbeam import __version__
+from polarbeam.constants import alpha_a3_from_si, alpha_au_from_si, debye_from_si
+from polarbeam.extraction.series import FIT_TAG
+from polarbeam.quantities import format_value_error
+
+__all__ = [
+    "CampaignResult",
+    "CompoundResult",
+    "SeriesResult",
+    "variance_budget",
+]
+
+STATUS = ("ok", "warning", "failed")  # reference compounds: extra["role"] == "reference"
+
+
+def variance_budget(value: UFloat | None) -> dict[str, float]:
+    """Share of each stated input in the variance of ``value`` (shares add up to 1).
+
+    Components of the fit covariance (internal variables of
+    :func:`uncertainties.correlated_values`) are pooled as one ``fit statistics`` entry.
+    """
+    if value is None or not isinstance(value, UFloat) or value.std_dev == 0:
+        return {}
+    total = value.std_dev**2
+    out: dict[str, float] = {}
+    for var, sigma in value.error_components().items():
+        tag = var.tag or "unlabelled"
+        label = FIT_TAG if tag.startswith(FIT_TAG) else tag
+        out[label] = out.get(label, 0.0) + sigma * sigma / total
+    return dict(sorted(out.items(), key=lambda kv: -kv[1]))
+
+
+def _alpha_block(u: UFloat | None) -> dict[str, float | None]:
+    if u is None:
+        return {"A3": None, "err_A3": None, "au": None, "err_au": None, "SI": None, "err_SI": None}
+    n, s = u.nominal_value, u.std_dev
+    return {
+        "A3": alpha_a3_from_si(n),
+        "err_A3": alpha_a3_from_si(s),
+        "au": alpha_au_from_si(n),
+        "err_au": alpha_au_from_si(s),
+        "SI": n,
+        "err_SI": s,
+        "unit_SI": "C m^2/V",
+    }
+
+
+def _num(x):
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+@dataclass(frozen=True)
+class SeriesResult:
+    """α_eff of one series with its fit diagnostics."""
+
+    compound: str
+    temperature_K: float
+    temperature_err_K: float
+    observable: str
+    voltages: np.ndarray
+    values: np.ndarray
+    errors: np.ndarray
+    model: np.ndarray
+    modulus: np.ndarray
+    alpha_eff: UFloat
+    offset: float
+    chi2: float
+    ndof: int
+    p_value: float
+    velocity_m_s: float
+    velocity_err_m_s: float
+    velocity_spread_m_s: float
+    error_scale: float = 1.0
+    warnings: tuple[str, ...] = ()
+    extra: dict[str, Any] = field(default_factory=dict)
+    visibility: np.ndarray | None = None  # relative to the zero-field references (raw scans)
+    visibility_err: np.ndarray | None = None
+
+    @property
+    def n_points(self) -> int:
+        return int(self.voltages.size)
+
+    @property
+    def reduced_chi2(self) -> float:
+        return self.chi2 / self.ndof if self.ndof > 0 else math.nan
+
+    @property
+    def alpha_eff_A3(self) -> float:
+        return alpha_a3_from_si(self.alpha_eff.nominal_value)
+
+    @property
+    def alpha_eff_err_A3(self) -> float:
+        return alpha_a3_from_si(self.alpha_eff.std_dev)
+
+    def row(self) -> dict[str, Any]:
+        """The ``series.csv`` row."""
+        return {
+            "compound": self.compound,
+            "temperature_K": self.temperature_K,
+            "n_points": self.n_points,
+            "alpha_eff_A3": self.alpha_eff_A3,
+            "alpha_eff_err_A3": self.alpha_eff_err_A3,
+            "reduced_chi2": self.reduced_chi2,
+            "temperature_err_K": self.temperature_err_K,
+            "alpha_eff_au": alpha_au_from_si(self.alpha_eff.nominal_value),
+            "alpha_eff_err_au": alpha_au_from_si(self.alpha_eff.std_dev),
+            "chi2": self.chi2,
+            "ndof": self.ndof,
+            "p_value": self.p_value,
+            "offset": self.offset,
+            "velocity_m_s": self.velocity_m_s,
+            "velocity_spread_m_s": self.velocity_spread_m_s,
+            "min_velocity_contrast": float(np.min(self.modulus)) if self.modulus.size else 1.0,
+            "max_abs_voltage_V": float(np.max(np.abs(self.voltages))),
+            "relative_visibility_at_max_V": self._visibility_at_max(),
+            **self.extra,
+        }
+
+    def _visibility_at_max(self) -> float | None:
+        if self.visibility is None or not self.visibility.size:
+            return None
+        vmax = np.max(np.abs(self.voltages))
+        sel = np.abs(self.voltages) == vmax
+        return float(np.nanmean(self.visibility[sel]))
+
+    def summary(self) -> dict[str, Any]:
+        vis = self.visibility
+        verr = self.visibility_err
+        return {
+            "compound": self.compound,
+            "temperature_K": self.temperature_K,
+            "temperature_err_K": self.temperature_err_K,
+            "n_points": self.n_points,
+            "relative_visibility": None if vis is None else [_num(v) for v in vis],
+            "relative_visibility_err": None if verr is None else [_num(v) for v in verr],
+            "alpha_eff": _alpha_block(self.alpha_eff),
+            "offset": self.offset,
+            "chi2": self.chi2,
+            "ndof": self.ndof,
+            "reduced_chi2": _num(self.reduced_chi2),
+            "p_value": _num(self.p_value),
+            "error_scale": self.error_scale,
+            "velocity_m_s": self.velocity_m_s,
+            "velocity_err_m_s": self.velocity_err_m_s,
+            "velocity_spread_m_s": self.velocity_spread_m_s,
+            "observable": self.observable,
+            "points": [
+                {
+                    "voltage_V": float(v),
+                    "value": float(y),
+                    "error": float(e),
+                    "model": float(m),
+                    "velocity_contrast": float(c),
+                }
+                for v, y, e, m, c in zip(
+                    self.voltages, self.values, self.errors, self.model, self.modulus, strict=True
+                )
+            ],
+            "budget": variance_budget(self.alpha_eff),
+            "warnings": list(self.warnings),
+            **{k: _num(v) if isinstance(v, float) else v for k, v in self.extra.items()},
+        }
+
+
+@dataclass(frozen=True)
+class CompoundResult:
+    """α and μ of one compound (or the reason they could not be given)."""
+
+    compound: str
+    status: str
+    message: str
+    mass_u: float | None = None
+    series: tuple[SeriesResult, ...] = ()
+    alpha: UFloat | None = None
+    dipole: UFloat | None = None
+    dipole_upper_si: float | None = None
+    mu2: UFloat | None = None
+    method: str = "none"
+    debye_chi2: float | None = None
+    debye_ndof: int | None = None
+    warnings: tuple[str, ...] = ()
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self):
+        if self.status not in STATUS:
+            raise ValueError(f"status must be one of {STATUS}, found {self.status!r}")
+
+    def row(self) -> dict[str, Any]:
+        """The ``properties.csv`` row."""
+        a = self.alpha
+        d = self.dipole
+        return {
+            "compound": self.compound,
+            "alpha_A3": alpha_a3_from_si(a.nominal_value) if a is not None else None,
+            "alpha_err_A3": alpha_a3_from_si(a.std_dev) if a is not None else None,
+            "dipole_D": debye_from_si(d.nominal_value) if d is not None else None,
+            "dipole_err_D": debye_from_si(d.std_dev) if d is not None else None,
+            "dipole_upper_D": (
+                debye_from_si(self.dipole_upper_si) if self.dipole_upper_si is not None else None
+            ),
+            "status": self.status,
+            "message": self.message,
+            "n_series": len(self.series),
+            "temperatures_K": ";".join(f"{s.temperature_K:g}" for s in self.series),
+            "method": self.method,
+            "mass_u": self.mass_u,
+            "debye_chi2": self.debye_chi2,
+            "debye_ndof": self.debye_ndof,
+            **self.extra,
+        }
+
+    def summary(self) -> dict[str, Any]:
+        d = self.dipole
+        return {
+            "compound": self.compound,
+            "status": self.status,
+            "message": self.message,
+            "mass_u": self.mass_u,
+            "method": self.method,
+            "alpha": _alpha_block(self.alpha),
+            "alpha_budget": variance_budget(self.alpha),
+            "dipole": {
+                "D": debye_from_si(d.nominal_value) if d is not None else None,
+                "err_D": debye_from_si(d.std_dev) if d is not None else None,
+                "Cm": d.nominal_value if d is not None else None,
+                "err_Cm": d.std_dev if d is not None else None,
+                "upper_D": (
+                    debye_from_si(self.dipole_upper_si)
+                    if self.dipole_upper_si is not None
+                    else None
+                ),
+                "upper_Cm": self.dipole_upper_si,
+            },
+            "dipole_budget": variance_budget(d if d is not None else self.mu2),
+            "mean_square_dipole_C2m2": (
+                {"value": self.mu2.nominal_value, "err": self.mu2.std_dev}
+                if self.mu2 is not None
+                else None
+            ),
+            "debye_fit": {"chi2": _num(self.debye_chi2), "ndof": self.debye_ndof},
+            "alpha_eff_correlation": _correlation(self.series),
+            "series": [s.summary() for s in self.series],
+            "warnings": list(self.warnings),
+            "extra": {k: v for k, v in self.extra.items()},
+        }
+
+
+def _records(df) -> list[dict[str, Any]] | None:
+    if df is None or len(df) == 0:
+        return None
+    return [
+        {k: _num(v) if isinstance(v, float) else v for k, v in r.items()}
+        for r in df.to_dict(orient="records")
+    ]
+
+
+def _correlation(series) -> list[list[float]] | None:
+    if len(series) < 2:
+        return None
+    from uncertainties import correlation_matrix
+
+    return np.round(correlation_matrix([s.alpha_eff for s in series]), 6).tolist()
+
+
+CAUTIONS = (
+    "Deflector electrodes run at kilovolts: interlock the supplies, bleed and ground the "
+    "electrodes before touching them, and keep the high-voltage feedthroughs guarded.",
+    "Vacuum vessels and viewports store energy: use rated windows and pressure relief, and "
+    "vent only through the designated valves.",
+    "Hot molecular sources (ovens at several hundred kelvin and above) burn and can release "
+    "toxic vapours: let them cool, and handle compounds per their safety data sheets.",
+    "Lasers used for gratings or detection are typically class 3B or 4: wear the eyewear "
+    "specified for the wavelength and keep beam paths enclosed.",
+    "These notes do not replace local codes, the lab's safety rules and the safety officer's "
+    "authority; follow licensed practice for electrical, vacuum, laser and chemical work.",
+)
+
+
+@dataclass(frozen=True)
+class CampaignResult:
+    """Everything one campaign produced."""
+
+    title: str
+    source: str
+    layout: str
+    model: str
+    compounds: tuple[CompoundResult, ...]
+    stated_inputs: dict[str, dict[str, float]] = field(default_factory=dict)
+    settings: dict[str, Any] = field(default_factory=dict)
+    unmeasured: tuple[str, ...] = ()
+    notes: tuple[str, ...] = ()
+    version: str = __version__
+    comparison: pd.DataFrame | None = None  # measured versus computed α, per compound & method
+    series_comparison: pd.DataFrame | None = None  # computed α + μ²/3kT versus each α_eff
+    parity: pd.DataFrame | None = None  # per-method deviation statistics
+    calibration: dict[str, Any] | None = None  # reference-compound calibration (calibration.py)
+
+    @property
+    def series(self) -> pd.DataFrame:
+        rows = [s.row() for c in self.compounds for s in c.series]
+        cols = [
+            "compound",
+            "temperature_K",
+            "n_points",
+            "alpha_eff_A3",
+            "alpha_eff_err_A3",
+            "reduced_chi2",
+        ]
+        return pd.DataFrame(rows, columns=None if rows else cols)
+
+    @property
+    def properties(self) -> pd.DataFrame:
+        return pd.DataFrame([c.row() for c in self.compounds])
+
+    @property
+    def n_failed(self) -> int:
+        return sum(c.status == "failed" for c in self.compounds)
+
+    @property
+    def exit_code(self) -> int:
+        """0 when no compound failed, 2 when every compound failed, else 1."""
+        if not self.compounds:
+            return 2
+        if self.n_failed == 0:
+            return 0
+        return 2 if self.n_failed == len(self.compounds) else 1
+
+    def summary(self) -> dict[str, Any]:
+        return {
+            "software": {"name": "polarbeam", "version": self.version},
+            "campaign": {
+                "title": self.title,
+                "source": self.source,
+                "layout": self.layout,
+                "deflector_model": self.model,
+                "stated_inputs": self.stated_inputs,
+                "settings": self.settings,
+            },
+            "compounds": [c.summary() for c in self.compounds],
+            "computed_comparison": _records(self.comparison),
+            "computed_series_comparison": _records(self.series_comparison),
+            "computed_parity": _records(self.parity),
+            "calibration": self.calibration,
+            "unmeasured_compounds": list(self.unmeasured),
+            "notes": list(self.notes),
+            "cautions": list(CAUTIONS),
+        }
+
+    def to_markdown(self) -> str:
+        from polarbeam.report.files import render_markdown
+
+        return render_markdown(self)
+
+    def to_report(self, path, *, html: bool = True, details: int | None = None) -> None:
+        """Write the whole results folder (CSV, JSON, Markdown and, unless ``html=False``,
+        ``report.html`` with ``figures/``) to ``path``; ``details``: compounds with figures."""
+        from polarbeam.report.files import write_results
+
+        write_results(self, path)
+        if html:
+            from polarbeam.report.html import write_html
+
+            write_html(self, path, details=details)
+
+    def _repr_html_(self) -> str:
+        rows = []
+        for c in self.compounds:
+            r = c.row()
+            alpha = (
+                format_value_error(r["alpha_A3"], r["alpha_err_A3"])
+                if r["alpha_A3"] is not None
+                else "—"
+            )
+            if r["dipole_D"] is not None:
+                dip = format_value_error(r["dipole_D"], r["dipole_err_D"])
+            elif r["dipole_upper_D"] is not None:
+                dip = f"&lt; {r['dipole_upper_D']:.2f}"
+            else:
+                dip = "—"
+            rows.append(
+                f"<tr><td>{html.escape(c.compound)}</td><td>{alpha}</td><td>{dip}</td>"
+                f"<td>{html.escape(c.status)}</td><td>{html.escape(c.message)}</td></tr>"
+            )
+        return (
+            f"<p><b>{html.escape(self.title)}</b> ({html.escape(self.layout)}, "
+            f"{html.escape(self.model)} deflector)</p><table><thead><tr><th>compound</th>"
+            "<th>α (Å³)</th><th>μ (D)</th><th>status</th><th>message</th></tr></thead><tbody>"
+            + "".join(rows)
+            + "</tbody></table>"
+        )
