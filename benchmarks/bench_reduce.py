@@ -33,7 +33,7 @@ PERIOD = 2.0e-7
 
 
 def make_campaign(n_series: int, scans_per_series: int, bins: int, seed: int):
-    from polarbeam.scansim import simulate_campaign
+    from polarbeam.simulation.scans import simulate_campaign
 
     rng = np.random.default_rng(seed)
     # R S S R S S ... R: n signals give n + ceil(n/2) + 1 scans.

@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from polarbeam.calibration.calibrate import calibration_campaign
+from polarbeam.simulation.calibration import calibration_campaign
 from polarbeam.constants import alpha_a3_from_si
 from polarbeam.pipeline.analysis import analyze
 

@@ -19,19 +19,19 @@ import pytest
 from typer.testing import CliRunner
 
 from polarbeam.calibration.calibrate import (
-    calibration_campaign,
     gls_log_mean,
     known_alpha_eff,
     load_reference_tables,
     reference_values,
 )
-from polarbeam.contract.campaign import load_campaign
 from polarbeam.cli.commands import app
 from polarbeam.constants import alpha_a3_from_si, alpha_si_from_a3, si_from_debye
+from polarbeam.contract.campaign import load_campaign
 from polarbeam.errors import InputError
 from polarbeam.pipeline.analysis import analyze
-from polarbeam.results.objects import variance_budget
+from polarbeam.simulation.calibration import calibration_campaign
 from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.uncertain import variance_budget
 
 runner = CliRunner()
 N_CAMPAIGNS = 100

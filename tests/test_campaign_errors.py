@@ -11,8 +11,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from typer.testing import CliRunner
 
-from polarbeam.contract.campaign import load_campaign
 from polarbeam.cli.commands import app
+from polarbeam.contract.campaign import load_campaign
 from polarbeam.errors import InputError, PolarbeamError
 from polarbeam.pipeline.analysis import analyze
 

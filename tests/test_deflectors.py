@@ -5,6 +5,7 @@ import math
 import numpy as np
 import pytest
 
+from polarbeam.errors import InputError
 from polarbeam.instrument.deflectors import (
     FieldMapDeflector,
     TwoWireDeflector,
@@ -14,7 +15,6 @@ from polarbeam.instrument.deflectors import (
     two_wire_field_factor,
     two_wire_potential,
 )
-from polarbeam.errors import InputError
 from polarbeam.instrument.layouts import TalbotLau
 
 A, Z1, Z2 = 2.0e-3, 1.6e-3, 3.4e-3

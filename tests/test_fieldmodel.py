@@ -19,14 +19,15 @@ import pytest
 from scipy import integrate
 from typer.testing import CliRunner
 
-from polarbeam.instrument import numerical as fieldmodel
-from polarbeam.instrument import fields as fs
-from polarbeam.contract.campaign import load_campaign
 from polarbeam.cli.commands import app
+from polarbeam.contract.campaign import load_campaign
 from polarbeam.errors import InputError
-from polarbeam.pipeline.analysis import analyze, build_context, coupling
-from polarbeam.results.objects import variance_budget
+from polarbeam.instrument import fields as fs
+from polarbeam.instrument import numerical as fieldmodel
+from polarbeam.instrument.deflectors import coupling
+from polarbeam.pipeline.analysis import analyze, build_context
 from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.uncertain import variance_budget
 
 runner = CliRunner()
 A, Z1, Z2 = 2.0e-3, 1.6e-3, 3.4e-3

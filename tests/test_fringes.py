@@ -45,7 +45,7 @@ from polarbeam.fringes import (
     reduce_table,
     write_phases,
 )
-from polarbeam.scansim import fringe_counts, simulate_campaign, simulate_series
+from polarbeam.simulation.scans import fringe_counts, simulate_campaign, simulate_series
 
 PERIOD = 2.0e-7
 

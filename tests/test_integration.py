@@ -14,9 +14,9 @@ import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
-from polarbeam.contract.campaign import load_campaign
 from polarbeam.cli.commands import app
 from polarbeam.constants import alpha_a3_from_si, debye_from_si
+from polarbeam.contract.campaign import load_campaign
 from polarbeam.pipeline.analysis import analyze, analyze_campaign
 from polarbeam.quantities import Measured
 

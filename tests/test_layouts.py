@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from polarbeam.instrument.deflectors import UniformDeflector, overlap
 from polarbeam.errors import InputError
+from polarbeam.instrument.deflectors import UniformDeflector, overlap
 from polarbeam.instrument.layouts import BeamProfile, TalbotLau, TimeDomain
 
 

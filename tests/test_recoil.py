@@ -33,29 +33,33 @@ from scipy import constants as sc
 from scipy import integrate, stats
 from typer.testing import CliRunner
 
-from polarbeam.contract.campaign import load_campaign
-from polarbeam.cli.commands import app
-from polarbeam.constants import AMU
-from polarbeam.errors import InputError
-from polarbeam.instrument.layouts import TalbotLau, TimeDomain
-from polarbeam.pipeline.analysis import analyze
-from polarbeam.extraction.recoil import (
-    CM2,
-    LaserTruth,
-    RecoilCompoundTruth,
+from polarbeam.beam.photon_recoil import (
     emission_factor,
-    gaussian_effective_area,
     kick_phase,
     mean_photons,
-    photon_energy,
     poisson_phasor,
-    random_recoil_campaign,
-    recoil_observables,
     recoil_phasor,
+)
+from polarbeam.cli.commands import app
+from polarbeam.constants import AMU
+from polarbeam.contract.campaign import load_campaign
+from polarbeam.errors import InputError
+from polarbeam.extraction.recoil import (
+    CM2,
+    gaussian_effective_area,
+    photon_energy,
+    recoil_observables,
     recoil_velocity,
+)
+from polarbeam.instrument.layouts import TalbotLau, TimeDomain
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.simulation.recoil import (
+    LaserTruth,
+    RecoilCompoundTruth,
+    random_recoil_campaign,
     simulate_recoil_campaign,
 )
-from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 runner = CliRunner()
 EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "recoil"
@@ -342,7 +346,7 @@ def test_area_and_energy_calibration_scale_sigma_exactly(camp):
 def test_budget_and_correlations(camp):
     res = analyze(camp)
     s = _sigmas(res)
-    from polarbeam.results.objects import variance_budget
+    from polarbeam.uncertain import variance_budget
 
     b = variance_budget(s[("mol-one", "green")])
     assert {"laser green: area", "fit statistics", "laser green: position"} <= set(b)

@@ -14,7 +14,12 @@ import pytest
 
 from polarbeam.constants import alpha_a3_from_si, debye_from_si, si_from_debye
 from polarbeam.pipeline.analysis import analyze
-from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, random_campaign, simulate_campaign
+from polarbeam.simulation.campaigns import (
+    CompoundTruth,
+    InstrumentSpec,
+    random_campaign,
+    simulate_campaign,
+)
 
 N_CAMPAIGNS = 300
 

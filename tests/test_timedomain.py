@@ -23,11 +23,11 @@ import pytest
 from scipy import constants, integrate
 from typer.testing import CliRunner
 
-from polarbeam.contract.campaign import load_campaign
 from polarbeam.cli.commands import app
 from polarbeam.constants import alpha_a3_from_si, debye_from_si, si_from_debye
-from polarbeam.instrument.deflectors import SwitchedField, overlap
+from polarbeam.contract.campaign import load_campaign
 from polarbeam.errors import InputError
+from polarbeam.instrument.deflectors import SwitchedField, overlap
 from polarbeam.instrument.layouts import TimeDomain
 from polarbeam.pipeline.analysis import analyze, build_context
 from polarbeam.simulation.campaigns import (

@@ -14,7 +14,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from polarbeam.extraction.recoil import LaserTruth, RecoilCompoundTruth, simulate_recoil_campaign
+from polarbeam.simulation.recoil import LaserTruth, RecoilCompoundTruth, simulate_recoil_campaign
 
 HERE = Path(__file__).resolve().parent
 SEED = 20261201

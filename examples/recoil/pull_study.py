@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam.pipeline.analysis import analyze
-from polarbeam.extraction.recoil import random_recoil_campaign
+from polarbeam.simulation.recoil import random_recoil_campaign
 
 
 def _line(name: str, p) -> str:

@@ -30,6 +30,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from ._util.optional import require
 from .constants import (
     ANGSTROM3_SI,
     AU_POLARIZABILITY_SI,
@@ -38,7 +39,6 @@ from .constants import (
     si_from_debye,
 )
 from .errors import InputError, RowValueError
-from ._util.optional import require
 
 __all__ = [
     "ALPHA_UNITS",

@@ -41,6 +41,7 @@ import numpy as np
 import pandas as pd
 from scipy import constants as _sc
 
+from ._util.optional import MissingExtraError, require
 from .computed import COMPUTED_COLUMNS, anisotropy, isotropic_average
 from .constants import (
     AU_POLARIZABILITY_SI,
@@ -48,7 +49,6 @@ from .constants import (
     debye_from_si,
 )
 from .errors import CompoundError, InputError
-from ._util.optional import MissingExtraError, require
 
 __all__ = [
     "DEFAULT_COST_MODELS",

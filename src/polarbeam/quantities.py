@@ -19,7 +19,7 @@ from functools import lru_cache
 
 from polarbeam.errors import QuantityError
 
-__all__ = ["Measured", "format_value_error", "parse_quantity"]
+__all__ = ["Measured", "format_value_error", "parse_quantity", "value_error_text"]
 
 
 @dataclass(frozen=True)
@@ -151,3 +151,8 @@ def format_value_error(value: float, error: float, digits: int = 2) -> str:
     exponent = math.floor(math.log10(error)) - (digits - 1)
     decimals = max(0, -exponent)
     return f"{value:.{decimals}f} ± {error:.{decimals}f}"
+
+
+def value_error_text(value: float | None, error: float | None) -> str:
+    """:func:`format_value_error`, or "—" when either number is missing."""
+    return format_value_error(value, error) if value is not None and error is not None else "—"

@@ -40,7 +40,21 @@ from uncertainties.core import AffineScalarFunc, LinearCombination, Variable
 
 from polarbeam import __version__
 from polarbeam._util.atomic import write_text_atomic
+from polarbeam._util.tables import read_table
+from polarbeam._util.text import safe_name
+from polarbeam.calibration.calibrate import calibration_required
+from polarbeam.contract.campaign import load_campaign
 from polarbeam.errors import InputError, PolarbeamError
+from polarbeam.pipeline.analysis import (
+    analyze_campaign,
+    analyze_compound,
+    build_context,
+    computed_comparison,
+    make_result,
+)
+from polarbeam.reduction import write_phases
+from polarbeam.report.files import render_terminal, write_results
+from polarbeam.report.html import compound_figure_files, detail_indices, write_html
 from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResult
 
 __all__ = [
@@ -233,8 +247,6 @@ def _file_sha(path: Path) -> str:
 
 
 def _rows_by_compound(path: Path, what: str) -> dict[str, list]:
-    from polarbeam._util.tables import read_table
-
     table = read_table(path, ("compound",), what)
     out: dict[str, list] = {}
     for line, row in zip(table.lines, table.rows, strict=True):
@@ -283,15 +295,6 @@ def compound_hashes(campaign, key: str) -> dict[str, str]:
     return out
 
 
-_UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
-
-
-def safe_name(name: str) -> str:
-    """A file name for a compound: its safe characters (≤ 60) and 10 hex digits of its hash."""
-    stem = _UNSAFE.sub("_", name).strip("._")[:60] or "compound"
-    return f"{stem}-{hashlib.sha256(name.encode('utf-8')).hexdigest()[:10]}"
-
-
 # --------------------------------------------------------------------------------------------
 # the worker side
 # --------------------------------------------------------------------------------------------
@@ -311,9 +314,6 @@ def _failed_record(name: str, message: str, input_hash: str | None) -> tuple:
 def _load_for_worker(path: str, key: str, settings: Mapping[str, Any]):
     hit = _WORKER_CACHE.get((path, key))
     if hit is None:
-        from polarbeam.contract.campaign import load_campaign
-        from polarbeam.pipeline.analysis import build_context
-
         c = load_campaign(path)
         ctx = build_context(c)
         hashes = compound_hashes(c, campaign_key(c, settings))
@@ -333,8 +333,6 @@ def _analyze_chunk(
     path: str, key: str, names: Sequence[str], settings: Mapping[str, Any]
 ) -> list[tuple]:
     """Analyse the named compounds of one campaign: [(name, input hash, record), ...]."""
-    from polarbeam.pipeline.analysis import analyze_compound
-
     try:
         c, ctx, hashes, by_name = _load_for_worker(path, key, settings)
     except Exception as exc:  # the campaign could not be rebuilt here: fail these compounds
@@ -363,8 +361,6 @@ def _analyze_chunk(
 
 def _render_chunk(items: Sequence[tuple[int, dict]]) -> list[tuple[int, dict]]:
     """Figures of recorded compounds: [(index, {kind: (svg, png)}), ...] (never raises)."""
-    from polarbeam.report.html import compound_figure_files
-
     out = []
     for i, rec in items:
         try:
@@ -664,13 +660,7 @@ def _run_campaign(
     html: bool,
     report_details: int | None,
 ) -> CampaignRun:
-    from polarbeam.contract.campaign import load_campaign
-    from polarbeam.pipeline.analysis import build_context, computed_comparison, make_result
-    from polarbeam.report.files import write_results
-
     c = load_campaign(path)
-    from polarbeam.calibration.calibrate import calibration_required
-
     if c.model == "none" or c.recoil is not None or calibration_required(c):
         # campaign-level fits (reference calibration, photon recoil) tie the compounds
         # together: analyse the campaign in one piece
@@ -681,8 +671,6 @@ def _run_campaign(
     names = [cd.name for cd in c.compounds]
     cdir = out / COMPOUND_DIR
     files = {n: cdir / f"{safe_name(n)}.json" for n in names}
-    from polarbeam.report.html import detail_indices
-
     detail = {names[i] for i in detail_indices(len(names), report_details)} if html else set()
     registry: dict = {}  # campaign-wide inputs shared by the compounds decoded here
     done: dict[str, CompoundResult] = {}
@@ -747,8 +735,6 @@ def _run_campaign(
     write_results(result, out)
     _write_phases(c, out)
     if html:
-        from polarbeam.report.html import write_html
-
         rendered: dict[int, dict] = {}
         idx = [i for i, n in enumerate(names) if n in kept and compounds[i].status != "failed"]
         if idx and not isinstance(runner, _Inline):
@@ -778,23 +764,16 @@ def _run_campaign(
 
 def _write_phases(c, out: Path) -> None:
     if c.reduction is not None:  # raw scans: the reduced phases, reusable as a shifts file
-        from polarbeam.reduction import write_phases
-
         write_phases(c.reduction, out / "phases.csv")
 
 
 def _run_whole_campaign(name, path, out, c, *, html: bool, report_details) -> CampaignRun:
     """Analyse a campaign whose compounds are coupled (calibration, recoil) in one process."""
-    from polarbeam.pipeline.analysis import analyze_campaign, computed_comparison
-    from polarbeam.report.files import write_results
-
     out.mkdir(parents=True, exist_ok=True)
     result = computed_comparison(c, analyze_campaign(c))
     write_results(result, out)
     _write_phases(c, out)
     if html:
-        from polarbeam.report.html import write_html
-
         write_html(result, out, details=report_details)
     _write_state(
         out,
@@ -1032,8 +1011,6 @@ def run_cli(
 
     Ctrl-C stops handing out work; what is done stays in ``out`` for ``--resume``.
     """
-    from polarbeam.report.files import render_terminal
-
     if dashboard and scheduler != "local":
         raise InputError("--dashboard: only with --scheduler local")
     bar = None if quiet else TerminalProgress()

@@ -50,15 +50,15 @@ import math
 from dataclasses import dataclass, replace
 from functools import lru_cache
 from pathlib import Path
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 import uncertainties
 from scipy import stats
 from uncertainties import UFloat, covariance_matrix, ufloat, umath
 
-from polarbeam._util.atomic import write_text_atomic
 from polarbeam._util.tables import Table, read_table
+from polarbeam._util.text import input_label
 from polarbeam.constants import (
     BOLTZMANN,
     alpha_a3_from_si,
@@ -66,12 +66,16 @@ from polarbeam.constants import (
     debye_from_si,
     si_from_debye,
 )
-from polarbeam.separation.debye import dipole_from_mu2
 from polarbeam.errors import CompoundError, InputError
-from polarbeam.instrument.numerical import field_factor_sensitivities
-from polarbeam.pipeline.analysis import Context, _label, analyze_compound, build_context, make_result
+from polarbeam.extraction.context import Context, build_context, field_factor_sensitivities
 from polarbeam.quantities import Measured, format_value_error
-from polarbeam.results.objects import CampaignResult, CompoundResult, variance_budget
+from polarbeam.results.objects import CompoundResult
+from polarbeam.separation.compound import separate
+from polarbeam.separation.debye import dipole_from_mu2
+from polarbeam.uncertain import variance_budget
+
+#: analyse one compound with a context: ``(compound, campaign, context) -> CompoundResult``.
+CompoundAnalysis = Callable[[Any, Any, Context], CompoundResult]
 
 __all__ = [
     "Calibration",
@@ -416,7 +420,7 @@ def _model_field_factor_u(c, ctx: Context):
     by_tag = _tag_variables(ctx.coupling_ratio)
     rel = 0.0
     for key, s in sens.items():
-        var = by_tag.get(_label(key))
+        var = by_tag.get(input_label(key))
         if var is not None:
             rel = rel + s * (var - var.nominal_value)
     return g0 * (1.0 + rel), g0
@@ -434,8 +438,17 @@ def calibration_required(c) -> bool:
     return c.settings.calibration != "off" and bool(_marked(c))
 
 
-def _first_pass(c, ctx: Context, values: dict[str, ReferenceValue], problems: dict[str, str]):
+def first_pass(
+    c,
+    ctx: Context,
+    values: dict[str, ReferenceValue],
+    problems: dict[str, str],
+    analyze_one: CompoundAnalysis = separate,
+):
     """Analyse each reference with the stated field; its known α_eff per series (ufloats).
+
+    ``analyze_one(compound, campaign, context)`` gives a compound's result (the pipeline passes
+    its own, which adds the structure cross-check).
 
     The known α_eff = α_ref + μ_ref²/(3kT) reuse the temperature variables of the compound's own
     Debye fit (found by tag), so the reference's reported α stays correlated with them.
@@ -444,7 +457,7 @@ def _first_pass(c, ctx: Context, values: dict[str, ReferenceValue], problems: di
     for cd in c.compounds:
         if cd.name not in values:
             continue
-        r1 = analyze_compound(cd, c, ctx)
+        r1 = analyze_one(cd, c, ctx)
         if r1.status == "failed":
             problems[cd.name] = r1.message
             continue
@@ -463,12 +476,12 @@ def _first_pass(c, ctx: Context, values: dict[str, ReferenceValue], problems: di
     return first, known
 
 
-def calibrate_campaign(c) -> CalibrationOutcome:
+def calibrate_campaign(c, analyze_one: CompoundAnalysis = separate) -> CalibrationOutcome:
     """Fit every reference series with the stated model, combine, and check consistency."""
     values, problems = reference_values(c)
     ctx = build_context(c)
     st = c.settings
-    first, known = _first_pass(c, ctx, values, problems)
+    first, known = first_pass(c, ctx, values, problems, analyze_one)
     per_ref, series_ratio = [], []
     for name in list(first):
         r1 = first[name]
@@ -579,7 +592,7 @@ def _compared_series(r1: CompoundResult, known, scale):
     return tuple(out), pulls
 
 
-def _reference_result(r1, ref, known, scale, st, own: ReferenceCalibration | None, mode: str):
+def reference_result(r1, ref, known, scale, st, own: ReferenceCalibration | None, mode: str):
     series, pulls = _compared_series(r1, known, scale)
     alpha = mu2 = dipole = upper = None
     if r1.method == "temperature series" and r1.alpha is not None:
@@ -657,178 +670,6 @@ def check_calibration_inputs(c) -> None:
         )
 
 
-def analyze_with_references(c) -> CampaignResult:
-    """Analyse a campaign with reference compounds (``[analysis] calibration``).
-
-    ``"auto"``: the references calibrate the coupling and every other compound is analysed with
-    it; ``"check"``: the stated field is used and the references are compared with their known
-    values.  Raises :class:`~polarbeam.errors.InputError` when a ``uniform`` deflector has no
-    ``field_factor`` and nothing can calibrate it.
-    """
-    check_calibration_inputs(c)
-    mode = c.settings.calibration
-    missing = field_factor_missing(c)
-    if mode == "auto":
-        out = calibrate_campaign(c)
-    else:  # check: references against the stated field
-        values, problems = reference_values(c)
-        ctx = build_context(c)
-        first, known = _first_pass(c, ctx, values, problems)
-        out = CalibrationOutcome(ctx, None, first, known, values, problems)
-    cal = out.calibration
-    ctx = out.context
-    notes = []
-    if cal is not None:
-        ratio = cal.scale.nominal_value / cal.scale
-        ctx = replace(
-            ctx,
-            coupling=ctx.coupling * cal.scale.nominal_value,
-            coupling_ratio=ctx.coupling_ratio * ratio,
-        )
-        notes.append(cal.note())
-        notes.extend(cal.warnings)
-    elif mode == "auto" and not missing:
-        notes.append(
-            f"calibration not possible ({out.reason}); the stated '{c.model}' field was used"
-        )
-    compounds = []
-    own = {r.compound: r for r in cal.references} if cal is not None else {}
-    for cd in c.compounds:
-        if cd.name in out.first_pass:
-            compounds.append(
-                _reference_result(
-                    out.first_pass[cd.name],
-                    out.values[cd.name],
-                    out.known[cd.name],
-                    cal.scale if cal is not None else None,
-                    c.settings,
-                    own.get(cd.name),
-                    mode,
-                )
-            )
-        elif cd.name in out.problems:
-            compounds.append(CompoundResult(cd.name, "failed", out.problems[cd.name]))
-        elif missing and cal is None:
-            compounds.append(
-                CompoundResult(
-                    cd.name,
-                    "failed",
-                    f"compound {cd.name!r}: the field factor is not calibrated: no usable "
-                    f"reference compound ({out.reason})",
-                )
-            )
-        else:
-            compounds.append(analyze_compound(cd, c, ctx))
-    result = make_result(c, tuple(compounds), ctx)
-    return replace(
-        result,
-        notes=(*result.notes, *notes),
-        calibration=cal.summary() if cal is not None else None,
-    )
-
-
 # ---------------------------------------------------------------------------------------------
 # Simulated campaigns with reference compounds
 # ---------------------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class CalibrationTruth:
-    """A simulated campaign whose field factor is known only through reference compounds."""
-
-    simulation: Any  # polarbeam.simulation.campaigns.SimulationTruth
-    references: dict[str, tuple[float, float, float, float]]  # stated α, err (Å³), μ, err (D)
-    field_factor: float  # true g (m⁻³)
-
-    @property
-    def path(self) -> Path:
-        return self.simulation.path
-
-
-def calibration_campaign(
-    out_dir: str | Path,
-    rng: np.random.Generator,
-    n_refs: int = 1,
-    *,
-    n_unknowns: int = 2,
-    layout: str | None = None,
-) -> CalibrationTruth:
-    """A randomised campaign with ``n_refs`` reference compounds among ``n_unknowns`` others.
-
-    The ``uniform`` deflector's ``field_factor`` is removed from ``campaign.toml``: the analysis
-    knows it only through the references.  The references' "published" α and μ are their true
-    values plus a draw from the stated errors, like every other stated input of the simulator.
-    """
-    from polarbeam.simulation.campaigns import (
-        CompoundTruth,
-        InstrumentSpec,
-        random_beam_conditions,
-        simulate_campaign,
-    )
-
-    layout = layout or str(rng.choice(["talbot-lau", "beam-profile"]))
-    rel = float(rng.uniform(0.002, 0.02))
-    spec = (
-        InstrumentSpec.talbot_lau("uniform", rel)
-        if layout == "talbot-lau"
-        else InstrumentSpec.beam_profile("uniform", rel)
-    )
-
-    def temps(lo, hi):
-        n = int(rng.integers(lo, hi + 1))
-        return tuple(float(t) for t in np.sort(rng.choice(np.arange(300, 801, 50), n, False)))
-
-    refs, unknowns, stated = [], [], {}
-    for i in range(n_refs):
-        polar = rng.random() < 0.5
-        comp = CompoundTruth(
-            f"reference-{i + 1}",
-            float(rng.uniform(30, 400)),
-            float(rng.uniform(5, 40)),
-            float(rng.uniform(0.5, 2.5)) if polar else 0.0,
-            temps(1, 3),
-            mass_err_u=float(rng.choice([0.0, 0.05])),
-        )
-        refs.append(comp)
-        da = comp.alpha_A3 * float(rng.uniform(0.005, 0.03))
-        dmu = 0.01 + 0.01 * comp.dipole_D if polar else 0.0
-        stated[comp.name] = (
-            comp.alpha_A3 + da * rng.standard_normal(),
-            da,
-            comp.dipole_D + dmu * rng.standard_normal() if polar else 0.0,
-            dmu,
-        )
-    for i in range(n_unknowns):
-        unknowns.append(
-            CompoundTruth(
-                f"sample-{i + 1}",
-                float(rng.uniform(60, 900)),
-                float(rng.uniform(5, 150)),
-                float(rng.uniform(0.0, 4.0)),
-                temps(1, 4),
-                mass_err_u=float(rng.choice([0.0, 0.05])),
-            )
-        )
-    sim = simulate_campaign(
-        out_dir, refs + unknowns, spec=spec, seed=rng, **random_beam_conditions(rng)
-    )
-    out = Path(out_dir)
-    toml = out / "campaign.toml"
-    text = "\n".join(
-        ln for ln in toml.read_text().splitlines() if not ln.startswith("field_factor")
-    )
-    write_text_atomic(toml, text + "\n")
-    head = (
-        "compound,mass_u,mass_err_u,smiles,reference,reference_alpha_A3,reference_alpha_err_A3,"
-        "reference_dipole_D,reference_dipole_err_D"
-    )
-    rows = [head]
-    for comp in refs + unknowns:
-        base = f"{comp.name},{comp.mass_u:.6g},{comp.mass_err_u:g},{comp.smiles}"
-        if comp.name in stated:
-            a, da, mu, dmu = stated[comp.name]
-            rows.append(f"{base},true,{a:.8g},{da:.6g},{mu:.8g},{dmu:.6g}")
-        else:
-            rows.append(f"{base},false,,,,")
-    write_text_atomic(out / "compounds.csv", "\n".join(rows) + "\n")
-    return CalibrationTruth(sim, stated, sim.instrument["deflector.field_factor"])

@@ -11,7 +11,18 @@ from pathlib import Path
 
 import typer
 
+from polarbeam import chemistry as qchem
+from polarbeam._util.atomic import write_text_atomic
+from polarbeam._util.tables import read_table
+from polarbeam.batch.run import run_cli
+from polarbeam.chemistry import estimate_table
+from polarbeam.contract.campaign import load_campaign
 from polarbeam.errors import PolarbeamError
+from polarbeam.pipeline.field import deflector_field, plot_deflector_field
+from polarbeam.planning.plan import make_plan, write_plan
+from polarbeam.reduction import write_phases
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.simulation.demo import write_demo, write_demo_scans
 
 __all__ = ["app", "main"]
 
@@ -61,8 +72,6 @@ def analyze(
     ),
 ):
     """Analyse campaigns: α_eff per series, α and μ per compound, report and budgets."""
-    from polarbeam.batch.run import run_cli
-
     try:
         code = run_cli(
             campaigns,
@@ -86,9 +95,6 @@ def reduce(
     out: Path = typer.Option(Path("phases.csv"), "--out", "-o", help="phases CSV to write"),
 ):
     """Reduce raw fringe scans to drift-corrected phases (one row per non-reference scan)."""
-    from polarbeam.contract.campaign import load_campaign
-    from polarbeam.reduction import write_phases
-
     try:
         camp = load_campaign(campaign)
         if camp.reduction is None:
@@ -114,8 +120,6 @@ def plan(
     rehearsal: bool = typer.Option(True, help="write rehearsal/ (simulated raw scans)"),
 ):
     """Plan a campaign: predicted phases, voltage ladders, expected precision, beam time."""
-    from polarbeam.planning.plan import make_plan, write_plan
-
     try:
         result = make_plan(campaign)
         write_plan(result, out, rehearsal=rehearsal and result.settings.rehearsal)
@@ -149,8 +153,6 @@ def estimate(
     temperature: float = typer.Option(300.0, help="temperature (K) of the Boltzmann average"),
 ):
     """Structure-based estimates (additive α, mass, dipoles) for a library without measurements."""
-    from polarbeam.chemistry import estimate_table
-
     try:
         counts = estimate_table(
             input,
@@ -182,12 +184,6 @@ def compute(
     d4: bool = typer.Option(False, "--d4", help="fast D4-model polarizability instead of SCF"),
 ):
     """Compute static polarizabilities and dipoles with PySCF (extra polarbeam[qc]); cached."""
-    from polarbeam._util.atomic import write_text_atomic
-
-    try:
-        from polarbeam import chemistry as qchem
-    except ImportError as exc:  # pragma: no cover - depends on the installed extras
-        _fail(PolarbeamError(f"compute needs the optional extra polarbeam[qc] ({exc})"))
     if polarizability not in ("analytic", "finite-field"):
         _fail(
             PolarbeamError(
@@ -199,8 +195,6 @@ def compute(
     path = Path(input)
     try:
         if path.suffix.lower() == ".csv":
-            from polarbeam._util.tables import read_table
-
             t = read_table(path, ("compound", "smiles"), "structures")
             jobs = [(r["compound"], r["smiles"]) for r in t.rows]
         else:
@@ -274,8 +268,6 @@ def simulate(
 
     import numpy as np
 
-    from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
-
     specs = {
         "talbot-lau": InstrumentSpec.talbot_lau,
         "beam-profile": InstrumentSpec.beam_profile,
@@ -313,8 +305,6 @@ def field(
     """Deflector field at the beam: E, ∂E/∂x, E·∂E/∂x, g, its variation and numerical error."""
     import json
 
-    from polarbeam.instrument.numerical import deflector_field, plot_deflector_field
-
     try:
         report = deflector_field(campaign, voltage)
         if plot is not None:
@@ -332,8 +322,6 @@ def demo(
     scans: bool = typer.Option(False, "--scans", help="the raw-scan variant instead"),
 ):
     """Rewrite the invented demo campaign (deterministic)."""
-    from polarbeam.simulation.demo import write_demo, write_demo_scans
-
     (write_demo_scans if scans else write_demo)(out)
     typer.echo(f"demo campaign written to {out}/campaign.toml")
 

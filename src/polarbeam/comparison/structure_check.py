@@ -17,6 +17,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
+from polarbeam import chemistry as st
 from polarbeam.constants import AMU, alpha_a3_from_si, langevin_debye_si
 from polarbeam.errors import CompoundError
 
@@ -77,8 +78,6 @@ def predict_for_compound(
     seed: int | None = None,
 ) -> StructurePrediction:
     """Structure predictions for one compound (raises :class:`CompoundError` on a bad structure)."""
-    from polarbeam import chemistry as st
-
     src = mol if mol is not None else smiles
     if src is None or (isinstance(src, str) and not src.strip()):
         raise CompoundError(f"compound {name!r}: no structure")

@@ -33,8 +33,18 @@ from typing import Any
 
 import numpy as np
 
+from polarbeam import chemistry as st
 from polarbeam._util.tables import Table, read_table
+from polarbeam.chemistry import read_sdf
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
+from polarbeam.contract.numerical import (
+    NUMERICAL_KEYS,
+    numerical_deflector,
+    numerical_error_inputs,
+    numerical_stated_inputs,
+)
+from polarbeam.contract.recoil import load_recoil
+from polarbeam.errors import CompoundError, InputError, QuantityError, RowValueError
 from polarbeam.instrument.deflectors import (
     DEFLECTOR_MODELS,
     UNCALIBRATED_FIELD_FACTOR,
@@ -43,15 +53,9 @@ from polarbeam.instrument.deflectors import (
     TwoWireDeflector,
     UniformDeflector,
 )
-from polarbeam.errors import CompoundError, InputError, QuantityError
-from polarbeam.instrument.numerical import (
-    NUMERICAL_KEYS,
-    numerical_deflector,
-    numerical_error_inputs,
-    numerical_stated_inputs,
-)
 from polarbeam.instrument.layouts import LAYOUTS, BeamProfile, TalbotLau, TimeDomain
 from polarbeam.quantities import Measured, parse_quantity
+from polarbeam.reduction import reduce_file
 
 __all__ = [
     "AnalysisSettings",
@@ -399,7 +403,9 @@ def _stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, 
         else:
             stated[f"instrument.{k}"] = quantity("instrument", k, raw)
 
-    if model == "none":  # no [deflector]: a photon-recoil-only campaign (polarbeam.extraction.recoil)
+    if (
+        model == "none"
+    ):  # no [deflector]: a photon-recoil-only campaign (polarbeam.extraction.recoil)
         return stated
     timing = layout == "time-domain"
     req_m, opt_m = _MODEL_KEYS[model]
@@ -546,8 +552,6 @@ def _structure_mass_u(name: str, row: dict, structures: dict, kind: str) -> floa
     smiles = (row.get("smiles") or "").strip()
     if rec is None and not smiles:
         return None
-    from polarbeam import chemistry as st
-
     if isinstance(rec, str):
         raise CompoundError(f"structures file: record {name!r} could not be read ({rec})")
     mol = rec if rec is not None else st.parse_smiles(smiles, name)
@@ -791,8 +795,6 @@ def load_campaign(path: str | Path) -> Campaign:
         stated = {**stated, **numerical_error_inputs(camp)}
     recoil = None
     if has_recoil:  # [[laser]] tables and recoil.csv (polarbeam.extraction.recoil)
-        from polarbeam.extraction.recoil import load_recoil
-
         recoil = load_recoil(doc, path, layout, stated, info, compounds_path.name)
 
     compounds = []
@@ -857,9 +859,6 @@ def load_campaign(path: str | Path) -> Campaign:
 
 def reduce_scans_file(path: Path, period_m: float):
     """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases."""
-    from polarbeam.errors import RowValueError
-    from polarbeam.reduction import reduce_file
-
     try:
         return reduce_file(path, period_m)
     except RowValueError as exc:  # a bad cell in a raw-scan file is reported as structural
@@ -925,8 +924,6 @@ def _load_structures(base: Path, doc: dict, fname: str) -> dict[str, Any]:
         return {}
     if not path.is_file():
         raise InputError(f"{path}: structures file not found ([data] structures)")
-    from polarbeam.chemistry import read_sdf
-
     out: dict[str, Any] = {}
     for rec in read_sdf(path):
         out.setdefault(

@@ -24,14 +24,13 @@ import numpy as np
 import uncertainties
 from scipy import linalg, stats
 
-from polarbeam.contract.campaign import SeriesData
-from polarbeam.constants import ANGSTROM3_SI
-from polarbeam.errors import FitError
 from polarbeam.beam.velocity import averaged_phasor_phase, mean_inverse_square
+from polarbeam.constants import ANGSTROM3_SI
+from polarbeam.contract.campaign import SeriesData
+from polarbeam.errors import FitError
+from polarbeam.uncertain import FIT_TAG
 
 __all__ = ["SeriesFit", "alpha_eff_with_errors", "fit_series", "observable_model"]
-
-FIT_TAG = "fit statistics"
 
 
 def observable_model(

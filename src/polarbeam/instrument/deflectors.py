@@ -300,3 +300,8 @@ def overlap(layout, deflector) -> float:
     fk, fm = layout.weight(knots) * gk, layout.weight(mids) * gm
     h = np.diff(knots)
     return float(np.sum(h / 6.0 * (fk[:-1] + 4.0 * fm + fk[1:])))
+
+
+def coupling(layout, deflector) -> float:
+    """C = (layout scale)·∫ w g ds: observable per (α_eff·V²/m) before velocity averaging."""
+    return layout.scale * overlap(layout, deflector)

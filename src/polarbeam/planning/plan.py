@@ -68,7 +68,16 @@ from typing import Any, Literal
 
 import numpy as np
 
+from polarbeam import __version__
 from polarbeam._util.atomic import write_text_atomic
+from polarbeam._util.tables import read_table
+from polarbeam._util.text import finite_or_none
+from polarbeam.beam.velocity import mean_inverse_square
+from polarbeam.comparison.structure_check import (
+    DIPOLE_REL_ERROR,
+    predict_for_compound,
+    stated_mass_check,
+)
 from polarbeam.constants import (
     AMU,
     ANGSTROM3_SI,
@@ -78,8 +87,16 @@ from polarbeam.constants import (
     langevin_debye_si,
     si_from_debye,
 )
+from polarbeam.contract import campaign as cm
+from polarbeam.contract.campaign import series_from_reduction
 from polarbeam.errors import CompoundError, InputError, QuantityError
+from polarbeam.extraction.series import fit_series, observable_model
+from polarbeam.instrument.deflectors import coupling
+from polarbeam.pipeline.analysis import build_context
 from polarbeam.quantities import Measured, parse_quantity
+from polarbeam.reduction import corrected_phase_covariance, interpolation_weights, reduce_table
+from polarbeam.separation.debye import bounded_upper_limit
+from polarbeam.simulation.scans import fringe_counts
 
 __all__ = [
     "BRANCH_Z",
@@ -166,8 +183,6 @@ class SeriesModel:
 
     def phase(self, voltages, alpha_A3: float | None = None, velocity: float | None = None):
         """(phase, modulus) at the given voltages."""
-        from polarbeam.extraction.series import observable_model
-
         v = np.atleast_1d(np.asarray(voltages, dtype=float))
         a = self.alpha_eff_A3 if alpha_A3 is None else alpha_A3
         vel = self.velocity_m_s if velocity is None else velocity
@@ -217,8 +232,6 @@ def voltage_max(
     voltage and what limits it (``"phase limit"``, ``"visibility floor"`` or ``"voltage limit"``).
     """
     a = model.alpha_eff_A3 if alpha_design_A3 is None else alpha_design_A3
-    from polarbeam.beam.velocity import mean_inverse_square
-
     inv_v2 = (
         1.0
         if model.kind == "time-domain"
@@ -319,8 +332,6 @@ def acquisition_sequence(
 
 def _fixed_covariance(seq: AcquisitionSequence, var_ref: float, diffusion: float) -> np.ndarray:
     """W R Wᵀ + random-walk bridge of the drift-corrected signal phases."""
-    from polarbeam.reduction import corrected_phase_covariance, interpolation_weights
-
     ts, tr = seq.times[~seq.is_reference], seq.times[seq.is_reference]
     w, _ = interpolation_weights(ts, tr)
     return corrected_phase_covariance(
@@ -629,8 +640,6 @@ def debye_precision(
 
 def _dipole_figures(mu2_D2: float, sigma_mu2: float, significance: float, cl: float):
     """(σ(μ) in D or NaN, expected upper limit in D or NaN) as the analysis would report them."""
-    from polarbeam.separation.debye import bounded_upper_limit
-
     if sigma_mu2 > 0 and mu2_D2 / sigma_mu2 >= significance and mu2_D2 > 0:
         return sigma_mu2 / (2.0 * math.sqrt(mu2_D2)), math.nan
     return math.nan, math.sqrt(max(bounded_upper_limit(mu2_D2, sigma_mu2, cl), 0.0))
@@ -956,8 +965,6 @@ class PlanCompound:
 
 
 def _read_plan_compounds(path: Path) -> list[PlanCompound]:
-    from polarbeam._util.tables import read_table
-
     table = read_table(path, ("compound",), "compounds")
     out: list[PlanCompound] = []
     seen: set[str] = set()
@@ -1005,8 +1012,6 @@ def load_plan(path: str | Path):
     InputError
         Structural problems, missing or bad ``[plan]`` keys (one line naming file and key).
     """
-    from polarbeam.contract import campaign as cm
-
     path = Path(path)
     fname = path.name
     doc = cm.read_toml(path)
@@ -1153,17 +1158,13 @@ class CompoundPlan:
             "dipole_pred_D": self.dipole_pred_D,
             "series": [s.summary() for s in self.series],
             "debye": None if self.debye is None else asdict(self.debye),
-            "sigma_dipole_D": _finite_or_none(self.sigma_dipole_D),
-            "dipole_limit_D": _finite_or_none(self.dipole_limit_D),
+            "sigma_dipole_D": finite_or_none(self.sigma_dipole_D),
+            "dipole_limit_D": finite_or_none(self.dipole_limit_D),
             "temperature_sets": list(self.temperature_sets),
             "beam_time_s": self.beam_time_s,
-            "beam_time_dipole_target_s": _finite_or_none(self.beam_time_dipole_target_s),
+            "beam_time_dipole_target_s": finite_or_none(self.beam_time_dipole_target_s),
             "warnings": list(self.warnings),
         }
-
-
-def _finite_or_none(x):
-    return None if x is None or not math.isfinite(x) else x
 
 
 @dataclass(frozen=True)
@@ -1233,8 +1234,6 @@ class CampaignPlan:
         return pd.DataFrame(rows)
 
     def summary(self) -> dict[str, Any]:
-        from polarbeam import __version__
-
         return {
             "software": f"polarbeam {__version__}",
             "campaign": str(self.campaign.path),
@@ -1296,8 +1295,6 @@ class _Predictor:
             )
         self.pred = None
         if has_structure and (pc.alpha_A3 is None or pc.dipole_D is None or pc.mass is None):
-            from polarbeam.comparison.structure_check import predict_for_compound
-
             conf = camp.settings.conformers if pc.dipole_D is None else 0
             self.pred = predict_for_compound(
                 pc.name,
@@ -1315,8 +1312,6 @@ class _Predictor:
         if pc.mass is not None:
             self.mass = pc.mass
             if self.pred is not None:
-                from polarbeam.comparison.structure_check import stated_mass_check
-
                 w = stated_mass_check(pc.mass.value, self.pred.mass_u, pc.name)
                 if w:
                     self.notes.append(w)
@@ -1350,8 +1345,6 @@ class _Predictor:
 
     def mu2_D2(self, t: float) -> tuple[float, float]:
         """⟨μ²⟩ (D²) and its 1σ at temperature t."""
-        from polarbeam.comparison.structure_check import DIPOLE_REL_ERROR
-
         if self.pc.dipole_D is not None:
             m, dm = self.pc.dipole_D.value, self.pc.dipole_D.error
             return m * m, 2 * m * dm
@@ -1694,8 +1687,6 @@ def _dipole_target_time(dp: DebyePrecision, mu2: float, plan: PlanSettings, ss, 
 
 def plan_campaign(camp, plan: PlanSettings, compounds: Sequence[PlanCompound]) -> CampaignPlan:
     """Plan every compound of a loaded planning campaign (see the module docstring)."""
-    from polarbeam.pipeline.analysis import build_context
-
     ctx = build_context(camp)
     budget = {}
     scale_rel = 0.0
@@ -1760,9 +1751,6 @@ def rehearsal_scans(
         velocity_true_m_s``).
     """
     import pandas as pd
-
-    from polarbeam.pipeline.analysis import coupling
-    from polarbeam.simulation.scans import fringe_counts
 
     camp, plan = cplan.campaign, cplan.settings
     period = camp.nominal().get("instrument.grating_period")
@@ -1889,11 +1877,6 @@ def rehearsal_scatter(
     scatter includes the systematic errors (compare with the total σ); without, compare with
     σ_stat.  The returned errors are the fits' statistical errors.
     """
-    from polarbeam.contract.campaign import series_from_reduction
-    from polarbeam.extraction.series import fit_series
-    from polarbeam.reduction import reduce_table
-    from polarbeam.pipeline.analysis import build_context
-
     rng = np.random.default_rng(seed)
     camp = cplan.campaign
     ctx = build_context(camp)

@@ -21,7 +21,8 @@ from typing import Any
 import numpy as np
 
 from polarbeam.constants import BOLTZMANN, alpha_a3_from_si, debye_from_si
-from polarbeam.results.objects import CampaignResult, CompoundResult, variance_budget
+from polarbeam.results.objects import CampaignResult, CompoundResult
+from polarbeam.uncertain import variance_budget
 
 __all__ = [
     "OKABE_ITO",

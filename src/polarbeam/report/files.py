@@ -13,8 +13,17 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam._util.atomic import write_text_atomic
-from polarbeam.quantities import format_value_error
-from polarbeam.results.objects import CAUTIONS, CampaignResult, variance_budget
+from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
+from polarbeam.quantities import value_error_text
+from polarbeam.report.recoil import (
+    recoil_markdown_lines,
+    recoil_terminal_lines,
+    render_recoil_only,
+    write_recoil_results,
+)
+from polarbeam.report.text import md_escape
+from polarbeam.results.objects import CAUTIONS, CampaignResult
+from polarbeam.uncertain import variance_budget
 
 __all__ = ["render_markdown", "render_terminal", "write_results"]
 
@@ -78,34 +87,20 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
     write_text_atomic(out / "report.md", render_markdown(result))
     recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
     if recoil is not None:
-        from polarbeam.extraction.recoil import write_recoil_results
-
         write_recoil_results(recoil, out)
-
-
-def _fmt(v, e) -> str:
-    return format_value_error(v, e) if v is not None and e is not None else "—"
-
-
-def _md(s: str) -> str:
-    """Escape a user string for Markdown table cells and text."""
-    out = str(s).replace("\\", "\\\\").replace("|", "\\|").replace("<", "&lt;").replace(">", "&gt;")
-    return out.replace("\n", " ")
 
 
 def render_markdown(result: CampaignResult) -> str:
     """The human-readable report: summary table, per-compound fits and budgets, cautions."""
     recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
     if recoil is not None and not result.compounds:
-        from polarbeam.extraction.recoil import render_recoil_only
-
         return render_recoil_only(result)
     obs = "phase (rad)" if result.layout in ("talbot-lau", "time-domain") else "shift (m)"
     lines = [
-        f"# {_md(result.title)}",
+        f"# {md_escape(result.title)}",
         "",
         f"polarbeam {result.version} · layout `{result.layout}` · deflector `{result.model}` · "
-        f"source `{_md(result.source)}`",
+        f"source `{md_escape(result.source)}`",
         "",
         "## Summary",
         "",
@@ -115,21 +110,21 @@ def render_markdown(result: CampaignResult) -> str:
     for c in result.compounds:
         r = c.row()
         if r["dipole_D"] is not None:
-            dip = _fmt(r["dipole_D"], r["dipole_err_D"])
+            dip = value_error_text(r["dipole_D"], r["dipole_err_D"])
         elif r["dipole_upper_D"] is not None:
             dip = f"< {r['dipole_upper_D']:.2f} (95 % CL)"
         else:
             dip = "—"
         lines.append(
-            f"| {_md(c.compound)} | {_fmt(r['alpha_A3'], r['alpha_err_A3'])} | {dip} | "
-            f"{c.status} | {_md(c.message)} |"
+            f"| {md_escape(c.compound)} | {value_error_text(r['alpha_A3'], r['alpha_err_A3'])} | {dip} | "
+            f"{c.status} | {md_escape(c.message)} |"
         )
     for note in result.notes:
-        lines += ["", f"> {_md(note)}"]
+        lines += ["", f"> {md_escape(note)}"]
     for c in result.compounds:
-        lines += ["", f"## {_md(c.compound)}", ""]
+        lines += ["", f"## {md_escape(c.compound)}", ""]
         if c.status == "failed":
-            lines += [f"**failed:** {_md(c.message)}"]
+            lines += [f"**failed:** {md_escape(c.message)}"]
             continue
         timed = result.layout == "time-domain"  # no velocity enters: no velocity column
         lines += [
@@ -140,12 +135,12 @@ def render_markdown(result: CampaignResult) -> str:
         ]
         for s in c.series:
             lines.append(
-                f"| {_fmt(s.temperature_K, s.temperature_err_K)} | {s.n_points} | "
-                f"{_fmt(s.alpha_eff_A3, s.alpha_eff_err_A3)} | {s.reduced_chi2:.2f} |"
+                f"| {value_error_text(s.temperature_K, s.temperature_err_K)} | {s.n_points} | "
+                f"{value_error_text(s.alpha_eff_A3, s.alpha_eff_err_A3)} | {s.reduced_chi2:.2f} |"
                 + (
                     ""
                     if timed
-                    else f" {_fmt(s.velocity_m_s, s.velocity_err_m_s)} ± σ "
+                    else f" {value_error_text(s.velocity_m_s, s.velocity_err_m_s)} ± σ "
                     f"{s.velocity_spread_m_s:g} |"
                 )
             )
@@ -161,9 +156,9 @@ def render_markdown(result: CampaignResult) -> str:
                 lines.append(f"| {v:g} | {y:.5g} | {e:.2g} | {m:.5g} | {(y - m) / e:+.2f} |")
         r = c.row()
         if c.alpha is not None:
-            lines += ["", f"**α = {_fmt(r['alpha_A3'], r['alpha_err_A3'])} Å³**"]
+            lines += ["", f"**α = {value_error_text(r['alpha_A3'], r['alpha_err_A3'])} Å³**"]
         if c.dipole is not None:
-            lines += [f"**μ = {_fmt(r['dipole_D'], r['dipole_err_D'])} D**"]
+            lines += [f"**μ = {value_error_text(r['dipole_D'], r['dipole_err_D'])} D**"]
         elif c.dipole_upper_si is not None:
             lines += [f"**μ < {r['dipole_upper_D']:.2f} D** (no significant dipole)"]
         target = c.alpha if c.alpha is not None else (c.series[0].alpha_eff if c.series else None)
@@ -172,13 +167,13 @@ def render_markdown(result: CampaignResult) -> str:
         if budget:
             lines += ["", f"Uncertainty budget of {what} (share of variance):", ""]
             lines += ["| input | share |", "|---|---|"]
-            lines += [f"| {_md(k)} | {v:.1%} |" for k, v in budget.items()]
+            lines += [f"| {md_escape(k)} | {v:.1%} |" for k, v in budget.items()]
         lines += _crosscheck_lines(c)
         if c.warnings:
-            lines += ["", "Warnings:", ""] + [f"- {_md(w)}" for w in c.warnings]
+            lines += ["", "Warnings:", ""] + [f"- {md_escape(w)}" for w in c.warnings]
     lines += _parity_lines(result)
     if recoil is not None:
-        lines += ["", *recoil.markdown_lines()]
+        lines += ["", *recoil_markdown_lines(recoil)]
     lines += [
         "",
         "## Notes on the method",
@@ -199,8 +194,6 @@ def _parity_lines(result: CampaignResult) -> list[str]:
     par, cmp_ = result.parity, result.comparison
     if par is None or len(par) == 0:
         return []
-    from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
-
     out = [
         "",
         "## Measured versus computed chemistry",
@@ -210,16 +203,16 @@ def _parity_lines(result: CampaignResult) -> list[str]:
     ]
     for r in par.to_dict(orient="records"):
         out.append(
-            f"| {_md(r['method'])} | {r['n_compounds']} | {r['mean_signed_dev_A3']:+.2f} | "
+            f"| {md_escape(r['method'])} | {r['n_compounds']} | {r['mean_signed_dev_A3']:+.2f} | "
             f"{r['mean_signed_dev_pct']:+.1f} | {r['mean_abs_dev_A3']:.2f} | "
-            f"{r['mean_abs_dev_pct']:.1f} | {_md(r['verdict'])} |"
+            f"{r['mean_abs_dev_pct']:.1f} | {md_escape(r['verdict'])} |"
         )
     out += [
         "",
         "Deviations in this table are computed − measured. In comparison.csv, alpha_diff_A3 is "
         "measured − computed and its error is the experimental one only.",
         "",
-        f"> {_md(ELECTRONIC_VS_VIBRATIONAL_NOTE)}",
+        f"> {md_escape(ELECTRONIC_VS_VIBRATIONAL_NOTE)}",
     ]
     if cmp_ is not None and len(cmp_):
         out += [
@@ -229,8 +222,8 @@ def _parity_lines(result: CampaignResult) -> list[str]:
         ]
         for r in cmp_.to_dict(orient="records"):
             out.append(
-                f"| {_md(r['compound'])} | {_md(r['method'])} | {r['alpha_computed_A3']:.2f} | "
-                f"{_fmt(r['alpha_measured_A3'], r['alpha_measured_err_A3'])} | "
+                f"| {md_escape(r['compound'])} | {md_escape(r['method'])} | {r['alpha_computed_A3']:.2f} | "
+                f"{value_error_text(r['alpha_measured_A3'], r['alpha_measured_err_A3'])} | "
                 f"{r['alpha_diff_A3']:+.2f} |"
             )
     return out
@@ -240,10 +233,10 @@ def _crosscheck_lines(c) -> list[str]:
     x = c.extra
     if "verdict" not in x:
         note = x.get("crosscheck")
-        return ["", f"Structure cross-check: {_md(note)}"] if note else []
+        return ["", f"Structure cross-check: {md_escape(note)}"] if note else []
     out = [
         "",
-        f"Structure cross-check: **{_md(x['verdict'])}**",
+        f"Structure cross-check: **{md_escape(x['verdict'])}**",
         "",
         "| additive scheme | α (Å³) |",
         "|---|---|",
@@ -251,7 +244,9 @@ def _crosscheck_lines(c) -> list[str]:
     for k in ("ahp", "ahc", "bs", "llmr", "d4"):
         if x.get(f"alpha_{k}_A3") is not None:
             out.append(f"| {k} | {x[f'alpha_{k}_A3']:.2f} |")
-    out.append(f"| default | {_fmt(x['alpha_additive_A3'], x['alpha_additive_err_A3'])} |")
+    out.append(
+        f"| default | {value_error_text(x['alpha_additive_A3'], x['alpha_additive_err_A3'])} |"
+    )
     if x.get("alpha_z") is not None and math.isfinite(x["alpha_z"]):
         out += ["", f"measured α − additive: z = {x['alpha_z']:+.1f}"]
     if x.get("dipole_predicted_D") is not None:
@@ -266,8 +261,8 @@ def _crosscheck_lines(c) -> list[str]:
         for s in rows:
             e = s.extra
             out.append(
-                f"| {s.temperature_K:g} | {_fmt(s.alpha_eff_A3, s.alpha_eff_err_A3)} | "
-                f"{_fmt(e['alpha_eff_pred_A3'], e['alpha_eff_pred_err_A3'])} | "
+                f"| {s.temperature_K:g} | {value_error_text(s.alpha_eff_A3, s.alpha_eff_err_A3)} | "
+                f"{value_error_text(e['alpha_eff_pred_A3'], e['alpha_eff_pred_err_A3'])} | "
                 f"{e['alpha_eff_z']:+.1f} |"
             )
     return out
@@ -277,14 +272,14 @@ def render_terminal(result: CampaignResult) -> str:
     """A compact fixed-width table for the terminal."""
     recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
     if recoil is not None and not result.compounds:
-        return "\n".join([result.title, *recoil.terminal_lines()])
+        return "\n".join([result.title, *recoil_terminal_lines(recoil)])
     head = f"{'compound':<24} {'α (Å³)':>18} {'μ (D)':>16}  status"
     out = [result.title, head, "-" * len(head)]
     for c in result.compounds:
         r = c.row()
-        a = _fmt(r["alpha_A3"], r["alpha_err_A3"])
+        a = value_error_text(r["alpha_A3"], r["alpha_err_A3"])
         if r["dipole_D"] is not None:
-            d = _fmt(r["dipole_D"], r["dipole_err_D"])
+            d = value_error_text(r["dipole_D"], r["dipole_err_D"])
         elif r["dipole_upper_D"] is not None:
             d = f"< {r['dipole_upper_D']:.2f}"
         else:
@@ -292,5 +287,5 @@ def render_terminal(result: CampaignResult) -> str:
         name = c.compound if len(c.compound) <= 24 else c.compound[:23] + "…"
         out.append(f"{name:<24} {a:>18} {d:>16}  {c.status}")
     if recoil is not None:
-        out += ["", *recoil.terminal_lines()]
+        out += ["", *recoil_terminal_lines(recoil)]
     return "\n".join(out)

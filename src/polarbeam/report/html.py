@@ -18,9 +18,19 @@ from collections.abc import Mapping
 from pathlib import Path
 
 from polarbeam._util.atomic import write_bytes_atomic, write_text_atomic
+from polarbeam._util.text import safe_name
 from polarbeam.constants import alpha_a3_from_si, debye_from_si
 from polarbeam.quantities import format_value_error
-from polarbeam.results.objects import CAUTIONS, CampaignResult, CompoundResult, variance_budget
+from polarbeam.report.figures import (
+    compound_figures,
+    have_matplotlib,
+    parity_figure,
+    predictions,
+    to_png,
+    to_svg,
+)
+from polarbeam.results.objects import CAUTIONS, CampaignResult, CompoundResult
+from polarbeam.uncertain import variance_budget
 
 __all__ = [
     "DEFAULT_DETAILS",
@@ -245,8 +255,6 @@ def _budget_table(c: CompoundResult) -> str:
 
 
 def _predictions_table(c: CompoundResult) -> str:
-    from polarbeam.report.figures import predictions
-
     pred = predictions(c)
     rows = []
     for kind, unit in (("alpha", "Å³"), ("dipole", "D")):
@@ -307,8 +315,6 @@ def detail_indices(n_compounds: int, details: int | None) -> list[int]:
 
 def compound_figure_files(c: CompoundResult) -> dict[str, tuple[str, bytes]]:
     """{kind: (SVG text, PNG bytes)} of one compound's figures ({} without matplotlib)."""
-    from polarbeam.report.figures import compound_figures, have_matplotlib, to_png, to_svg
-
     if not have_matplotlib() or c.status == "failed":
         return {}
     out = {}
@@ -341,8 +347,6 @@ def render_html(
     written
         When given, the names of the files written to ``figure_dir`` are added to it.
     """
-    from polarbeam.report.figures import have_matplotlib, parity_figure, to_png, to_svg
-
     plots = have_matplotlib()
     fdir = Path(figure_dir) if figure_dir is not None else None
     rel = fdir.name if fdir is not None else None
@@ -362,8 +366,6 @@ def render_html(
         svg, png = to_svg(fig), (to_png(fig) if fdir is not None else b"")
         fig.clear()
         return place(svg, png, stem)
-
-    from polarbeam.batch.run import safe_name
 
     idx = detail_indices(len(result.compounds), details)
     counts = {s: sum(c.status == s for c in result.compounds) for s in ("ok", "warning", "failed")}

@@ -15,10 +15,11 @@ import numpy as np
 import pandas as pd
 from uncertainties import UFloat
 
+from polarbeam._util.text import finite_or_none
 from polarbeam import __version__
 from polarbeam.constants import alpha_a3_from_si, alpha_au_from_si, debye_from_si
-from polarbeam.extraction.series import FIT_TAG
 from polarbeam.quantities import format_value_error
+from polarbeam.uncertain import variance_budget
 
 __all__ = [
     "CampaignResult",
@@ -28,23 +29,6 @@ __all__ = [
 ]
 
 STATUS = ("ok", "warning", "failed")  # reference compounds: extra["role"] == "reference"
-
-
-def variance_budget(value: UFloat | None) -> dict[str, float]:
-    """Share of each stated input in the variance of ``value`` (shares add up to 1).
-
-    Components of the fit covariance (internal variables of
-    :func:`uncertainties.correlated_values`) are pooled as one ``fit statistics`` entry.
-    """
-    if value is None or not isinstance(value, UFloat) or value.std_dev == 0:
-        return {}
-    total = value.std_dev**2
-    out: dict[str, float] = {}
-    for var, sigma in value.error_components().items():
-        tag = var.tag or "unlabelled"
-        label = FIT_TAG if tag.startswith(FIT_TAG) else tag
-        out[label] = out.get(label, 0.0) + sigma * sigma / total
-    return dict(sorted(out.items(), key=lambda kv: -kv[1]))
 
 
 def _alpha_block(u: UFloat | None) -> dict[str, float | None]:
@@ -60,13 +44,6 @@ def _alpha_block(u: UFloat | None) -> dict[str, float | None]:
         "err_SI": s,
         "unit_SI": "C m^2/V",
     }
-
-
-def _num(x):
-    if x is None:
-        return None
-    x = float(x)
-    return x if math.isfinite(x) else None
 
 
 @dataclass(frozen=True)
@@ -151,14 +128,14 @@ class SeriesResult:
             "temperature_K": self.temperature_K,
             "temperature_err_K": self.temperature_err_K,
             "n_points": self.n_points,
-            "relative_visibility": None if vis is None else [_num(v) for v in vis],
-            "relative_visibility_err": None if verr is None else [_num(v) for v in verr],
+            "relative_visibility": None if vis is None else [finite_or_none(v) for v in vis],
+            "relative_visibility_err": None if verr is None else [finite_or_none(v) for v in verr],
             "alpha_eff": _alpha_block(self.alpha_eff),
             "offset": self.offset,
             "chi2": self.chi2,
             "ndof": self.ndof,
-            "reduced_chi2": _num(self.reduced_chi2),
-            "p_value": _num(self.p_value),
+            "reduced_chi2": finite_or_none(self.reduced_chi2),
+            "p_value": finite_or_none(self.p_value),
             "error_scale": self.error_scale,
             "velocity_m_s": self.velocity_m_s,
             "velocity_err_m_s": self.velocity_err_m_s,
@@ -178,7 +155,7 @@ class SeriesResult:
             ],
             "budget": variance_budget(self.alpha_eff),
             "warnings": list(self.warnings),
-            **{k: _num(v) if isinstance(v, float) else v for k, v in self.extra.items()},
+            **{k: finite_or_none(v) if isinstance(v, float) else v for k, v in self.extra.items()},
         }
 
 
@@ -257,7 +234,7 @@ class CompoundResult:
                 if self.mu2 is not None
                 else None
             ),
-            "debye_fit": {"chi2": _num(self.debye_chi2), "ndof": self.debye_ndof},
+            "debye_fit": {"chi2": finite_or_none(self.debye_chi2), "ndof": self.debye_ndof},
             "alpha_eff_correlation": _correlation(self.series),
             "series": [s.summary() for s in self.series],
             "warnings": list(self.warnings),
@@ -269,7 +246,7 @@ def _records(df) -> list[dict[str, Any]] | None:
     if df is None or len(df) == 0:
         return None
     return [
-        {k: _num(v) if isinstance(v, float) else v for k, v in r.items()}
+        {k: finite_or_none(v) if isinstance(v, float) else v for k, v in r.items()}
         for r in df.to_dict(orient="records")
     ]
 
@@ -365,22 +342,6 @@ class CampaignResult:
             "notes": list(self.notes),
             "cautions": list(CAUTIONS),
         }
-
-    def to_markdown(self) -> str:
-        from polarbeam.report.files import render_markdown
-
-        return render_markdown(self)
-
-    def to_report(self, path, *, html: bool = True, details: int | None = None) -> None:
-        """Write the whole results folder (CSV, JSON, Markdown and, unless ``html=False``,
-        ``report.html`` with ``figures/``) to ``path``; ``details``: compounds with figures."""
-        from polarbeam.report.files import write_results
-
-        write_results(self, path)
-        if html:
-            from polarbeam.report.html import write_html
-
-            write_html(self, path, details=details)
 
     def _repr_html_(self) -> str:
         rows = []

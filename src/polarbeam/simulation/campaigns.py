@@ -18,16 +18,17 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam._util.atomic import write_text_atomic
-from polarbeam.contract.campaign import build_layout
 from polarbeam.constants import AMU, alpha_si_from_a3, langevin_debye_si, si_from_debye
+from polarbeam.contract.campaign import build_layout
+from polarbeam.extraction.series import observable_model
 from polarbeam.instrument.deflectors import (
     FieldMapDeflector,
     SwitchedField,
     TwoWireDeflector,
     UniformDeflector,
+    coupling,
 )
-from polarbeam.extraction.series import observable_model
-from polarbeam.pipeline.analysis import coupling
+from polarbeam.simulation import scans as scansim
 
 __all__ = [
     "CompoundTruth",
@@ -436,8 +437,6 @@ def simulate_scan_campaign(
     analysis (velocity-averaged phasor at the true instrument and velocity).
     """
     import pandas as pd
-
-    from polarbeam.simulation import scans as scansim
 
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     spec = spec or InstrumentSpec.talbot_lau()

@@ -11,7 +11,12 @@ from __future__ import annotations
 from pathlib import Path
 
 from polarbeam._util.atomic import write_text_atomic
-from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
+from polarbeam.simulation.campaigns import (
+    CompoundTruth,
+    InstrumentSpec,
+    simulate_campaign,
+    simulate_scan_campaign,
+)
 
 __all__ = ["DEMO_COMPOUNDS", "DEMO_COMPUTED", "write_demo", "write_demo_scans"]
 
@@ -70,8 +75,6 @@ def write_demo(out_dir: str | Path = "examples/demo", seed: int = 2027) -> Path:
 
 def write_demo_scans(out_dir: str | Path = "examples/demo_scans", seed: int = 2028) -> Path:
     """The raw-scan variant of the demo: grating scans with interleaved references."""
-    from polarbeam.simulation.campaigns import simulate_scan_campaign
-
     temps = (360.0, 480.0, 600.0)
     comps = [
         CompoundTruth(c.name, c.mass_u, c.alpha_A3, c.dipole_D, temps, c.smiles, c.mass_err_u)

@@ -1,0 +1,107 @@
+"""TODO docstring."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from uncertainties import ufloat
+
+from polarbeam._util.text import input_label
+from polarbeam.contract.campaign import Campaign
+from polarbeam.errors import InputError
+from polarbeam.instrument.deflectors import coupling
+
+
+@dataclass(frozen=True)
+class Context:
+    """Campaign-wide pieces shared by every compound: nominal set-up and uncertain coupling."""
+
+    layout: object
+    deflector: object
+    coupling: float
+    coupling_ratio: object  # C_nominal / C as an uncertain number
+    sensitivities: dict[str, float]  # ∂ln C/∂p per stated input
+    field_per_volt: float | None
+
+
+def build_context(c: Campaign) -> Context:
+    """Nominal layout and deflector, and C with every stated input attached (tagged)."""
+    layout, deflector = c.build()
+    c0 = coupling(layout, deflector)
+    if not (math.isfinite(c0) and c0 > 0) and c.layout == "time-domain":
+        a, b = (t - layout.t1 for t in deflector.span)
+        raise InputError(
+            f"{c.path.name} [deflector] field_on/field_duration: the switched field "
+            f"[{a * 1e6:.6g}, {b * 1e6:.6g}] us (from the first pulse) does not overlap the pulse "
+            f"sequence [0, {(layout.t3 - layout.t1) * 1e6:.6g}] us; expected a field window inside "
+            "it, so no phase can be produced"
+        )
+    if not (math.isfinite(c0) and c0 > 0):
+        raise InputError(
+            f"{c.path.name}: the deflector does not overlap the flight layout (coupling {c0!r}); "
+            "check [deflector] entrance/length (or field_on) against the grating or detector "
+            "positions"
+        )
+    nominal = c.nominal()
+    sens: dict[str, float] = {}
+    shift = 0.0
+    for key, m in c.stated.items():
+        if m.error <= 0:
+            continue
+        h = max(m.error * 1e-3, abs(m.value) * 1e-9, 1e-300)
+        vals = []
+        for sgn in (+1, -1):
+            v = dict(nominal)
+            v[key] = m.value + sgn * h
+            try:
+                vals.append(coupling(*c.build(v)))
+            except InputError:
+                vals.append(None)
+        if vals[0] is not None and vals[1] is not None:
+            d = (vals[0] - vals[1]) / (2 * h)
+        elif vals[0] is not None:
+            d = (vals[0] - c0) / h
+        elif vals[1] is not None:
+            d = (c0 - vals[1]) / h
+        else:
+            continue
+        sens[key] = d / c0
+        u = ufloat(m.value, m.error, tag=input_label(key))
+        shift = shift + sens[key] * (u - m.value)
+    ratio = 1.0 / (1.0 + shift)
+    fpv = getattr(deflector, "field_per_volt", None)
+    return Context(layout, deflector, c0, ratio, sens, fpv)
+
+
+def field_factor_sensitivities(c) -> tuple[float, dict[str, float]]:
+    """Nominal g of the campaign's deflector and ∂ln g/∂p for every stated input with an error.
+
+    Central differences of the model, as :func:`polarbeam.pipeline.analysis.build_context` does for the
+    coupling (for the numerical model they act on its first-order expansion, so they are exact).
+    """
+    _lay, d0 = c.build()
+    g0 = float(d0.field_factor)
+    nominal = c.nominal()
+    sens = {}
+    for key, m in c.stated.items():
+        if m.error <= 0:
+            continue
+        h = max(m.error * 1e-3, abs(m.value) * 1e-9, 1e-300)
+        vals = []
+        for sgn in (+1, -1):
+            try:
+                vals.append(float(c.build({**nominal, key: m.value + sgn * h})[1].field_factor))
+            except InputError:
+                vals.append(None)
+        if vals[0] is not None and vals[1] is not None:
+            d = (vals[0] - vals[1]) / (2 * h)
+        elif vals[0] is not None:
+            d = (vals[0] - g0) / h
+        elif vals[1] is not None:
+            d = (g0 - vals[1]) / h
+        else:
+            continue
+        if d != 0:
+            sens[key] = d / g0
+    return g0, sens

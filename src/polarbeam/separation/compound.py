@@ -1,0 +1,219 @@
+"""One compound: α_eff of every series (extraction), then α and ⟨μ²⟩ from the temperature series.
+
+:func:`separate` never raises for bad data: a :class:`~polarbeam.errors.CompoundError` or a
+numerical failure marks only that compound ``failed``. The structure cross-check is not done here
+(it belongs to :mod:`polarbeam.comparison`); the pipeline adds it.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from uncertainties import ufloat
+
+from polarbeam.constants import AMU, BOLTZMANN, alpha_a3_from_si, debye_from_si
+from polarbeam.contract.campaign import Campaign, CompoundData
+from polarbeam.errors import CompoundError
+from polarbeam.extraction.context import Context
+from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
+from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResult
+from polarbeam.separation.debye import debye_fit, dipole_from_known_alpha, dipole_from_mu2
+
+
+def _failed(cd: CompoundData, message: str, mass_u=None) -> CompoundResult:
+    return CompoundResult(cd.name, "failed", message, mass_u=mass_u)
+
+
+def separate(cd: CompoundData, c: Campaign, ctx: Context) -> CompoundResult:
+    """α_eff per series, then α and μ for one compound; never raises for bad data."""
+    if cd.problem:
+        return _failed(cd, cd.problem)
+    if cd.mass is None:
+        return _failed(cd, f"compound {cd.name!r}: no mass")
+    mass_u = cd.mass.value / AMU
+    try:
+        return _separate(cd, c, ctx, mass_u)
+    except CompoundError as exc:
+        return _failed(cd, str(exc), mass_u)
+    except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
+        return _failed(cd, f"compound {cd.name!r}: numerical failure ({exc})", mass_u)
+
+
+def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> CompoundResult:
+    st = c.settings
+    warnings: list[str] = list(cd.notes)
+    mass_ratio = (
+        ufloat(1.0, cd.mass.error / cd.mass.value, tag=f"mass: {cd.name}")
+        if cd.mass.error > 0
+        else 1.0
+    )
+    results: list[SeriesResult] = []
+    temps = []
+    for s in cd.series:
+        fit = fit_series(
+            s,
+            ctx.coupling,
+            cd.mass.value,
+            c.layout,
+            fit_offset=st.fit_offset,
+            nodes=st.velocity_nodes,
+            scale_errors=st.scale_errors,
+        )
+        vel_u = (
+            ufloat(s.velocity.value, s.velocity.error, tag=f"velocity: {s.label}")
+            if s.velocity.error > 0 and c.layout != "time-domain"
+            else s.velocity.value
+        )
+        a_eff, _ = alpha_eff_with_errors(fit, s.label, ctx.coupling_ratio, mass_ratio, vel_u)
+        sw = []
+        if fit.ndof > 0 and fit.p_value < 0.01:
+            sw.append(
+                f"{s.label}: reduced χ² = {fit.reduced_chi2:.2f} (p = {fit.p_value:.1e}); "
+                "the stated point errors may be too small"
+            )
+        cmin = float(np.min(fit.modulus))
+        if cmin < 0.3:
+            sw.append(
+                f"{s.label}: the velocity spread washes the fringe out to {cmin:.0%} contrast at "
+                "the largest voltage; the phase there is poorly defined"
+            )
+        warnings.extend(sw)
+        results.append(
+            SeriesResult(
+                compound=cd.name,
+                temperature_K=s.temperature.value,
+                temperature_err_K=s.temperature.error,
+                observable=c.observable,
+                voltages=s.voltages,
+                values=s.values,
+                errors=s.errors,
+                model=fit.model,
+                modulus=fit.modulus,
+                alpha_eff=a_eff,
+                offset=fit.offset,
+                chi2=fit.chi2,
+                ndof=fit.ndof,
+                p_value=fit.p_value,
+                # the time-domain layout reads no velocities: NaN (null in JSON, blank in CSV)
+                velocity_m_s=math.nan if c.layout == "time-domain" else s.velocity.value,
+                velocity_err_m_s=math.nan if c.layout == "time-domain" else s.velocity.error,
+                velocity_spread_m_s=(
+                    math.nan if c.layout == "time-domain" else float(np.mean(s.spreads))
+                ),
+                error_scale=fit.error_scale,
+                warnings=tuple(sw),
+                visibility=s.visibility,
+                visibility_err=s.visibility_err,
+            )
+        )
+        temps.append(
+            ufloat(s.temperature.value, s.temperature.error, tag=f"temperature: {s.label}")
+            if s.temperature.error > 0
+            else s.temperature.value
+        )
+    if not results:
+        raise CompoundError(f"compound {cd.name!r}: no series to analyse")
+
+    alpha = dipole = mu2 = upper = None
+    chi2 = ndof = None
+    method = "none"
+    messages: list[str] = []
+    if len(results) >= 2:
+        fit = debye_fit([r.alpha_eff for r in results], temps)
+        alpha, mu2, chi2, ndof = fit.alpha, fit.mu2, fit.chi2, fit.ndof
+        method = "temperature series"
+        if len(results) == 2:
+            messages.append("two temperatures: α and μ determined exactly, no consistency check")
+        elif fit.p_value < 0.01:
+            warnings.append(
+                f"Debye fit χ² = {fit.chi2:.1f} for {fit.ndof} dof (p = {fit.p_value:.1e}): "
+                "α_eff does not follow α + ⟨μ²⟩/3kT (conformers, clusters or drifting systematics?)"
+            )
+    elif cd.alpha_known is not None:
+        r = results[0]
+        known = ufloat(cd.alpha_known.value, cd.alpha_known.error, tag=f"known α: {cd.name}")
+        mu2 = dipole_from_known_alpha(r.alpha_eff, temps[0], known)
+        method = "known alpha"
+        messages.append("single temperature: μ from α_eff minus the stated alpha_known_A3")
+    else:
+        warnings.append(
+            "single source temperature: α and μ cannot be separated (α_eff is in series.csv); "
+            "measure at more temperatures or give alpha_known_A3"
+        )
+    if mu2 is not None:
+        dipole, upper = dipole_from_mu2(mu2, st.dipole_significance, st.upper_limit_cl)
+        if upper is not None:
+            messages.append(
+                f"no significant dipole: μ < {debye_from_si(upper):.2f} D "
+                f"({st.upper_limit_cl:.0%} CL)"
+            )
+    if alpha is not None and alpha.nominal_value < 0:
+        warnings.append(
+            f"intercept α = {alpha_a3_from_si(alpha.nominal_value):.1f} Å³ is negative: "
+            "check the temperature range and the systematics"
+        )
+    # orientation: the Langevin–Debye (high-T, weak-field) limit needs μE/kT ≪ 1
+    mu_for_check = dipole.nominal_value if dipole is not None else (upper or 0.0)
+    if ctx.field_per_volt and mu_for_check > 0:
+        vmax = max(float(np.max(np.abs(r.voltages))) for r in results)
+        tmin = min(r.temperature_K for r in results)
+        ratio = mu_for_check * ctx.field_per_volt * vmax / (BOLTZMANN * tmin)
+        if ratio > st.orientation_warning:
+            warnings.append(
+                f"μE/kT = {ratio:.2f} at {vmax:g} V and {tmin:g} K: the weak-field "
+                "Langevin–Debye limit is not well satisfied"
+            )
+    status = "warning" if warnings else "ok"
+    message = "; ".join(messages + warnings) or "ok"
+    return CompoundResult(
+        compound=cd.name,
+        status=status,
+        message=message,
+        mass_u=mass_u,
+        series=tuple(results),
+        alpha=alpha,
+        dipole=dipole,
+        dipole_upper_si=upper,
+        mu2=mu2,
+        method=method,
+        debye_chi2=chi2,
+        debye_ndof=ndof,
+        warnings=tuple(warnings),
+    )
+
+
+def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
+    stated = {
+        k: {"value": m.value, "error": m.error, "dlnC_dp": ctx.sensitivities.get(k)}
+        for k, m in c.stated.items()
+    }
+    notes = []
+    if c.layout == "time-domain":
+        notes.append(
+            "time-domain layout: the fringe shift does not depend on velocity; "
+            + (
+                f"the velocity columns of shifts.csv ({', '.join(c.ignored_columns)}) were ignored"
+                if c.ignored_columns
+                else "no velocity columns needed (none were given)"
+            )
+        )
+    if c.unmeasured:
+        notes.append(
+            f"{len(c.unmeasured)} compound(s) listed but not measured: "
+            + ", ".join(c.unmeasured[:20])
+            + ("…" if len(c.unmeasured) > 20 else "")
+        )
+    from dataclasses import asdict
+
+    return CampaignResult(
+        title=c.title,
+        source=str(c.path),
+        layout=c.layout,
+        model=c.model,
+        compounds=compounds,
+        stated_inputs=stated,
+        settings=asdict(c.settings),
+        unmeasured=c.unmeasured,
+        notes=tuple(notes),
+    )

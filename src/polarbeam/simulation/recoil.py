@@ -1,0 +1,337 @@
+"""TODO docstring."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from polarbeam.beam.photon_recoil import (
+    CM2,
+    gaussian_effective_area,
+    photon_energy,
+    recoil_observables,
+    recoil_velocity,
+)
+from polarbeam.constants import AMU
+from polarbeam.contract.campaign import build_layout
+from polarbeam.contract.recoil import FLUORESCENCE_FIT, RECOIL_COLUMNS
+from polarbeam.simulation.campaigns import InstrumentSpec
+
+
+@dataclass(frozen=True)
+class LaserTruth:
+    """A simulated laser: nominal (stated) values with their 1σ errors, SI units.
+
+    ``position`` is z_L in metres (spatial layouts) or the time after the first pulse in
+    seconds (time domain).  Give ``area`` (top hat) or ``waist`` (Gaussian).
+    """
+
+    name: str
+    wavelength: float
+    position: float
+    position_err: float = 0.0
+    area: float | None = None
+    area_err: float = 0.0
+    waist: float | None = None
+    waist_err: float = 0.0
+    beam_offset: float = 0.0
+    beam_offset_err: float = 0.0
+    direction: int = 1
+    energy_scale_err: float = 0.0
+
+
+@dataclass(frozen=True)
+class RecoilCompoundTruth:
+    """A simulated compound: true cross-section per laser (cm²) and re-emission."""
+
+    name: str
+    mass_u: float
+    cross_sections_cm2: dict[str, float]
+    fluorescence_yield: float = 0.0
+    fluorescence_yield_err: float = 0.0
+    fit_yield: bool = False
+    emission_wavelength_nm: float | None = None
+    mass_err_u: float = 0.0
+    temperatures_K: tuple[float, ...] = (500.0,)
+
+
+@dataclass(frozen=True)
+class RecoilSimulationTruth:
+    """What the simulator put in."""
+
+    instrument: dict[str, float]
+    lasers: dict[str, dict[str, float]]
+    compounds: dict[str, RecoilCompoundTruth]
+    path: Path
+
+
+def _instrument_inputs(layout: str) -> dict[str, tuple[float, float, str]]:
+    spec = InstrumentSpec.talbot_lau() if layout == "talbot-lau" else InstrumentSpec.time_domain()
+    return {k: v for k, v in spec.inputs.items() if k.startswith("instrument.")}
+
+
+def _q(value: float, err: float, unit: str) -> str:
+    s = _UNITS[unit]
+    u = f" {unit}" if unit else ""
+    if err > 0:
+        return f"{value / s:.10g} ± {err / s:.4g}{u}"
+    return f"{value / s:.10g}{u}"
+
+
+def simulate_recoil_campaign(
+    out_dir: str | Path,
+    compounds: Sequence[RecoilCompoundTruth],
+    lasers: Sequence[LaserTruth],
+    *,
+    layout: str = "talbot-lau",
+    seed: int | np.random.Generator = 0,
+    velocity_m_s: float = 180.0,
+    velocity_err_frac: float = 0.005,
+    spread_frac: float = 0.08,
+    n_energies: int = 8,
+    max_photons: float = 2.0,
+    phase_noise: float = 0.02,
+    visibility_noise: float = 0.01,
+    title: str = "simulated recoil campaign",
+    nodes: int = 96,
+) -> RecoilSimulationTruth:
+    """Write ``campaign.toml``, ``recoil.csv`` and ``compounds.csv`` into ``out_dir``.
+
+    Every stated input (grating geometry, laser position, area or waist and offset, pulse-energy
+    calibration, mass, velocity calibration, fluorescence yield) is the truth plus a draw from
+    its stated error.  The pulse energies of each compound and laser run up to the energy giving
+    ``max_photons`` absorbed photons on average.  The velocity average uses ``nodes`` quadrature
+    nodes (twice the analysis default, so the round trip also checks the quadrature).
+    """
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    inst = _instrument_inputs(layout)
+    true_inst = {k: v + e * rng.standard_normal() for k, (v, e, _) in inst.items()}
+    layout_t = build_layout(layout, true_inst)
+    t0 = true_inst["instrument.pulse_times[0]"] if layout == "time-domain" else 0.0
+    true_lasers: dict[str, dict[str, float]] = {}
+    for la in lasers:
+        t = {
+            "position": la.position + la.position_err * rng.standard_normal(),
+            "energy_scale": 1.0 + la.energy_scale_err * rng.standard_normal(),
+        }
+        if la.area is not None:
+            t["area"] = la.area + la.area_err * rng.standard_normal()
+        else:
+            t["waist"] = la.waist + la.waist_err * rng.standard_normal()
+            t["beam_offset"] = la.beam_offset + la.beam_offset_err * rng.standard_normal()
+            t["area"] = float(gaussian_effective_area(t["waist"], t["beam_offset"]))
+        true_lasers[la.name] = t
+    rows = []
+    for comp in compounds:
+        m_true = comp.mass_u * AMU
+        q_true = comp.fluorescence_yield
+        for la in lasers:
+            if la.name not in comp.cross_sections_cm2:
+                continue
+            tl = true_lasers[la.name]
+            sigma = comp.cross_sections_cm2[la.name] * CM2
+            w = float(layout_t.weight(t0 + tl["position"]))
+            k = la.direction * layout_t.scale * float(recoil_velocity(la.wavelength, m_true)) * w
+            lam_e = (
+                comp.emission_wavelength_nm * 1e-9 if comp.emission_wavelength_nm else la.wavelength
+            )
+            ke = layout_t.scale * float(recoil_velocity(lam_e, m_true)) * w
+            per_e_true = (
+                sigma * tl["energy_scale"] / (tl["area"] * float(photon_energy(la.wavelength)))
+            )
+            e_max = max_photons / per_e_true
+            for temp in comp.temperatures_K:
+                v_nom = velocity_m_s * math.sqrt(temp / comp.temperatures_K[0])
+                v_err = velocity_err_frac * v_nom
+                f = 1.0 + velocity_err_frac * rng.standard_normal()
+                spread = spread_frac * v_nom
+
+                def observe(e, _f=f, _v=v_nom, _s=spread, _k=k, _ke=ke, _p=per_e_true, _q=q_true):
+                    return recoil_observables(
+                        _p * e,
+                        _k,
+                        _v * _f,
+                        _s * _f,
+                        emission_coefficient=_ke,
+                        fluorescence_yield=_q,
+                        velocity_dependent=layout != "time-domain",
+                        nodes=nodes,
+                    )
+
+                # an experimenter keeps the fringe visible: at least 10 % of laser-off contrast
+                energies = e_max * np.linspace(1.0 / n_energies, 1.0, n_energies)
+                ph, vi = observe(energies)
+                for _ in range(12):
+                    if vi.min() >= 0.1:
+                        break
+                    energies = energies * 0.75
+                    ph, vi = observe(energies)
+                ph = ph + phase_noise * rng.standard_normal(n_energies)
+                vi = np.abs(vi + visibility_noise * rng.standard_normal(n_energies))
+                for e, p, v in zip(energies, ph, vi, strict=True):
+                    rows.append(
+                        f"{comp.name},{la.name},{temp:g},{v_nom:.6g},{v_err:.4g},{spread:.4g},"
+                        f"{e:.8g},{p:.8g},{phase_noise:.4g},{v:.8g},{visibility_noise:.4g}"
+                    )
+    # plain writes: simulated inputs need no crash safety
+    (out / "recoil.csv").write_text(",".join(RECOIL_COLUMNS) + "\n" + "\n".join(rows) + "\n")
+    chead = (
+        "compound,mass_u,mass_err_u,fluorescence_yield,fluorescence_yield_err,"
+        "emission_wavelength_nm"
+    )
+    clines = [chead]
+    for c in compounds:
+        m_stated = c.mass_u + c.mass_err_u * rng.standard_normal()
+        if c.fit_yield:
+            qcell, qerr = FLUORESCENCE_FIT, ""
+        elif c.fluorescence_yield > 0 or c.fluorescence_yield_err > 0:
+            qs = c.fluorescence_yield + c.fluorescence_yield_err * rng.standard_normal()
+            qcell, qerr = f"{min(max(qs, 0.0), 1.0):.6g}", f"{c.fluorescence_yield_err:g}"
+        else:
+            qcell, qerr = "", ""
+        lam = f"{c.emission_wavelength_nm:g}" if c.emission_wavelength_nm else ""
+        clines.append(f"{c.name},{m_stated:.8g},{c.mass_err_u:g},{qcell},{qerr},{lam}")
+    (out / "compounds.csv").write_text("\n".join(clines) + "\n")
+    (out / "campaign.toml").write_text(_recoil_toml(title, layout, inst, lasers))
+    return RecoilSimulationTruth(
+        instrument=true_inst,
+        lasers=true_lasers,
+        compounds={c.name: c for c in compounds},
+        path=out,
+    )
+
+
+def _recoil_toml(title: str, layout: str, inst, lasers: Sequence[LaserTruth]) -> str:
+    lines = ["[campaign]", f'title = "{title}"', "", "[instrument]", f'layout = "{layout}"']
+    lists: dict[str, list[str]] = {}
+    for key, (v, e, u) in inst.items():
+        name = key.partition(".")[2]
+        if "[" in name:
+            lists.setdefault(name.split("[")[0], []).append(f'"{_q(v, e, u)}"')
+        else:
+            lines.append(f'{name} = "{_q(v, e, u)}"')
+    for base, items in lists.items():
+        lines.append(f"{base} = [{', '.join(items)}]")
+    pos_unit = "us" if layout == "time-domain" else "m"
+    for la in lasers:
+        lines += [
+            "",
+            "[[laser]]",
+            f'name = "{la.name}"',
+            f'wavelength = "{_q(la.wavelength, 0.0, "nm")}"',
+            f'position = "{_q(la.position, la.position_err, pos_unit)}"',
+        ]
+        if la.area is not None:
+            lines.append(f'area = "{_q(la.area, la.area_err, "mm^2")}"')
+        else:
+            lines.append(f'waist = "{_q(la.waist, la.waist_err, "mm")}"')
+            lines.append(f'beam_offset = "{_q(la.beam_offset, la.beam_offset_err, "mm")}"')
+        lines.append(f"direction = {la.direction:+d}")
+        if la.energy_scale_err > 0:
+            lines.append(f'energy_scale = "{_q(1.0, la.energy_scale_err, "")}"')
+    lines += ["", "[data]", 'recoil = "recoil.csv"', 'compounds = "compounds.csv"', ""]
+    return "\n".join(lines)
+
+
+def random_recoil_campaign(
+    out_dir: str | Path,
+    rng: np.random.Generator,
+    *,
+    reemission: str | None = None,
+) -> RecoilSimulationTruth:
+    """One randomised recoil campaign for round trips.
+
+    Talbot–Lau (70 %) or time-domain layout; one to three lasers (400–700 nm, top hat or
+    Gaussian, either direction) placed to give 0.3–2.5 rad per photon; cross-sections
+    0.2–5·10⁻¹⁶ cm²; velocity spreads up to 15 %; re-emission off, stated or fitted
+    (``reemission`` = ``"off"``, ``"stated"``, ``"fit"``; random when None).
+    """
+    layout = "talbot-lau" if rng.random() < 0.7 else "time-domain"
+    inst = _instrument_inputs(layout)
+    nominal = {k: v for k, (v, _, _) in inst.items()}
+    lay = build_layout(layout, nominal)
+    if layout == "talbot-lau":
+        v_mean = float(rng.uniform(120, 350))
+        mass_u = float(rng.uniform(3e3, 3e4))
+        wmax, lo, mid, hi = lay.L2, lay.z1, lay.z2, lay.z3
+    else:
+        v_mean = 1.0
+        mass_u = float(rng.uniform(300, 5000))
+        t = [nominal[f"instrument.pulse_times[{i}]"] for i in range(3)]
+        wmax, lo, mid, hi = t[2] - t[1], t[0], t[1], t[2]
+    mode = reemission or str(rng.choice(["off", "stated", "fit"], p=[0.4, 0.4, 0.2]))
+    n_l = int(rng.integers(1, 4))
+    names = ["blue", "green", "red"][:n_l]
+    lasers = []
+    for name in names:
+        lam = float(rng.uniform(400e-9, 700e-9))
+        lo_phi = 1.2 if mode == "fit" else 0.3
+        phi = float(rng.uniform(lo_phi, 2.5))
+        # phase per unit weight (rad/m, or rad/s in the time domain) at the mean velocity
+        per_w = lay.scale * float(recoil_velocity(lam, mass_u * AMU)) / v_mean
+        w = float(np.clip(phi / per_w, 0.05 * wmax, 0.95 * wmax))
+        # either side of the middle grating (pulse) with this weight
+        if rng.random() < 0.5:
+            pos = lo + w * (mid - lo) / wmax
+        else:
+            pos = hi - w
+        if layout == "time-domain":
+            pos -= lo
+            pos_err = float(rng.choice([0.0, 2e-8]))
+        else:
+            pos_err = float(rng.choice([0.0, 1e-3]))
+        gaussian = rng.random() < 0.3
+        area = float(rng.uniform(0.3e-6, 2e-6))
+        lasers.append(
+            LaserTruth(
+                name=name,
+                wavelength=round(lam * 1e9) * 1e-9,
+                position=pos,
+                position_err=pos_err,
+                area=None if gaussian else area,
+                area_err=0.0 if gaussian else float(rng.uniform(0.0, 0.05)) * area,
+                waist=float(rng.uniform(0.5e-3, 1.5e-3)) if gaussian else None,
+                waist_err=float(rng.uniform(0.005, 0.03)) * 1e-3 if gaussian else 0.0,
+                beam_offset=float(rng.uniform(0.1e-3, 0.4e-3)) if gaussian else 0.0,
+                beam_offset_err=0.02e-3 if gaussian else 0.0,
+                direction=int(rng.choice([-1, 1])),
+                energy_scale_err=float(rng.choice([0.0, 0.01, 0.03])),
+            )
+        )
+    q = 0.0 if mode == "off" else float(rng.uniform(0.15, 0.85))
+    comp = RecoilCompoundTruth(
+        name="sample",
+        mass_u=mass_u,
+        cross_sections_cm2={n: float(rng.uniform(0.2e-16, 5e-16)) for n in names},
+        fluorescence_yield=q,
+        fluorescence_yield_err=float(rng.choice([0.0, 0.03])) if mode == "stated" else 0.0,
+        fit_yield=mode == "fit",
+        emission_wavelength_nm=(
+            float(rng.uniform(550, 750)) if mode != "off" and rng.random() < 0.5 else None
+        ),
+        mass_err_u=float(rng.choice([0.0, 0.001])) * mass_u,
+        temperatures_K=(500.0,) if rng.random() < 0.7 else (450.0, 600.0),
+    )
+    return simulate_recoil_campaign(
+        out_dir,
+        [comp],
+        lasers,
+        layout=layout,
+        seed=rng,
+        velocity_m_s=v_mean if layout == "talbot-lau" else 1.0,
+        velocity_err_frac=float(rng.uniform(0.002, 0.02)) if layout == "talbot-lau" else 0.0,
+        spread_frac=float(rng.uniform(0.0, 0.15)) if layout == "talbot-lau" else 0.0,
+        n_energies=int(rng.integers(4, 11)),
+        max_photons=float(rng.uniform(0.5, 3.0)),
+        phase_noise=float(rng.uniform(0.02, 0.08)),
+        visibility_noise=float(rng.uniform(0.01, 0.03)),
+    )
+
+
+_UNITS = {"m": 1.0, "mm": 1e-3, "nm": 1e-9, "us": 1e-6, "mm^2": 1e-6, "": 1.0}
