@@ -15,7 +15,7 @@ from __future__ import annotations
 import argparse
 import time
 
-from polarbeam.fieldsolver import (
+from polarbeam.instrument.fields import (
     Beam,
     BoundaryBox,
     Circle,
