@@ -177,7 +177,7 @@ def test_estimate_cli(tmp_path):
 
 def test_compute_cli_round_trips_into_computed_csv(tmp_path):
     pytest.importorskip("pyscf", reason="needs the optional extra polarbeam[qc]")
-    from polarbeam.computed import read_computed
+    from polarbeam.chemistry import read_computed
 
     out = tmp_path / "computed.csv"
     r = runner.invoke(
