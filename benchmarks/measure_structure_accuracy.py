@@ -6,7 +6,8 @@ Prints the per-molecule table and, for each polarizability scheme, the mean abso
 error (MARE) on the organic rows of reference_values/polarizabilities.csv; then, for the dipoles
 of the rigid rows of reference_values/dipoles.csv, the MARE of each charge model raw and with a
 least-squares scale factor (in-sample and leave-one-out).  These are the numbers quoted in
-docs/structure.md and in the comments of tests/test_structure.py.
+docs/structure.md and in the comments of tests/chemistry/test_chemistry_additive.py and
+tests/chemistry/test_chemistry_conformers.py.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from polarbeam import structure as st
+from polarbeam import chemistry as chem
 
 REF = Path(__file__).resolve().parents[1] / "reference_values"
 
@@ -27,11 +28,11 @@ def _rows(name: str) -> list[dict[str, str]]:
 
 
 def polarizabilities() -> None:
-    keys = ["ahp", "ahc", "bs", "llmr"] + (["d4"] if st.dftd4_available() else [])
+    keys = ["ahp", "ahc", "bs", "llmr"] + (["d4"] if chem.dftd4_available() else [])
     rel: dict[str, list[float]] = {k: [] for k in keys}
     print(f"{'compound':22s} {'exp':>6s} " + " ".join(f"{k:>6s}" for k in keys) + "  class")
     for r in _rows("polarizabilities.csv"):
-        e = st.estimate(r["smiles"], r["compound"], d4="d4" in keys)
+        e = chem.estimate(r["smiles"], r["compound"], d4="d4" in keys)
         exp = float(r["alpha_A3"])
         vals = {k: getattr(e, f"alpha_{k}_A3") for k in keys}
         print(
@@ -53,10 +54,10 @@ def polarizabilities() -> None:
 def dipoles(n_conformers: int = 10) -> None:
     rows = [r for r in _rows("dipoles.csv") if r["rigid"] == "yes"]
     exp = np.array([float(r["dipole_D"]) for r in rows])
-    for cm in st.CHARGE_MODELS:
+    for cm in chem.CHARGE_MODELS:
         calc = np.array(
             [
-                st.conformer_ensemble(
+                chem.conformer_ensemble(
                     r["smiles"], r["compound"], n_conformers=n_conformers, charge_model=cm,
                     dipole_scale=1.0,
                 ).rms_dipole_D(300.0)

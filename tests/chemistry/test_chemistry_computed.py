@@ -1,4 +1,4 @@
-"""Tests of polarbeam.computed: CSV import, unit conversions, cclib import, comparison, parity."""
+"""Tests of computed values (polarbeam.chemistry): CSV import, units, cclib import, parity."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 from scipy import constants as sc
 
-from polarbeam.computed import (
+from polarbeam.chemistry import (
     ALPHA_UNITS,
     COMPARISON_COLUMNS,
     ELECTRONIC_VS_VIBRATIONAL_NOTE,

@@ -1,4 +1,4 @@
-"""Tests of polarbeam.qchem (PySCF polarizabilities, cache, refusal, D4) -- extra polarbeam[qc].
+"""Tests of polarbeam.chemistry.qchem (PySCF polarizabilities, cache, refusal, D4) -- extra [qc].
 
 Reference values used here (gas phase, static):
 
@@ -20,10 +20,8 @@ import pytest
 
 pytest.importorskip("pyscf", reason="PySCF not installed (extra polarbeam[qc])")
 
-from polarbeam import qchem
-from polarbeam.computed import compare, parity_table, read_outputs
-from polarbeam.errors import CompoundError, InputError
-from polarbeam.qchem import (
+from polarbeam.chemistry import compare, parity_table, qchem, read_outputs
+from polarbeam.chemistry.qchem import (
     CalculationTooBigError,
     ComputedResult,
     Geometry,
@@ -32,6 +30,8 @@ from polarbeam.qchem import (
     geometry_from_smiles,
     results_table,
 )
+from polarbeam.chemistry.qchem import compute as qc_compute
+from polarbeam.errors import CompoundError, InputError
 
 WATER_ALPHA_A3 = 1.45  # CRC Handbook (from memory)
 WATER_DIPOLE_D = 1.855  # CCCBDB experimental (from memory)
@@ -122,13 +122,13 @@ def test_progress_steps(water_b3lyp):
 
 def test_cache_second_call_does_not_recompute(tmp_path, monkeypatch):
     calls = []
-    real = qchem._run_pyscf
+    real = qc_compute.run_pyscf
 
     def counting(*args, **kwargs):
         calls.append(args[1:3])
         return real(*args, **kwargs)
 
-    monkeypatch.setattr(qchem, "_run_pyscf", counting)
+    monkeypatch.setattr(qc_compute, "run_pyscf", counting)
     first = compute_properties("O", "hf", "sto-3g", cache_dir=tmp_path)
     second = compute_properties("O", "hf", "sto-3g", cache_dir=tmp_path)
     assert calls == [("hf", "sto-3g")]
@@ -158,7 +158,7 @@ def test_refuses_too_big_before_any_scf(monkeypatch):
     def boom(*args, **kwargs):
         raise AssertionError("SCF must not start")
 
-    monkeypatch.setattr(qchem, "_run_pyscf", boom)
+    monkeypatch.setattr(qc_compute, "run_pyscf", boom)
     icosane = "C" * 20
     est = estimate_cost(geometry_from_smiles(icosane), "b3lyp", "def2-tzvpd")
     assert est.n_basis > 1000 and est.seconds > qchem.DEFAULT_MAX_SECONDS
@@ -233,6 +233,7 @@ def test_results_feed_the_comparison(water_b3lyp, cache):
 def test_pyscf_result_written_as_nwchem_text_reads_back_through_cclib(tmp_path, water_b3lyp):
     pytest.importorskip("cclib", reason="cclib not installed (extra polarbeam[qc])")
     from _qc_output_writer import nwchem_text
+
     from polarbeam.constants import AU_POLARIZABILITY_SI
 
     res, _ = water_b3lyp

@@ -1,0 +1,218 @@
+"""Everything the structure predicts for one molecule, in one object.
+
+:func:`estimate` gathers the masses, the electron count, every additive scheme with its
+documented 1σ, the domain flags and, on request, the D4 value and the thermal dipole ensemble
+into a :class:`StructureEstimate` (polarizability volumes in Å³; SI through its properties).
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from dataclasses import dataclass
+from typing import Any
+
+from rdkit import Chem
+
+from ..constants import ANGSTROM3_SI, DEBYE_SI
+from ..errors import InputError
+from .additive import DEFAULT_SCHEME, SCHEMES, Scheme, alpha_d4_A3, fast_estimates
+from .conformers import (
+    DEFAULT_CHARGE_MODEL,
+    DEFAULT_SEED,
+    ChargeModel,
+    ConformerEnsemble,
+    check_temperature,
+    conformer_ensemble,
+    predicted_alpha_eff_si,
+)
+from .molecules import as_mol
+
+__all__ = ["StructureEstimate", "estimate"]
+
+
+@dataclass(frozen=True)
+class StructureEstimate:
+    """Everything the structure predicts for one compound (polarizability volumes in Å³).
+
+    ``*_err_A3`` are 1σ uncertainties from each scheme's documented accuracy (:data:`SCHEMES`).
+    ``flags`` lists why the molecule may be outside a scheme's domain.
+    """
+
+    compound: str
+    smiles: str
+    mass_avg_u: float
+    mass_mono_u: float
+    n_electrons: int
+    alpha_ahp_A3: float
+    alpha_ahp_err_A3: float
+    alpha_ahc_A3: float
+    alpha_ahc_err_A3: float
+    alpha_bs_A3: float
+    alpha_bs_err_A3: float
+    alpha_llmr_A3: float
+    alpha_llmr_err_A3: float
+    default_scheme: str
+    alpha_additive_A3: float
+    alpha_additive_err_A3: float
+    flags: tuple[str, ...] = ()
+    alpha_d4_A3: float | None = None
+    alpha_d4_err_A3: float | None = None
+    ensemble: ConformerEnsemble | None = None
+    temperature_K: float | None = None
+
+    @property
+    def alpha_additive_si(self) -> float:
+        """Default additive polarizability in C m²/V."""
+        return self.alpha_additive_A3 * ANGSTROM3_SI
+
+    @property
+    def alpha_additive_err_si(self) -> float:
+        """Its 1σ uncertainty in C m²/V."""
+        return self.alpha_additive_err_A3 * ANGSTROM3_SI
+
+    @property
+    def mu2_si(self) -> float | None:
+        """Boltzmann ⟨μ²⟩ (C² m²) at ``temperature_K``, when an ensemble was computed."""
+        if self.ensemble is None or self.temperature_K is None:
+            return None
+        return self.ensemble.mean_square_dipole_si(self.temperature_K)
+
+    @property
+    def dipole_rms_D(self) -> float | None:
+        """sqrt⟨μ²⟩ in debye at ``temperature_K``, when an ensemble was computed."""
+        mu2 = self.mu2_si
+        return None if mu2 is None else math.sqrt(mu2) / DEBYE_SI
+
+    @property
+    def alpha_eff_si(self) -> float | None:
+        """α_additive + ⟨μ²⟩/(3kT) in C m²/V, when an ensemble was computed."""
+        mu2 = self.mu2_si
+        if mu2 is None or self.temperature_K is None:
+            return None
+        return predicted_alpha_eff_si(self.alpha_additive_si, mu2, self.temperature_K)
+
+    def summary(self) -> dict[str, Any]:
+        """Plain dict (JSON-ready)."""
+        out: dict[str, Any] = {
+            "compound": self.compound,
+            "smiles": self.smiles,
+            "mass_avg_u": self.mass_avg_u,
+            "mass_mono_u": self.mass_mono_u,
+            "n_electrons": self.n_electrons,
+        }
+        for k in ("ahp", "ahc", "bs", "llmr"):
+            out[f"alpha_{k}_A3"] = getattr(self, f"alpha_{k}_A3")
+            out[f"alpha_{k}_err_A3"] = getattr(self, f"alpha_{k}_err_A3")
+        out["alpha_d4_A3"] = self.alpha_d4_A3
+        out["alpha_d4_err_A3"] = self.alpha_d4_err_A3
+        out["default_scheme"] = self.default_scheme
+        out["alpha_additive_A3"] = self.alpha_additive_A3
+        out["alpha_additive_err_A3"] = self.alpha_additive_err_A3
+        out["flags"] = list(self.flags)
+        out["temperature_K"] = self.temperature_K
+        out["dipole_rms_D"] = self.dipole_rms_D
+        out["ensemble"] = None if self.ensemble is None else self.ensemble.summary()
+        return out
+
+    def to_markdown(self) -> str:
+        """Short markdown table of the estimate."""
+        lines = [
+            f"**{self.compound}** `{self.smiles}` — M = {self.mass_avg_u:.3f} u "
+            f"(monoisotopic {self.mass_mono_u:.4f} u), N = {self.n_electrons} electrons",
+            "",
+            "| scheme | α (Å³) | ±1σ |",
+            "| --- | --- | --- |",
+        ]
+        for k in ("ahp", "ahc", "bs", "llmr"):
+            lines.append(
+                f"| {k} | {getattr(self, f'alpha_{k}_A3'):.3f} "
+                f"| {getattr(self, f'alpha_{k}_err_A3'):.3f} |"
+            )
+        if self.alpha_d4_A3 is not None:
+            lines.append(f"| d4 | {self.alpha_d4_A3:.3f} | {self.alpha_d4_err_A3:.3f} |")
+        lines.append(
+            f"| **default ({self.default_scheme})** | **{self.alpha_additive_A3:.3f}** "
+            f"| {self.alpha_additive_err_A3:.3f} |"
+        )
+        if self.dipole_rms_D is not None:
+            lines += ["", f"sqrt<mu^2> = {self.dipole_rms_D:.3f} D at {self.temperature_K} K"]
+        if self.flags:
+            lines += ["", "flags: " + ", ".join(self.flags)]
+        return "\n".join(lines)
+
+    def _repr_html_(self) -> str:
+        return "<pre>" + html.escape(self.to_markdown()) + "</pre>"
+
+
+def estimate(
+    structure: str | Chem.Mol,
+    compound: str = "?",
+    *,
+    dipoles: bool = False,
+    conformers: int = 10,
+    seed: int = DEFAULT_SEED,
+    temperature_K: float = 300.0,
+    charge_model: ChargeModel = DEFAULT_CHARGE_MODEL,
+    d4: bool = False,
+    scheme: Scheme = DEFAULT_SCHEME,
+) -> StructureEstimate:
+    """All structure-based predictions for one molecule.
+
+    Parameters
+    ----------
+    structure
+        SMILES or RDKit molecule.
+    compound
+        Name used in messages.
+    dipoles
+        Also build the conformer ensemble (slow: seconds per molecule).
+    conformers, seed, charge_model
+        Passed to :func:`conformer_ensemble`.
+    temperature_K
+        Temperature of the Boltzmann average.
+    d4
+        Also compute the D4 polarizability (needs ``dftd4``).
+    scheme
+        Scheme used for ``alpha_additive_A3`` (default :data:`DEFAULT_SCHEME`).
+    """
+    if scheme not in ("ahp", "ahc", "bs", "llmr"):
+        raise InputError(f"scheme must be one of ahp, ahc, bs, llmr; found {scheme!r}")
+    mol = as_mol(structure, compound)
+    smiles = structure if isinstance(structure, str) else Chem.MolToSmiles(Chem.RemoveHs(mol))
+    m_avg, m_mono, n_el, ahp, ahc, bs, llmr, flags = fast_estimates(mol)
+    vals = {"ahp": ahp, "ahc": ahc, "bs": bs, "llmr": llmr}
+    errs = {k: SCHEMES[k].error_A3(v) if math.isfinite(v) else math.nan for k, v in vals.items()}
+    d4_val = d4_err = None
+    if d4:
+        d4_val = alpha_d4_A3(mol, compound, seed=seed)
+        d4_err = SCHEMES["d4"].error_A3(d4_val)
+    ens = None
+    if dipoles:
+        check_temperature(temperature_K)
+        ens = conformer_ensemble(
+            mol, compound, n_conformers=conformers, seed=seed, charge_model=charge_model
+        )
+    return StructureEstimate(
+        compound=compound,
+        smiles=smiles,
+        mass_avg_u=m_avg,
+        mass_mono_u=m_mono,
+        n_electrons=n_el,
+        alpha_ahp_A3=ahp,
+        alpha_ahp_err_A3=errs["ahp"],
+        alpha_ahc_A3=ahc,
+        alpha_ahc_err_A3=errs["ahc"],
+        alpha_bs_A3=bs,
+        alpha_bs_err_A3=errs["bs"],
+        alpha_llmr_A3=llmr,
+        alpha_llmr_err_A3=errs["llmr"],
+        default_scheme=scheme,
+        alpha_additive_A3=vals[scheme],
+        alpha_additive_err_A3=errs[scheme],
+        flags=flags,
+        alpha_d4_A3=d4_val,
+        alpha_d4_err_A3=d4_err,
+        ensemble=ens,
+        temperature_K=float(temperature_K) if dipoles else None,
+    )

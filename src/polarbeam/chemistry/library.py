@@ -1,0 +1,210 @@
+"""Estimates for a whole library: a CSV or SDF of structures in, one CSV row per structure out.
+
+:func:`estimate_table` is the batch path: the additive schemes through
+:func:`~polarbeam.chemistry.additive.fast_estimates` (no conformers unless asked), one output row
+per input row, a bad row reported in its own ``status``/``message`` cells without stopping the
+others, and an atomic write of the result.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+import os
+import tempfile
+from collections.abc import Iterable
+from pathlib import Path
+
+from rdkit import Chem, rdBase
+
+from ..errors import CompoundError, InputError
+from .additive import DEFAULT_SCHEME, SCHEMES, fast_estimates
+from .conformers import (
+    DEFAULT_CHARGE_MODEL,
+    DEFAULT_SEED,
+    ChargeModel,
+    check_temperature,
+    conformer_ensemble,
+)
+from .molecules import StructureRecord, read_sdf
+
+__all__ = ["estimate_table"]
+
+_OUT_COLUMNS = [
+    "compound",
+    "smiles",
+    "mass_u",
+    "mass_mono_u",
+    "n_electrons",
+    "alpha_additive_A3",
+    "alpha_additive_err_A3",
+    "default_scheme",
+    "alpha_ahp_A3",
+    "alpha_ahp_err_A3",
+    "alpha_ahc_A3",
+    "alpha_ahc_err_A3",
+    "alpha_bs_A3",
+    "alpha_bs_err_A3",
+    "alpha_llmr_A3",
+    "alpha_llmr_err_A3",
+    "flags",
+]
+_DIPOLE_COLUMNS = ["dipole_rms_D", "n_conformers", "charge_model", "temperature_K"]
+
+
+def _fmt(x: float) -> str:
+    return "" if x is None or (isinstance(x, float) and not math.isfinite(x)) else f"{x:.6g}"
+
+
+def _read_csv_records(path: Path) -> tuple[list[str], list[StructureRecord]]:
+    try:
+        with path.open(newline="", encoding="utf-8") as fh:
+            lines = [ln for ln in fh if not ln.startswith("#")]
+    except OSError as exc:
+        raise InputError(f"{path}: cannot read the file ({exc.strerror})") from exc
+    reader = csv.DictReader(lines)
+    header = [h.strip() for h in (reader.fieldnames or [])]
+    missing = [c for c in ("compound", "smiles") if c not in header]
+    if missing:
+        raise InputError(
+            f"{path}: expected columns 'compound' and 'smiles', missing {missing}; found {header}"
+        )
+    reader.fieldnames = header
+    extra_cols = [h for h in header if h not in ("compound", "smiles")]
+    recs = []
+    with rdBase.BlockLogs():
+        for lineno, row in enumerate(reader, start=2):
+            name = (row.get("compound") or "").strip() or f"row {lineno}"
+            smi = (row.get("smiles") or "").strip()
+            extra = tuple((c, row.get(c) or "") for c in extra_cols)
+            mol = Chem.MolFromSmiles(smi) if smi else None
+            err = ""
+            if mol is None:
+                err = f"{path.name} row {lineno}, compound {name!r}: " + (
+                    f"RDKit cannot parse SMILES {smi!r}" if smi else "empty SMILES"
+                )
+            recs.append(StructureRecord(name, smi, mol, err, extra))
+    return extra_cols, recs
+
+
+def estimate_table(
+    input_path: str | os.PathLike,
+    out_path: str | os.PathLike,
+    *,
+    dipoles: bool = False,
+    conformers: int = 10,
+    seed: int = DEFAULT_SEED,
+    temperature_K: float = 300.0,
+    charge_model: ChargeModel = DEFAULT_CHARGE_MODEL,
+) -> dict[str, int]:
+    """Estimate every structure of a CSV (``compound, smiles, ...``) or SDF file into a CSV.
+
+    One output row per input row: the input's other columns are carried through after the
+    estimate columns; ``status`` is ``ok`` or ``failed`` and ``message`` says why a row failed
+    (a bad row never stops the others).  The file is written atomically (temporary file in the
+    output directory, then :func:`os.replace`).
+
+    Returns
+    -------
+    dict
+        ``{"rows": n, "ok": n_ok, "failed": n_failed}``.
+
+    Raises
+    ------
+    InputError
+        Missing/unreadable input, missing ``compound``/``smiles`` columns, unknown suffix.
+    """
+    inp = Path(input_path)
+    out = Path(out_path)
+    if not inp.is_file():
+        raise InputError(f"{inp}: input file not found")
+    if dipoles:
+        check_temperature(temperature_K)
+    suffix = inp.suffix.lower()
+    if suffix in (".sdf", ".sd", ".mol"):
+        recs = read_sdf(inp)
+        extra_cols = sorted({k for r in recs for k, _ in r.extra})
+    elif suffix in (".csv", ".txt", ""):
+        extra_cols, recs = _read_csv_records(inp)
+    else:
+        raise InputError(f"{inp}: expected a .csv or .sdf file, found suffix {inp.suffix!r}")
+
+    base = list(_OUT_COLUMNS) + (_DIPOLE_COLUMNS if dipoles else [])
+    n_out = len(base)
+    reserved = set(base) | {"status", "message"}
+    header = [*base, "status", "message"]
+    header += [f"input_{c}" if c in reserved else c for c in extra_cols]
+    scheme_acc = [SCHEMES[k] for k in ("ahp", "ahc", "bs", "llmr")]
+    default_idx = ("ahp", "ahc", "bs", "llmr").index(DEFAULT_SCHEME)
+
+    rows: list[list[str]] = []
+    n_ok = 0
+    with rdBase.BlockLogs():
+        for rec in recs:
+            extra = dict(rec.extra)
+            tail = [extra.get(c, "") for c in extra_cols]
+            failed = [rec.compound, rec.smiles] + [""] * (n_out - 2)
+            if rec.mol is None:
+                rows.append([*failed, "failed", rec.error, *tail])
+                continue
+            try:
+                m_avg, m_mono, n_el, ahp, ahc, bs, llmr, flags = fast_estimates(rec.mol)
+                vals = (ahp, ahc, bs, llmr)
+                errs = [
+                    s.error_A3(v) if math.isfinite(v) else math.nan
+                    for s, v in zip(scheme_acc, vals, strict=True)
+                ]
+                row = [
+                    rec.compound,
+                    rec.smiles,
+                    _fmt(m_avg),
+                    _fmt(m_mono),
+                    str(n_el),
+                    _fmt(vals[default_idx]),
+                    _fmt(errs[default_idx]),
+                    DEFAULT_SCHEME,
+                ]
+                for v, e in zip(vals, errs, strict=True):
+                    row += [_fmt(v), _fmt(e)]
+                row.append(";".join(flags))
+                if dipoles:
+                    ens = conformer_ensemble(
+                        rec.mol,
+                        rec.compound,
+                        n_conformers=conformers,
+                        seed=seed,
+                        charge_model=charge_model,
+                    )
+                    row += [
+                        _fmt(ens.rms_dipole_D(temperature_K)),
+                        str(len(ens.energies_kcal_mol)),
+                        ens.charge_model,
+                        _fmt(float(temperature_K)),
+                    ]
+                rows.append([*row, "ok", "", *tail])
+                n_ok += 1
+            except (CompoundError, ValueError, RuntimeError) as exc:
+                msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+                rows.append([*failed, "failed", f"compound {rec.compound!r}: {msg}", *tail])
+
+    _write_csv_atomic(out, header, rows)
+    return {"rows": len(rows), "ok": n_ok, "failed": len(rows) - n_ok}
+
+
+def _write_csv_atomic(out: Path, header: list[str], rows: Iterable[list[str]]) -> None:
+    directory = out.parent if str(out.parent) else Path(".")
+    if not directory.is_dir():
+        raise InputError(f"{out}: output directory {directory} does not exist")
+    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".tmp", dir=directory)
+    try:
+        with os.fdopen(fd, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(header)
+            w.writerows(rows)
+        os.replace(tmp, out)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise

@@ -1,0 +1,86 @@
+"""On-the-spot quantum chemistry: static polarizability and dipole of one molecule with PySCF.
+
+Pipeline of :func:`compute_properties` (:mod:`.compute`):
+
+1. geometry -- from SMILES (RDKit ETKDGv3 embedding + MMFF94 optimisation, fixed seed) or from an
+   XYZ/SDF/MOL file (:mod:`.geometry`);
+2. cache look-up -- a JSON file named by a hash of (canonical structure, geometry, charge, method,
+   basis, response scheme), so a rerun costs nothing (:mod:`.cache`);
+3. cost estimate -- basis-function count N and a time model t ≈ t_water·(N/N_water)^p,
+   p = 3…4, calibrated on water; a calculation over the limit is refused with
+   :class:`CalculationTooBigError` before any SCF starts (:mod:`.cost`);
+4. SCF -- RHF for ``method="hf"``, RKS with the named exchange-correlation functional otherwise
+   (:mod:`.scf`);
+5. static dipole polarizability by coupled-perturbed SCF (CPHF/CPKS, solved here with PySCF's
+   ``scf.cphf`` Krylov solver and the SCF object's response function), or by finite field
+   (central differences of the dipole under ±F along x, y, z) as fallback and cross-check
+   (:mod:`.response`);
+6. dipole moment of the field-free SCF density.
+
+:func:`d4_polarizability` gives the D4 model's static polarizability (dftd4) as a fast estimate
+for molecules too big for SCF.  All of this needs the extra ``polarbeam[qc]``; PySCF and dftd4
+are imported only when a calculation runs.
+
+Values in a :class:`ComputedResult` (:mod:`.result`) are SI (C·m²/V, C·m); Å³ and debye are
+properties for tables.  Computed values are electronic only (fixed nuclei): see
+:data:`polarbeam.chemistry.parity.ELECTRONIC_VS_VIBRATIONAL_NOTE`.
+"""
+
+from __future__ import annotations
+
+from .cache import default_cache_dir
+from .compute import ProgressCallback, compute_properties, d4_polarizability
+from .cost import (
+    DEFAULT_COST_MODELS,
+    DEFAULT_MAX_SECONDS,
+    CalculationTooBigError,
+    CostEstimate,
+    CostModel,
+    calibrate_cost_model,
+    estimate_cost,
+)
+from .geometry import (
+    DEFAULT_SEED,
+    Geometry,
+    geometry_from_file,
+    geometry_from_smiles,
+    load_geometry,
+)
+from .response import (
+    AU_DIPOLE_SI,
+    DEFAULT_FIELD_AU,
+    PolarizabilityScheme,
+    cpscf_polarizability,
+    dipole_au,
+    finite_field_polarizability,
+)
+from .result import ComputedResult, results_table
+from .scf import run_pyscf
+
+__all__ = [
+    "AU_DIPOLE_SI",
+    "DEFAULT_COST_MODELS",
+    "DEFAULT_FIELD_AU",
+    "DEFAULT_MAX_SECONDS",
+    "DEFAULT_SEED",
+    "CalculationTooBigError",
+    "ComputedResult",
+    "CostEstimate",
+    "CostModel",
+    "Geometry",
+    "PolarizabilityScheme",
+    "ProgressCallback",
+    "calibrate_cost_model",
+    "compute_properties",
+    "cpscf_polarizability",
+    "d4_polarizability",
+    "default_cache_dir",
+    "dipole_au",
+    "estimate_cost",
+    "finite_field_polarizability",
+    "geometry_from_file",
+    "geometry_from_smiles",
+    "load_geometry",
+    "results_table",
+    "run_pyscf",
+]
