@@ -96,7 +96,7 @@ import pandas as pd
 from numpy.typing import ArrayLike
 from scipy import sparse, stats
 
-from .errors import InputError, RowValueError
+from polarbeam.errors import InputError, RowValueError
 
 __all__ = [
     "CARRIED_COLUMNS",

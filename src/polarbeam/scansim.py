@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike
 
-from .errors import InputError
+from polarbeam.errors import InputError
 
 __all__ = ["SimulatedScans", "fringe_counts", "simulate_campaign", "simulate_series"]
 

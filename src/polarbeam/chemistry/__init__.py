@@ -26,8 +26,8 @@ It imports only :mod:`polarbeam.errors`, :mod:`polarbeam.constants` and
 
 from __future__ import annotations
 
-from . import qchem
-from .additive import (
+from polarbeam.chemistry import qchem
+from polarbeam.chemistry.additive import (
     DEFAULT_SCHEME,
     LL_MR_FACTOR_A3,
     SCHEMES,
@@ -44,7 +44,7 @@ from .additive import (
     miller_types,
     n_electrons,
 )
-from .computed import (
+from polarbeam.chemistry.computed import (
     ALPHA_UNITS,
     COMPUTED_COLUMNS,
     alpha_a3_from_unit,
@@ -53,7 +53,7 @@ from .computed import (
     read_computed,
     read_outputs,
 )
-from .conformers import (
+from polarbeam.chemistry.conformers import (
     CHARGE_MODELS,
     DEFAULT_CHARGE_MODEL,
     DEFAULT_SEED,
@@ -63,9 +63,9 @@ from .conformers import (
     mean_square_dipole,
     predicted_alpha_eff_si,
 )
-from .estimates import StructureEstimate, estimate
-from .library import estimate_table
-from .molecules import (
+from polarbeam.chemistry.estimates import StructureEstimate, estimate
+from polarbeam.chemistry.library import estimate_table
+from polarbeam.chemistry.molecules import (
     StructureRecord,
     check_mass,
     mass_average_u,
@@ -73,7 +73,7 @@ from .molecules import (
     parse_smiles,
     read_sdf,
 )
-from .parity import (
+from polarbeam.chemistry.parity import (
     COMPARISON_COLUMNS,
     ELECTRONIC_VS_VIBRATIONAL_NOTE,
     PARITY_COLUMNS,
@@ -83,7 +83,7 @@ from .parity import (
     orientational_a3,
     parity_table,
 )
-from .qchem import (
+from polarbeam.chemistry.qchem import (
     AU_DIPOLE_SI,
     DEFAULT_COST_MODELS,
     DEFAULT_FIELD_AU,

@@ -29,11 +29,11 @@ from rdkit import Chem
 from rdkit.Chem import Crippen, Descriptors, rdMolDescriptors
 from scipy import constants as _sc
 
-from .._util.optional import require
-from ..constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
-from ..errors import InputError
-from .conformers import DEFAULT_SEED, embed_one
-from .molecules import as_mol
+from polarbeam._util.optional import require
+from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
+from polarbeam.errors import InputError
+from polarbeam.chemistry.conformers import DEFAULT_SEED, embed_one
+from polarbeam.chemistry.molecules import as_mol
 
 __all__ = [
     "DEFAULT_SCHEME",

@@ -26,9 +26,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .._util.optional import require
-from ..constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
-from ..errors import InputError, RowValueError
+from polarbeam._util.optional import require
+from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
+from polarbeam.errors import InputError, RowValueError
 
 __all__ = [
     "ALPHA_UNITS",

@@ -14,10 +14,10 @@ from typing import Any
 
 from rdkit import Chem
 
-from ..constants import ANGSTROM3_SI, DEBYE_SI
-from ..errors import InputError
-from .additive import DEFAULT_SCHEME, SCHEMES, Scheme, alpha_d4_A3, fast_estimates
-from .conformers import (
+from polarbeam.constants import ANGSTROM3_SI, DEBYE_SI
+from polarbeam.errors import InputError
+from polarbeam.chemistry.additive import DEFAULT_SCHEME, SCHEMES, Scheme, alpha_d4_A3, fast_estimates
+from polarbeam.chemistry.conformers import (
     DEFAULT_CHARGE_MODEL,
     DEFAULT_SEED,
     ChargeModel,
@@ -26,7 +26,7 @@ from .conformers import (
     conformer_ensemble,
     predicted_alpha_eff_si,
 )
-from .molecules import as_mol
+from polarbeam.chemistry.molecules import as_mol
 
 __all__ = ["StructureEstimate", "estimate"]
 

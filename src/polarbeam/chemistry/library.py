@@ -17,16 +17,16 @@ from pathlib import Path
 
 from rdkit import Chem, rdBase
 
-from ..errors import CompoundError, InputError
-from .additive import DEFAULT_SCHEME, SCHEMES, fast_estimates
-from .conformers import (
+from polarbeam.errors import CompoundError, InputError
+from polarbeam.chemistry.additive import DEFAULT_SCHEME, SCHEMES, fast_estimates
+from polarbeam.chemistry.conformers import (
     DEFAULT_CHARGE_MODEL,
     DEFAULT_SEED,
     ChargeModel,
     check_temperature,
     conformer_ensemble,
 )
-from .molecules import StructureRecord, read_sdf
+from polarbeam.chemistry.molecules import StructureRecord, read_sdf
 
 __all__ = ["estimate_table"]
 

@@ -16,7 +16,7 @@ from typing import Any
 from rdkit import Chem, rdBase
 from rdkit.Chem import Descriptors, rdMolDescriptors
 
-from ..errors import CompoundError, InputError
+from polarbeam.errors import CompoundError, InputError
 
 __all__ = [
     "StructureRecord",

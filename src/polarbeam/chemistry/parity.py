@@ -19,8 +19,8 @@ from collections.abc import Iterable, Sequence
 import numpy as np
 import pandas as pd
 
-from ..constants import alpha_a3_from_si, langevin_debye_si, si_from_debye
-from ..errors import InputError
+from polarbeam.constants import alpha_a3_from_si, langevin_debye_si, si_from_debye
+from polarbeam.errors import InputError
 
 __all__ = [
     "COMPARISON_COLUMNS",

@@ -28,9 +28,9 @@ properties for tables.  Computed values are electronic only (fixed nuclei): see
 
 from __future__ import annotations
 
-from .cache import default_cache_dir
-from .compute import ProgressCallback, compute_properties, d4_polarizability
-from .cost import (
+from polarbeam.chemistry.qchem.cache import default_cache_dir
+from polarbeam.chemistry.qchem.compute import ProgressCallback, compute_properties, d4_polarizability
+from polarbeam.chemistry.qchem.cost import (
     DEFAULT_COST_MODELS,
     DEFAULT_MAX_SECONDS,
     CalculationTooBigError,
@@ -39,14 +39,14 @@ from .cost import (
     calibrate_cost_model,
     estimate_cost,
 )
-from .geometry import (
+from polarbeam.chemistry.qchem.geometry import (
     DEFAULT_SEED,
     Geometry,
     geometry_from_file,
     geometry_from_smiles,
     load_geometry,
 )
-from .response import (
+from polarbeam.chemistry.qchem.response import (
     AU_DIPOLE_SI,
     DEFAULT_FIELD_AU,
     PolarizabilityScheme,
@@ -54,8 +54,8 @@ from .response import (
     dipole_au,
     finite_field_polarizability,
 )
-from .result import ComputedResult, results_table
-from .scf import run_pyscf
+from polarbeam.chemistry.qchem.result import ComputedResult, results_table
+from polarbeam.chemistry.qchem.scf import run_pyscf
 
 __all__ = [
     "AU_DIPOLE_SI",

@@ -15,22 +15,22 @@ from pathlib import Path
 import numpy as np
 from scipy import constants as _sc
 
-from ..._util.optional import require
-from ...constants import AU_POLARIZABILITY_SI
-from ...errors import CompoundError, InputError
-from ..computed import isotropic_average
-from .cache import cache_key, default_cache_dir, read_cached, write_cached
-from .cost import (
+from polarbeam._util.optional import require
+from polarbeam.constants import AU_POLARIZABILITY_SI
+from polarbeam.errors import CompoundError, InputError
+from polarbeam.chemistry.computed import isotropic_average
+from polarbeam.chemistry.qchem.cache import cache_key, default_cache_dir, read_cached, write_cached
+from polarbeam.chemistry.qchem.cost import (
     DEFAULT_MAX_SECONDS,
     CalculationTooBigError,
     CostModel,
     estimate_cost,
     format_duration,
 )
-from .geometry import DEFAULT_SEED, default_name, load_geometry
-from .response import AU_DIPOLE_SI, DEFAULT_FIELD_AU, PolarizabilityScheme
-from .result import ComputedResult
-from .scf import run_pyscf
+from polarbeam.chemistry.qchem.geometry import DEFAULT_SEED, default_name, load_geometry
+from polarbeam.chemistry.qchem.response import AU_DIPOLE_SI, DEFAULT_FIELD_AU, PolarizabilityScheme
+from polarbeam.chemistry.qchem.result import ComputedResult
+from polarbeam.chemistry.qchem.scf import run_pyscf
 
 __all__ = ["ProgressCallback", "compute_properties", "d4_polarizability"]
 

@@ -16,7 +16,7 @@ import numpy as np
 from rdkit import Chem, rdBase
 from rdkit.Chem import AllChem
 
-from ...errors import CompoundError, InputError
+from polarbeam.errors import CompoundError, InputError
 
 __all__ = [
     "DEFAULT_SEED",

@@ -12,8 +12,8 @@ from typing import Literal
 import numpy as np
 from scipy import constants as _sc
 
-from ..._util.optional import require
-from ...errors import CompoundError, InputError
+from polarbeam._util.optional import require
+from polarbeam.errors import CompoundError, InputError
 
 __all__ = [
     "AU_DIPOLE_SI",

@@ -14,10 +14,10 @@ from collections.abc import Callable
 
 import numpy as np
 
-from ..._util.optional import require
-from ...errors import CompoundError, InputError
-from .geometry import Geometry
-from .response import (
+from polarbeam._util.optional import require
+from polarbeam.errors import CompoundError, InputError
+from polarbeam.chemistry.qchem.geometry import Geometry
+from polarbeam.chemistry.qchem.response import (
     PolarizabilityScheme,
     cpscf_polarizability,
     dipole_au,

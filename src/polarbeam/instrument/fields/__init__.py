@@ -40,9 +40,9 @@ Everything is SI (metres, volts); lengths are printed in mm only in error messag
 
 from __future__ import annotations
 
-from .analytic import two_wire_analytic, two_wire_constant, two_wire_from_radii
-from .beam import BeamField, beam_field, beam_points
-from .ends import (
+from polarbeam.instrument.fields.analytic import two_wire_analytic, two_wire_constant, two_wire_from_radii
+from polarbeam.instrument.fields.beam import BeamField, beam_field, beam_points
+from polarbeam.instrument.fields.ends import (
     FringeResult,
     effective_length,
     effective_length_from_map,
@@ -51,14 +51,14 @@ from .ends import (
     maxwell_fringe_extension,
     read_fringe_map_csv,
 )
-from .extrapolate import solve_deflector
-from .geometry import Beam, CrossSection, two_wire_cross_section
-from .grid import FieldSolution
-from .plot import plot_cross_section
-from .result import DeflectorSolution, field_at_beam
-from .shapes import ArcRegion, BoundaryBox, Circle, Electrode, Polygon
-from .solve import DIRECT_SOLVER_LIMIT, BoundaryMode, SolverMode, solve_laplace
-from .tolerances import (
+from polarbeam.instrument.fields.extrapolate import solve_deflector
+from polarbeam.instrument.fields.geometry import Beam, CrossSection, two_wire_cross_section
+from polarbeam.instrument.fields.grid import FieldSolution
+from polarbeam.instrument.fields.plot import plot_cross_section
+from polarbeam.instrument.fields.result import DeflectorSolution, field_at_beam
+from polarbeam.instrument.fields.shapes import ArcRegion, BoundaryBox, Circle, Electrode, Polygon
+from polarbeam.instrument.fields.solve import DIRECT_SOLVER_LIMIT, BoundaryMode, SolverMode, solve_laplace
+from polarbeam.instrument.fields.tolerances import (
     MonteCarloResult,
     ToleranceBudget,
     monte_carlo_tolerances,

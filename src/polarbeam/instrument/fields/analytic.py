@@ -12,8 +12,8 @@ import math
 
 import numpy as np
 
-from ...errors import InputError
-from .checks import finite, fmt_mm
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.checks import finite, fmt_mm
 
 __all__ = ["two_wire_analytic", "two_wire_constant", "two_wire_from_radii"]
 

@@ -13,9 +13,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ...errors import InputError
-from .geometry import Beam
-from .grid import FieldSolution
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.geometry import Beam
+from polarbeam.instrument.fields.grid import FieldSolution
 
 __all__ = ["BeamField", "beam_field", "beam_points"]
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 
-from ...errors import InputError
+from polarbeam.errors import InputError
 
 __all__ = ["MM", "finite", "fmt_mm", "point"]
 

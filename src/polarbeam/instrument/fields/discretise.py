@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
-from .geometry import CrossSection
+from polarbeam.instrument.fields.geometry import CrossSection
 
 __all__ = ["assemble"]
 

@@ -18,11 +18,11 @@ from typing import Literal
 import numpy as np
 from scipy.integrate import trapezoid as _trapezoid  # np.trapezoid needs numpy >= 2
 
-from ...errors import InputError
-from .checks import finite, fmt_mm
-from .geometry import CrossSection
-from .shapes import BoundaryBox, Polygon
-from .solve import SolverMode, solve_laplace
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.checks import finite, fmt_mm
+from polarbeam.instrument.fields.geometry import CrossSection
+from polarbeam.instrument.fields.shapes import BoundaryBox, Polygon
+from polarbeam.instrument.fields.solve import SolverMode, solve_laplace
 
 __all__ = [
     "FringeResult",

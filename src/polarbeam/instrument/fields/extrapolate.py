@@ -10,12 +10,12 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
-from ...errors import InputError
-from .beam import BeamField, beam_field
-from .geometry import Beam, CrossSection
-from .grid import grid_shape
-from .result import DeflectorSolution
-from .solve import BoundaryMode, SolverMode, solve_laplace
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.beam import BeamField, beam_field
+from polarbeam.instrument.fields.geometry import Beam, CrossSection
+from polarbeam.instrument.fields.grid import grid_shape
+from polarbeam.instrument.fields.result import DeflectorSolution
+from polarbeam.instrument.fields.solve import BoundaryMode, SolverMode, solve_laplace
 
 __all__ = ["solve_deflector"]
 

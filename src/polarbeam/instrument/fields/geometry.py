@@ -14,10 +14,10 @@ from typing import Literal
 
 import numpy as np
 
-from ...errors import InputError
-from .analytic import two_wire_constant
-from .checks import finite, fmt_mm
-from .shapes import ArcRegion, BoundaryBox, Circle, Electrode, Polygon
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.analytic import two_wire_constant
+from polarbeam.instrument.fields.checks import finite, fmt_mm
+from polarbeam.instrument.fields.shapes import ArcRegion, BoundaryBox, Circle, Electrode, Polygon
 
 __all__ = ["Beam", "CrossSection", "two_wire_cross_section"]
 

@@ -14,10 +14,10 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.interpolate import RectBivariateSpline
 
-from ...errors import InputError
-from .checks import finite, fmt_mm
-from .geometry import CrossSection
-from .shapes import BoundaryBox
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.checks import finite, fmt_mm
+from polarbeam.instrument.fields.geometry import CrossSection
+from polarbeam.instrument.fields.shapes import BoundaryBox
 
 __all__ = ["FieldSolution", "grid_shape"]
 

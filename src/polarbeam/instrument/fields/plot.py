@@ -9,12 +9,12 @@ from pathlib import Path
 
 import numpy as np
 
-from ..._util.optional import has, require
-from ...errors import InputError
-from .checks import MM
-from .geometry import Beam
-from .grid import FieldSolution
-from .result import DeflectorSolution
+from polarbeam._util.optional import has, require
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.checks import MM
+from polarbeam.instrument.fields.geometry import Beam
+from polarbeam.instrument.fields.grid import FieldSolution
+from polarbeam.instrument.fields.result import DeflectorSolution
 
 __all__ = ["plot_cross_section"]
 

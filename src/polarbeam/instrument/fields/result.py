@@ -10,11 +10,11 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from ...errors import InputError
-from .beam import BeamField, beam_field
-from .checks import MM, finite
-from .geometry import Beam, CrossSection
-from .grid import FieldSolution
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.beam import BeamField, beam_field
+from polarbeam.instrument.fields.checks import MM, finite
+from polarbeam.instrument.fields.geometry import Beam, CrossSection
+from polarbeam.instrument.fields.grid import FieldSolution
 
 __all__ = ["DeflectorSolution", "field_at_beam"]
 

@@ -16,8 +16,8 @@ from typing import Literal, Union
 
 import numpy as np
 
-from ...errors import InputError
-from .checks import finite, fmt_mm, point
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.checks import finite, fmt_mm, point
 
 __all__ = ["ArcRegion", "BoundaryBox", "Circle", "Electrode", "Polygon"]
 

@@ -13,11 +13,11 @@ from typing import Literal
 import numpy as np
 import scipy.sparse.linalg as spla
 
-from ..._util.optional import has, require
-from ...errors import InputError
-from .discretise import assemble
-from .geometry import CrossSection
-from .grid import FieldSolution, grid_shape
+from polarbeam._util.optional import has, require
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.discretise import assemble
+from polarbeam.instrument.fields.geometry import CrossSection
+from polarbeam.instrument.fields.grid import FieldSolution, grid_shape
 
 __all__ = ["DIRECT_SOLVER_LIMIT", "BoundaryMode", "SolverMode", "solve_laplace"]
 

@@ -14,8 +14,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ...errors import InputError
-from .checks import finite
+from polarbeam.errors import InputError
+from polarbeam.instrument.fields.checks import finite
 
 __all__ = [
     "MonteCarloResult",
