@@ -1,8 +1,9 @@
 """Simulated raw fringe scans: Poisson counts, dark counts, drifting interferometer phase.
 
-The simulator writes tables in the raw-scan layout read by :func:`polarbeam.fringes.read_scans`
-(one row per counting bin) together with the truth per scan.  It follows the sign convention of
-:mod:`polarbeam.fringes`: the expected counts of a scan are
+The simulator writes tables in the raw-scan layout read by
+:func:`polarbeam.reduction.read_scans` (one row per counting bin) together with the truth per
+scan.  It follows the sign convention of :mod:`polarbeam.reduction.fit`: the expected counts of
+a scan are
 
     mu(x) = dark + S [1 + V cos(2 pi x / d - psi)],   psi = phi_I(t) + shift,
 
@@ -21,7 +22,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["SimulatedScans", "fringe_counts", "simulate_campaign", "simulate_series"]
 
@@ -71,7 +72,7 @@ class SimulatedScans:
     Attributes
     ----------
     table : DataFrame
-        One row per counting bin with the columns of :data:`polarbeam.fringes.INPUT_COLUMNS`.
+        One row per counting bin with the columns of :data:`polarbeam.reduction.INPUT_COLUMNS`.
     truth : DataFrame
         One row per scan: ``scan, compound, temperature_K, voltage_V, time_s, is_reference,
         shift_rad, interferometer_phase_rad, measured_phase_rad, visibility,
