@@ -18,7 +18,6 @@ from typer.testing import CliRunner
 
 from polarbeam.cli import app
 from polarbeam.errors import InputError
-from polarbeam.fringes import fit_scans
 from polarbeam.pipeline import analyze
 from polarbeam.planning import (
     SeriesModel,
@@ -36,6 +35,7 @@ from polarbeam.planning import (
     voltage_max,
     write_plan,
 )
+from polarbeam.reduction import fit_scans
 
 runner = CliRunner()
 EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "plan" / "campaign.toml"
