@@ -102,14 +102,14 @@ def worker(path: str, repeat: int) -> None:
     import pyarrow.csv
     import pyarrow.parquet  # noqa: F401
 
-    from polarbeam.fringes import _read_table, fit_scans, reduce_table
+    from polarbeam.reduction import fit_scans, read_table, reduce_table
 
     best: dict[str, float] = {}
     for _ in range(repeat):  # best of `repeat`: the least disturbed by other load
-        # the same steps as fringes.reduce_file (what `polarbeam reduce` runs): read the file,
+        # the same steps as reduction.reduce_file (what `polarbeam reduce` runs): read the file,
         # then validate + fit + drift-correct in reduce_table (validation happens once)
         t0 = time.perf_counter()
-        df = _read_table(Path(path))
+        df = read_table(Path(path))
         t1 = time.perf_counter()
         red = reduce_table(df, PERIOD, source=Path(path).name)
         t2 = time.perf_counter()
@@ -224,7 +224,7 @@ def main(argv=None) -> int:
             )
 
     # Sanity: our phases on the baseline subset agree with curve_fit's.
-    from polarbeam.fringes import fit_scans
+    from polarbeam.reduction import fit_scans
 
     sub = make_campaign(1, args.baseline_scans + 1, args.bins, args.seed).table
     _, ids, ph = baseline_curve_fit(sub, args.baseline_scans)
