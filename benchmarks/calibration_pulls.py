@@ -18,9 +18,9 @@ from pathlib import Path
 
 import numpy as np
 
-from polarbeam.simulation.calibration import calibration_campaign
 from polarbeam.constants import alpha_a3_from_si
 from polarbeam.pipeline.analysis import analyze
+from polarbeam.simulation.calibration import calibration_campaign
 
 
 def main(n: int = 400, seed: int = 12) -> None:

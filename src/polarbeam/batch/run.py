@@ -69,7 +69,6 @@ __all__ = [
     "encode_compound",
     "run_batch",
     "run_cli",
-    "safe_name",
 ]
 
 RECORD_FORMAT = "polarbeam-compound-record/1"

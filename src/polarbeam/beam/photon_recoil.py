@@ -10,6 +10,21 @@ from uncertainties import umath
 
 from polarbeam.beam.velocity import velocity_nodes
 
+__all__ = [
+    "CM2",
+    "PLANCK",
+    "SPEED_OF_LIGHT",
+    "emission_factor",
+    "gaussian_effective_area",
+    "kick_phase",
+    "mean_photons",
+    "photon_energy",
+    "poisson_phasor",
+    "recoil_observables",
+    "recoil_phasor",
+    "recoil_velocity",
+]
+
 #: Planck constant (J s), CODATA via scipy.constants.
 PLANCK = _sc.h
 

@@ -47,10 +47,11 @@ so).
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from functools import lru_cache
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 import uncertainties
@@ -80,12 +81,9 @@ CompoundAnalysis = Callable[[Any, Any, Context], CompoundResult]
 __all__ = [
     "Calibration",
     "CalibrationOutcome",
-    "CalibrationTruth",
     "ReferenceCalibration",
     "ReferenceValue",
-    "analyze_with_references",
     "calibrate_campaign",
-    "calibration_campaign",
     "calibration_required",
     "gls_log_mean",
     "known_alpha_eff",

@@ -30,10 +30,10 @@ from rdkit.Chem import Crippen, Descriptors, rdMolDescriptors
 from scipy import constants as _sc
 
 from polarbeam._util.optional import require
-from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
-from polarbeam.errors import InputError
 from polarbeam.chemistry.conformers import DEFAULT_SEED, embed_one
 from polarbeam.chemistry.molecules import as_mol
+from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
+from polarbeam.errors import InputError
 
 __all__ = [
     "DEFAULT_SCHEME",

@@ -17,9 +17,9 @@ from rdkit import Chem, rdBase
 from rdkit.Chem import AllChem, rdMolAlign
 from scipy import constants as _sc
 
+from polarbeam.chemistry.molecules import as_mol
 from polarbeam.constants import BOLTZMANN, DEBYE_SI
 from polarbeam.errors import CompoundError, InputError
-from polarbeam.chemistry.molecules import as_mol
 
 __all__ = [
     "CHARGE_MODELS",

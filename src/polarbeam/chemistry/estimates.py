@@ -14,9 +14,13 @@ from typing import Any
 
 from rdkit import Chem
 
-from polarbeam.constants import ANGSTROM3_SI, DEBYE_SI
-from polarbeam.errors import InputError
-from polarbeam.chemistry.additive import DEFAULT_SCHEME, SCHEMES, Scheme, alpha_d4_A3, fast_estimates
+from polarbeam.chemistry.additive import (
+    DEFAULT_SCHEME,
+    SCHEMES,
+    Scheme,
+    alpha_d4_A3,
+    fast_estimates,
+)
 from polarbeam.chemistry.conformers import (
     DEFAULT_CHARGE_MODEL,
     DEFAULT_SEED,
@@ -27,6 +31,8 @@ from polarbeam.chemistry.conformers import (
     predicted_alpha_eff_si,
 )
 from polarbeam.chemistry.molecules import as_mol
+from polarbeam.constants import ANGSTROM3_SI, DEBYE_SI
+from polarbeam.errors import InputError
 
 __all__ = ["StructureEstimate", "estimate"]
 

@@ -17,7 +17,6 @@ from pathlib import Path
 
 from rdkit import Chem, rdBase
 
-from polarbeam.errors import CompoundError, InputError
 from polarbeam.chemistry.additive import DEFAULT_SCHEME, SCHEMES, fast_estimates
 from polarbeam.chemistry.conformers import (
     DEFAULT_CHARGE_MODEL,
@@ -27,6 +26,7 @@ from polarbeam.chemistry.conformers import (
     conformer_ensemble,
 )
 from polarbeam.chemistry.molecules import StructureRecord, read_sdf
+from polarbeam.errors import CompoundError, InputError
 
 __all__ = ["estimate_table"]
 

@@ -17,6 +17,11 @@ from polarbeam.contract.campaign import Campaign, CompoundData
 from polarbeam.errors import CompoundError
 from polarbeam.results.objects import CampaignResult, CompoundResult
 
+__all__ = [
+    "computed_comparison",
+    "cross_check",
+]
+
 
 def _structure_source(cd: CompoundData, c: Campaign):
     """(smiles, mol) of a compound: an SDF record by name wins over the smiles column."""

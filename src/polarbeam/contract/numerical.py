@@ -25,6 +25,15 @@ from polarbeam.instrument.numerical import (
 )
 from polarbeam.quantities import Measured, parse_quantity
 
+__all__ = [
+    "NUMERICAL_KEYS",
+    "numerical_deflector",
+    "numerical_error_inputs",
+    "numerical_model",
+    "numerical_stated_inputs",
+    "parse_numerical_spec",
+]
+
 #: ``[deflector]`` keys of the numerical model → SI unit (None: not a quantity).
 NUMERICAL_KEYS: dict[str, str | None] = {
     "line_half_spacing": "m",

@@ -15,6 +15,17 @@ from polarbeam.beam.photon_recoil import (
 from polarbeam.errors import CompoundError, InputError
 from polarbeam.quantities import Measured, parse_quantity
 
+__all__ = [
+    "FLUORESCENCE_FIT",
+    "LASER_KEYS",
+    "RECOIL_COLUMNS",
+    "Laser",
+    "RecoilCompound",
+    "RecoilData",
+    "RecoilSeries",
+    "load_recoil",
+]
+
 RECOIL_COLUMNS = (
     "compound",
     "laser",

@@ -12,6 +12,12 @@ from polarbeam.contract.campaign import Campaign
 from polarbeam.errors import InputError
 from polarbeam.instrument.deflectors import coupling
 
+__all__ = [
+    "Context",
+    "build_context",
+    "field_factor_sensitivities",
+]
+
 
 @dataclass(frozen=True)
 class Context:

@@ -58,37 +58,8 @@ from polarbeam.results.recoil import RecoilCompoundResult, RecoilResult, nominal
 from polarbeam.uncertain import FIT_TAG, variance_budget
 
 __all__ = [
-    "CM2",
-    "PLANCK",
-    "RECOIL_COLUMNS",
-    "RECOIL_OUTPUT_COLUMNS",
-    "SPEED_OF_LIGHT",
     "CrossSectionFit",
-    "Laser",
-    "LaserTruth",
-    "RecoilCampaignResult",
-    "RecoilCompound",
-    "RecoilCompoundResult",
-    "RecoilCompoundTruth",
-    "RecoilData",
-    "RecoilResult",
-    "RecoilSeries",
-    "RecoilSimulationTruth",
     "analyze_recoil",
-    "emission_factor",
-    "gaussian_effective_area",
-    "kick_phase",
-    "load_recoil",
-    "mean_photons",
-    "photon_energy",
-    "poisson_phasor",
-    "random_recoil_campaign",
-    "recoil_observables",
-    "recoil_phasor",
-    "recoil_velocity",
-    "simulate_recoil_campaign",
-    "with_recoil",
-    "write_recoil_results",
 ]
 
 #: Internal fit scale of the cross-section: 1e-16 cm² = 1e-20 m².

@@ -46,18 +46,9 @@ from polarbeam.instrument import fields as fs
 __all__ = [
     "FIELD_ERROR_KEY",
     "FRINGE_ERROR_KEY",
-    "NUMERICAL_KEYS",
-    "FieldReport",
     "NumericalDeflector",
     "NumericalModel",
     "NumericalSpec",
-    "deflector_field",
-    "field_factor_sensitivities",
-    "numerical_deflector",
-    "numerical_error_inputs",
-    "numerical_model",
-    "numerical_stated_inputs",
-    "parse_numerical_spec",
 ]
 
 #: Stated input carrying the mesh-refinement error of g (a factor 1 ± ε).

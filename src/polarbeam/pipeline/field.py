@@ -22,6 +22,12 @@ from polarbeam.instrument import fields as fs
 from polarbeam.quantities import parse_quantity
 from polarbeam.uncertain import variance_budget
 
+__all__ = [
+    "FieldReport",
+    "deflector_field",
+    "plot_deflector_field",
+]
+
 
 @dataclass(frozen=True)
 class FieldReport:

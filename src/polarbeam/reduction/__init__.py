@@ -19,11 +19,16 @@ together (:mod:`~polarbeam.reduction.reduce`) and returns a :class:`ReducedPhase
 
 from __future__ import annotations
 
-from .branches import choose_branches
-from .columns import CARRIED_COLUMNS, INPUT_COLUMNS, OUTPUT_COLUMNS, validate_scans
-from .drift import corrected_phase_covariance, interpolation_weights
-from .fit import ScanFits, fit_scans
-from .flags import (
+from polarbeam.reduction.branches import choose_branches
+from polarbeam.reduction.columns import (
+    CARRIED_COLUMNS,
+    INPUT_COLUMNS,
+    OUTPUT_COLUMNS,
+    validate_scans,
+)
+from polarbeam.reduction.drift import corrected_phase_covariance, interpolation_weights
+from polarbeam.reduction.fit import ScanFits, fit_scans
+from polarbeam.reduction.flags import (
     FLAG_NAMES,
     ILL_CONDITIONED,
     LOW_VISIBILITY,
@@ -35,13 +40,13 @@ from .flags import (
     ZERO_COUNTS,
     describe_flags,
 )
-from .groups import TWO_PI
-from .linalg import Sym6
-from .noise import NoiseEstimate, NoiseModel, NoiseScope, estimate_excess_noise
-from .reading import read_scans, read_table
-from .reduce import reduce_file, reduce_table
-from .result import DenseOnAccess, ReducedPhases, SeriesKey
-from .writing import read_phase_covariance, write_phases
+from polarbeam.reduction.groups import TWO_PI
+from polarbeam.reduction.linalg import Sym6
+from polarbeam.reduction.noise import NoiseEstimate, NoiseModel, NoiseScope, estimate_excess_noise
+from polarbeam.reduction.reading import read_scans, read_table
+from polarbeam.reduction.reduce import reduce_file, reduce_table
+from polarbeam.reduction.result import DenseOnAccess, ReducedPhases, SeriesKey
+from polarbeam.reduction.writing import read_phase_covariance, write_phases
 
 __all__ = [
     "CARRIED_COLUMNS",

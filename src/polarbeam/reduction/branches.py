@@ -13,8 +13,8 @@ from collections.abc import Callable
 import numpy as np
 from numpy.typing import ArrayLike
 
-from ..errors import InputError
-from .groups import TWO_PI, group_heads
+from polarbeam.errors import InputError
+from polarbeam.reduction.groups import TWO_PI, group_heads
 
 __all__ = ["choose_branches", "grouped_branches"]
 

@@ -15,8 +15,8 @@ import math
 import numpy as np
 import pandas as pd
 
-from .._util.optional import require
-from ..errors import InputError, RowValueError
+from polarbeam._util.optional import require
+from polarbeam.errors import InputError, RowValueError
 
 __all__ = [
     "CARRIED_COLUMNS",

@@ -25,9 +25,9 @@ import numpy as np
 from numpy.typing import ArrayLike
 from scipy import sparse
 
-from ..errors import InputError
-from .flags import NO_REFERENCE_AFTER, NO_REFERENCE_BEFORE
-from .groups import pairs_within_groups
+from polarbeam.errors import InputError
+from polarbeam.reduction.flags import NO_REFERENCE_AFTER, NO_REFERENCE_BEFORE
+from polarbeam.reduction.groups import pairs_within_groups
 
 __all__ = [
     "SymmetricTriplets",

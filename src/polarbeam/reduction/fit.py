@@ -51,9 +51,9 @@ import pandas as pd
 from numpy.typing import ArrayLike
 from scipy import stats
 
-from .._util.optional import has, require
-from ..errors import InputError
-from .flags import (
+from polarbeam._util.optional import has, require
+from polarbeam.errors import InputError
+from polarbeam.reduction.flags import (
     FLAG_NAMES,
     ILL_CONDITIONED,
     LOW_VISIBILITY,
@@ -63,8 +63,8 @@ from .flags import (
     ZERO_COUNTS,
     describe_flags,
 )
-from .groups import TWO_PI, wrap
-from .linalg import Sym6, cofactors6, inv6, quad6, solve6, sym3, sym6_of
+from polarbeam.reduction.groups import TWO_PI, wrap
+from polarbeam.reduction.linalg import Sym6, cofactors6, inv6, quad6, solve6, sym3, sym6_of
 
 __all__ = ["FitSettings", "ScanFits", "fit_scans", "fit_sorted"]
 

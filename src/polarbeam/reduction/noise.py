@@ -23,8 +23,8 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike
 
-from ..errors import InputError
-from .groups import group_heads
+from polarbeam.errors import InputError
+from polarbeam.reduction.groups import group_heads
 
 __all__ = [
     "NOISE_MODELS",

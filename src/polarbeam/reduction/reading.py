@@ -13,9 +13,14 @@ from pathlib import Path
 
 import pandas as pd
 
-from .._util.optional import MissingExtraError, has, require
-from ..errors import InputError, RowValueError
-from .columns import INPUT_COLUMNS, NUMERIC_COLUMNS, PER_SCAN_COLUMNS, validate_scans
+from polarbeam._util.optional import MissingExtraError, has, require
+from polarbeam.errors import InputError, RowValueError
+from polarbeam.reduction.columns import (
+    INPUT_COLUMNS,
+    NUMERIC_COLUMNS,
+    PER_SCAN_COLUMNS,
+    validate_scans,
+)
 
 __all__ = ["read_scans", "read_table"]
 

@@ -32,9 +32,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ..errors import InputError, RowValueError
-from .branches import choose_branches, grouped_branches
-from .columns import (
+from polarbeam.errors import InputError, RowValueError
+from polarbeam.reduction.branches import choose_branches, grouped_branches
+from polarbeam.reduction.columns import (
     CARRIED_COLUMNS,
     NUMERIC_COLUMNS,
     PER_SCAN_COLUMNS,
@@ -44,11 +44,11 @@ from .columns import (
     checked_columns,
     value_changes,
 )
-from .drift import SymmetricTriplets, banded_triplets, grouped_bracket
-from .fit import FitSettings, ScanFits, fit_sorted
-from .flags import describe_flags
-from .groups import grouped_unwrap, wrap
-from .noise import (
+from polarbeam.reduction.drift import SymmetricTriplets, banded_triplets, grouped_bracket
+from polarbeam.reduction.fit import FitSettings, ScanFits, fit_sorted
+from polarbeam.reduction.flags import describe_flags
+from polarbeam.reduction.groups import grouped_unwrap, wrap
+from polarbeam.reduction.noise import (
     NOISE_MODELS,
     NOISE_SCOPES,
     NoiseEstimate,
@@ -57,8 +57,8 @@ from .noise import (
     grouped_noise_moments,
     noise_from_moments,
 )
-from .reading import read_table
-from .result import DenseOnAccess, ReducedPhases, SeriesKey
+from polarbeam.reduction.reading import read_table
+from polarbeam.reduction.result import DenseOnAccess, ReducedPhases, SeriesKey
 
 __all__ = ["reduce_file", "reduce_table"]
 

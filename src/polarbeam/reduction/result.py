@@ -9,9 +9,9 @@ from html import escape
 import numpy as np
 import pandas as pd
 
-from .drift import SymmetricTriplets
-from .fit import ScanFits
-from .noise import NoiseEstimate
+from polarbeam.reduction.drift import SymmetricTriplets
+from polarbeam.reduction.fit import ScanFits
+from polarbeam.reduction.noise import NoiseEstimate
 
 __all__ = ["DenseOnAccess", "ReducedPhases", "SeriesKey"]
 

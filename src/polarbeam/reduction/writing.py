@@ -13,8 +13,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import InputError
-from .result import ReducedPhases
+from polarbeam.errors import InputError
+from polarbeam.reduction.result import ReducedPhases
 
 __all__ = ["read_phase_covariance", "write_phases"]
 

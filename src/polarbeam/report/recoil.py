@@ -17,6 +17,15 @@ from polarbeam.results.recoil import (
 )
 from polarbeam.uncertain import variance_budget
 
+__all__ = [
+    "SPECTRUM_PLOT",
+    "recoil_markdown",
+    "recoil_markdown_lines",
+    "recoil_terminal_lines",
+    "render_recoil_only",
+    "write_recoil_results",
+]
+
 
 def render_recoil_only(result: RecoilCampaignResult) -> str:
     """Markdown report of a campaign with recoil data and no deflection data."""

@@ -25,7 +25,6 @@ __all__ = [
     "CampaignResult",
     "CompoundResult",
     "SeriesResult",
-    "variance_budget",
 ]
 
 STATUS = ("ok", "warning", "failed")  # reference compounds: extra["role"] == "reference"

@@ -20,6 +20,11 @@ from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
 from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResult
 from polarbeam.separation.debye import debye_fit, dipole_from_known_alpha, dipole_from_mu2
 
+__all__ = [
+    "make_result",
+    "separate",
+]
+
 
 def _failed(cd: CompoundData, message: str, mass_u=None) -> CompoundResult:
     return CompoundResult(cd.name, "failed", message, mass_u=mass_u)

@@ -16,6 +16,11 @@ from polarbeam.simulation.campaigns import (
     simulate_campaign,
 )
 
+__all__ = [
+    "CalibrationTruth",
+    "calibration_campaign",
+]
+
 
 @dataclass(frozen=True)
 class CalibrationTruth:

@@ -21,6 +21,14 @@ from polarbeam.contract.campaign import build_layout
 from polarbeam.contract.recoil import FLUORESCENCE_FIT, RECOIL_COLUMNS
 from polarbeam.simulation.campaigns import InstrumentSpec
 
+__all__ = [
+    "LaserTruth",
+    "RecoilCompoundTruth",
+    "RecoilSimulationTruth",
+    "random_recoil_campaign",
+    "simulate_recoil_campaign",
+]
+
 
 @dataclass(frozen=True)
 class LaserTruth:

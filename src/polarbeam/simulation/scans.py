@@ -22,11 +22,7 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike
 
-<<<<<<<< HEAD:src/polarbeam/scansim.py
 from polarbeam.errors import InputError
-========
-from ..errors import InputError
->>>>>>>> split-reduction:src/polarbeam/simulation/scans.py
 
 __all__ = ["SimulatedScans", "fringe_counts", "simulate_campaign", "simulate_series"]
 

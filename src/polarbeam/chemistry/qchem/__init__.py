@@ -29,7 +29,11 @@ properties for tables.  Computed values are electronic only (fixed nuclei): see
 from __future__ import annotations
 
 from polarbeam.chemistry.qchem.cache import default_cache_dir
-from polarbeam.chemistry.qchem.compute import ProgressCallback, compute_properties, d4_polarizability
+from polarbeam.chemistry.qchem.compute import (
+    ProgressCallback,
+    compute_properties,
+    d4_polarizability,
+)
 from polarbeam.chemistry.qchem.cost import (
     DEFAULT_COST_MODELS,
     DEFAULT_MAX_SECONDS,

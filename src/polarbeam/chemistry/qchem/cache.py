@@ -12,9 +12,9 @@ import json
 import os
 from pathlib import Path
 
-from polarbeam.errors import InputError
 from polarbeam.chemistry.qchem.geometry import Geometry
 from polarbeam.chemistry.qchem.result import RESULT_SCHEMA, ComputedResult
+from polarbeam.errors import InputError
 
 __all__ = ["cache_key", "default_cache_dir", "read_cached", "write_cached"]
 

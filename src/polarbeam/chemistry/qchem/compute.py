@@ -16,8 +16,6 @@ import numpy as np
 from scipy import constants as _sc
 
 from polarbeam._util.optional import require
-from polarbeam.constants import AU_POLARIZABILITY_SI
-from polarbeam.errors import CompoundError, InputError
 from polarbeam.chemistry.computed import isotropic_average
 from polarbeam.chemistry.qchem.cache import cache_key, default_cache_dir, read_cached, write_cached
 from polarbeam.chemistry.qchem.cost import (
@@ -31,6 +29,8 @@ from polarbeam.chemistry.qchem.geometry import DEFAULT_SEED, default_name, load_
 from polarbeam.chemistry.qchem.response import AU_DIPOLE_SI, DEFAULT_FIELD_AU, PolarizabilityScheme
 from polarbeam.chemistry.qchem.result import ComputedResult
 from polarbeam.chemistry.qchem.scf import run_pyscf
+from polarbeam.constants import AU_POLARIZABILITY_SI
+from polarbeam.errors import CompoundError, InputError
 
 __all__ = ["ProgressCallback", "compute_properties", "d4_polarizability"]
 

@@ -11,10 +11,10 @@ import math
 import time
 from dataclasses import dataclass
 
-from polarbeam.errors import CompoundError, InputError
 from polarbeam.chemistry.qchem.geometry import Geometry, geometry_from_smiles
 from polarbeam.chemistry.qchem.response import DEFAULT_FIELD_AU, PolarizabilityScheme
 from polarbeam.chemistry.qchem.scf import build_mol, is_hf, run_pyscf
+from polarbeam.errors import CompoundError, InputError
 
 __all__ = [
     "DEFAULT_COST_MODELS",

@@ -15,10 +15,10 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from polarbeam.constants import alpha_a3_from_si, debye_from_si
-from polarbeam.errors import InputError
 from polarbeam.chemistry.computed import COMPUTED_COLUMNS, anisotropy
 from polarbeam.chemistry.qchem.geometry import Geometry
+from polarbeam.constants import alpha_a3_from_si, debye_from_si
+from polarbeam.errors import InputError
 
 __all__ = ["RESULT_SCHEMA", "ComputedResult", "results_table"]
 

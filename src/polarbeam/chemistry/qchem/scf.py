@@ -15,7 +15,6 @@ from collections.abc import Callable
 import numpy as np
 
 from polarbeam._util.optional import require
-from polarbeam.errors import CompoundError, InputError
 from polarbeam.chemistry.qchem.geometry import Geometry
 from polarbeam.chemistry.qchem.response import (
     PolarizabilityScheme,
@@ -23,6 +22,7 @@ from polarbeam.chemistry.qchem.response import (
     dipole_au,
     finite_field_polarizability,
 )
+from polarbeam.errors import CompoundError, InputError
 
 __all__ = ["build_mol", "is_hf", "run_pyscf"]
 

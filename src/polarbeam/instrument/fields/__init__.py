@@ -40,7 +40,11 @@ Everything is SI (metres, volts); lengths are printed in mm only in error messag
 
 from __future__ import annotations
 
-from polarbeam.instrument.fields.analytic import two_wire_analytic, two_wire_constant, two_wire_from_radii
+from polarbeam.instrument.fields.analytic import (
+    two_wire_analytic,
+    two_wire_constant,
+    two_wire_from_radii,
+)
 from polarbeam.instrument.fields.beam import BeamField, beam_field, beam_points
 from polarbeam.instrument.fields.ends import (
     FringeResult,
@@ -57,7 +61,12 @@ from polarbeam.instrument.fields.grid import FieldSolution
 from polarbeam.instrument.fields.plot import plot_cross_section
 from polarbeam.instrument.fields.result import DeflectorSolution, field_at_beam
 from polarbeam.instrument.fields.shapes import ArcRegion, BoundaryBox, Circle, Electrode, Polygon
-from polarbeam.instrument.fields.solve import DIRECT_SOLVER_LIMIT, BoundaryMode, SolverMode, solve_laplace
+from polarbeam.instrument.fields.solve import (
+    DIRECT_SOLVER_LIMIT,
+    BoundaryMode,
+    SolverMode,
+    solve_laplace,
+)
 from polarbeam.instrument.fields.tolerances import (
     MonteCarloResult,
     ToleranceBudget,
