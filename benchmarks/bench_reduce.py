@@ -33,7 +33,7 @@ PERIOD = 2.0e-7
 
 
 def make_campaign(n_series: int, scans_per_series: int, bins: int, seed: int):
-    from polarbeam.simulation.scans import simulate_campaign
+    from polarbeam.simulation.scans import simulate_scan_table
 
     rng = np.random.default_rng(seed)
     # R S S R S S ... R: n signals give n + ceil(n/2) + 1 scans.
@@ -50,7 +50,7 @@ def make_campaign(n_series: int, scans_per_series: int, bins: int, seed: int):
                 temperature_K=300.0 + 50.0 * (i % 5),
             )
         )
-    return simulate_campaign(
+    return simulate_scan_table(
         specs,
         rng=rng,
         bins=bins,

@@ -137,7 +137,7 @@ def test_corrupt_compound_does_not_stop_the_others(tmp_path, monkeypatch):
     lines[i] = ",".join(cells)
     shifts.write_text("\n".join(lines) + "\n")
     # and one compound whose analysis raises an unexpected error
-    import polarbeam.pipeline.analysis as pipeline
+    import polarbeam.batch.run as pipeline  # the batch's own reference to the function
 
     real = pipeline.analyze_compound
 

@@ -8,39 +8,49 @@ over the measured velocity distribution, fits the effective polarizability
 propagates every stated input -- with its correlations -- into the final error bars.
 
 Everything inside is SI; units appear only where data enter (quantity strings) and leave (reports).
+The stages live in subpackages, in the order data flows (see ``docs/architecture.md``); this
+module is the public façade, loaded lazily so that ``import polarbeam`` stays light.
 """
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
+from importlib import import_module
 
-__all__ = [
-    "CampaignResult",
-    "CompoundResult",
-    "PolarbeamError",
-    "SeriesResult",
-    "__version__",
-    "analyze",
-    "load_campaign",
-]
+from polarbeam._version import __version__
+
+#: public name → module that defines it (imported on first use).
+_API: dict[str, str] = {
+    "analyze": "polarbeam.pipeline.analysis",
+    "analyze_campaign": "polarbeam.pipeline.analysis",
+    "load_campaign": "polarbeam.contract.campaign",
+    "write_report": "polarbeam.pipeline.outputs",
+    "run_batch": "polarbeam.batch.run",
+    "make_plan": "polarbeam.planning.plan",
+    "write_plan": "polarbeam.planning.plan",
+    "deflector_field": "polarbeam.pipeline.field",
+    "estimate_table": "polarbeam.chemistry.library",
+    "CampaignResult": "polarbeam.results.objects",
+    "CompoundResult": "polarbeam.results.objects",
+    "SeriesResult": "polarbeam.results.objects",
+    "Measured": "polarbeam.quantities",
+    "parse_quantity": "polarbeam.quantities",
+    "PolarbeamError": "polarbeam.errors",
+    "InputError": "polarbeam.errors",
+    "CompoundError": "polarbeam.errors",
+}
+
+__all__ = ["__version__", *sorted(_API)]
 
 
 def __getattr__(name: str):
     """Lazy public API (keeps ``import polarbeam`` light)."""
-    if name == "analyze":
-        from polarbeam.pipeline.analysis import analyze
+    module = _API.get(name)
+    if module is None:
+        raise AttributeError(f"module 'polarbeam' has no attribute {name!r}")
+    value = getattr(import_module(module), name)
+    globals()[name] = value
+    return value
 
-        return analyze
-    if name == "load_campaign":
-        from polarbeam.contract.campaign import load_campaign
 
-        return load_campaign
-    if name in ("CampaignResult", "CompoundResult", "SeriesResult"):
-        from polarbeam.results import objects as results
-
-        return getattr(results, name)
-    if name == "PolarbeamError":
-        from polarbeam.errors import PolarbeamError
-
-        return PolarbeamError
-    raise AttributeError(f"module 'polarbeam' has no attribute {name!r}")
+def __dir__() -> list[str]:
+    return sorted({*globals(), *__all__})

@@ -25,7 +25,7 @@ from polarbeam.reduction import (
     reduce_table,
 )
 from polarbeam.reduction.noise import noise_moments
-from polarbeam.simulation.scans import simulate_campaign, simulate_series
+from polarbeam.simulation.scans import simulate_scan_table, simulate_series
 
 PERIOD = 2.0e-7
 
@@ -151,7 +151,7 @@ def _pull_campaign(seed=5, n_series=120):
     for i in range(n_series):
         v = rng.permutation(np.tile(volts, 5))
         specs.append(dict(shifts_rad=6e-7 * v**2, voltages_V=v, compound=f"demo-{i:03d}"))
-    return simulate_campaign(
+    return simulate_scan_table(
         specs,
         rng=rng,
         signal_per_bin=100.0,

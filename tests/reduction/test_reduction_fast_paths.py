@@ -12,7 +12,7 @@ import pytest
 
 from polarbeam.errors import InputError, RowValueError
 from polarbeam.reduction import reduce_file, reduce_table
-from polarbeam.simulation.scans import simulate_campaign
+from polarbeam.simulation.scans import simulate_scan_table
 
 PERIOD = 2.0e-7
 
@@ -30,7 +30,7 @@ def _multi_series(seed=4, n_series=4):
                 temperature_K=300.0 + 100.0 * (i // 2),
             )
         )
-    return simulate_campaign(specs, rng=rng, bins=20, signal_per_bin=80.0).table
+    return simulate_scan_table(specs, rng=rng, bins=20, signal_per_bin=80.0).table
 
 
 def test_all_series_at_once_equals_one_series_at_a_time():

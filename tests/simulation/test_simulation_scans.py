@@ -19,7 +19,7 @@ import pytest
 from scipy import stats
 
 from polarbeam.reduction import INPUT_COLUMNS, fit_scans, reduce_table
-from polarbeam.simulation.scans import fringe_counts, simulate_campaign, simulate_series
+from polarbeam.simulation.scans import fringe_counts, simulate_scan_table, simulate_series
 
 PERIOD = 2.0e-7
 
@@ -85,7 +85,7 @@ def campaign():
     for i in range(60):  # 12 signal scans and 7 references per series
         v = rng.permutation(np.tile(volts, 4))
         specs.append(dict(shifts_rad=4e-7 * v**2, voltages_V=v, compound=f"sim-{i:02d}"))
-    return simulate_campaign(
+    return simulate_scan_table(
         specs, rng=rng, signal_per_bin=80.0, dark_per_bin=1.0, visibility=0.3, bins=32
     )
 

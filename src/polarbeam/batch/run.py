@@ -38,10 +38,10 @@ import numpy as np
 from uncertainties import UFloat
 from uncertainties.core import AffineScalarFunc, LinearCombination, Variable
 
-from polarbeam import __version__
 from polarbeam._util.atomic import write_text_atomic
 from polarbeam._util.tables import read_table
 from polarbeam._util.text import safe_name
+from polarbeam._version import __version__
 from polarbeam.calibration.calibrate import calibration_required
 from polarbeam.contract.campaign import load_campaign
 from polarbeam.errors import InputError, PolarbeamError

@@ -1,4 +1,10 @@
-"""TODO docstring."""
+"""Photon recoil: the response of a molecule to the photons of a laser pulse (plain functions).
+
+A pulse crossing the beam between the gratings kicks each absorbing molecule by ħk/m; the fringe
+becomes a Poisson mixture of shifted patterns, R = ⟨exp(n̄(e^{iφ1(v)} − 1))⟩ with n̄ = σE/(Aħω),
+whose phase and visibility versus pulse energy give the absolute cross-section σ. Optional
+isotropic re-emission multiplies each photon's factor by (1 − q) + q·sin φe/φe.
+"""
 
 from __future__ import annotations
 

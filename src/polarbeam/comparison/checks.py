@@ -1,4 +1,11 @@
-"""TODO docstring."""
+"""Measured against predicted and computed: the structure cross-check and the computed-chemistry
+comparison tables attached to results.
+
+:func:`cross_check` sets the additive α and the force-field ⟨μ²⟩ of a compound's structure against
+each measured α_eff and the measured α (z-scores and a verdict); :func:`computed_comparison`
+reads computed values (``computed.csv``, quantum-chemistry outputs) and builds comparison.csv,
+comparison_series.csv and the parity table.
+"""
 
 from __future__ import annotations
 

@@ -1,4 +1,10 @@
-"""TODO docstring."""
+"""The ``numerical`` deflector model in ``campaign.toml``: parsing and the solved model per campaign.
+
+Parses the electrode cross-section of ``[deflector]`` (the two-wire pair by its line-charge
+parameters or radii, or ``[[deflector.electrodes]]`` inside a grounded ``boundary``) into a
+:class:`~polarbeam.instrument.numerical.NumericalSpec` and the stated inputs, then solves it once
+per geometry (cached) with the tolerance sensitivities and end-field treatment.
+"""
 
 from __future__ import annotations
 

@@ -1,4 +1,9 @@
-"""TODO docstring."""
+"""The photon-recoil contract: ``[[laser]]`` tables and the ``recoil.csv`` input.
+
+Parses and validates the laser definitions (name, wavelength, position, area or waist, direction,
+optional energy scale) and the per-pulse-energy phases and visibility ratios into
+:class:`RecoilData`, with one-line errors naming file, key or row.
+"""
 
 from __future__ import annotations
 

@@ -1,4 +1,12 @@
-"""TODO docstring."""
+"""The campaign context of every fit: nominal layout and deflector, and the coupling C with every
+stated input attached.
+
+C = (layout scale)·∫ w g ds turns α_eff·V²/m into the observable. :func:`build_context`
+differentiates C with respect to every stated input (central differences of the model) and
+returns the ratio C_nominal/C as an uncertain number tagged per input, so each α_eff carries the
+geometry, field and mass errors with their correlations. :func:`field_factor_sensitivities` does
+the same for the field factor g alone (used by the calibration and ``polarbeam field``).
+"""
 
 from __future__ import annotations
 

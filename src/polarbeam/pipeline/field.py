@@ -1,4 +1,10 @@
-"""TODO docstring."""
+"""The deflector field at the beam for one voltage (``polarbeam field``).
+
+:func:`deflector_field` loads a campaign, builds its deflector (solving the cross-section for the
+``numerical`` model, calibrating g from reference compounds where asked) and reports E, ∂E/∂x,
+E·∂E/∂x and g at the beam with their variation across it and the numerical error;
+:func:`plot_deflector_field` draws the electrodes, equipotentials and the beam.
+"""
 
 from __future__ import annotations
 

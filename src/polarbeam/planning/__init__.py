@@ -1,1 +1,55 @@
-"""planning stage."""
+"""Campaign planning: predicted phases, voltage ladders, expected precision and beam time, and a
+rehearsal campaign.
+"""
+
+from polarbeam.planning.plan import (
+    BRANCH_Z,
+    AcquisitionSequence,
+    CampaignPlan,
+    CompoundPlan,
+    DebyePrecision,
+    LadderPrecision,
+    PlanSettings,
+    SeriesModel,
+    SeriesPlan,
+    acquisition_sequence,
+    debye_precision,
+    design_ladder,
+    even_ladder,
+    ladder_precision,
+    load_plan,
+    make_plan,
+    phase_noise_crb,
+    plan_campaign,
+    rehearsal_scans,
+    rehearsal_scatter,
+    voltage_max,
+    write_plan,
+    write_rehearsal,
+)
+
+__all__ = [
+    "BRANCH_Z",
+    "AcquisitionSequence",
+    "CampaignPlan",
+    "CompoundPlan",
+    "DebyePrecision",
+    "LadderPrecision",
+    "PlanSettings",
+    "SeriesModel",
+    "SeriesPlan",
+    "acquisition_sequence",
+    "debye_precision",
+    "design_ladder",
+    "even_ladder",
+    "ladder_precision",
+    "load_plan",
+    "make_plan",
+    "phase_noise_crb",
+    "plan_campaign",
+    "rehearsal_scans",
+    "rehearsal_scatter",
+    "voltage_max",
+    "write_plan",
+    "write_rehearsal",
+]

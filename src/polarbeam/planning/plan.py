@@ -68,10 +68,10 @@ from typing import Any, Literal
 
 import numpy as np
 
-from polarbeam import __version__
 from polarbeam._util.atomic import write_text_atomic
 from polarbeam._util.tables import read_table
 from polarbeam._util.text import finite_or_none
+from polarbeam._version import __version__
 from polarbeam.beam.velocity import mean_inverse_square
 from polarbeam.comparison.structure_check import (
     DIPOLE_REL_ERROR,

@@ -1,4 +1,4 @@
-"""TODO docstring."""
+"""Renderers of photon-recoil results: Markdown, terminal lines, recoil.csv and the spectrum plot."""
 
 from __future__ import annotations
 

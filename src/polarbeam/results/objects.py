@@ -16,7 +16,7 @@ import pandas as pd
 from uncertainties import UFloat
 
 from polarbeam._util.text import finite_or_none
-from polarbeam import __version__
+from polarbeam._version import __version__
 from polarbeam.constants import alpha_a3_from_si, alpha_au_from_si, debye_from_si
 from polarbeam.quantities import format_value_error
 from polarbeam.uncertain import variance_budget

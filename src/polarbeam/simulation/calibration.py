@@ -1,4 +1,4 @@
-"""TODO docstring."""
+"""Simulated campaigns with reference compounds (known truth), for the calibration round trips."""
 
 from __future__ import annotations
 

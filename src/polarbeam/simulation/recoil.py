@@ -1,4 +1,6 @@
-"""TODO docstring."""
+"""Simulated photon-recoil campaigns (known truth) in the input contract, for round trips and the
+worked example.
+"""
 
 from __future__ import annotations
 

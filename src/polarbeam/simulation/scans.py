@@ -24,7 +24,7 @@ from numpy.typing import ArrayLike
 
 from polarbeam.errors import InputError
 
-__all__ = ["SimulatedScans", "fringe_counts", "simulate_campaign", "simulate_series"]
+__all__ = ["SimulatedScans", "fringe_counts", "simulate_scan_table", "simulate_series"]
 
 TWO_PI = 2.0 * np.pi
 
@@ -229,7 +229,7 @@ velocity_spread_m_s
     return SimulatedScans(table=table, truth=truth)
 
 
-def simulate_campaign(
+def simulate_scan_table(
     series: Sequence[Mapping],
     *,
     rng: np.random.Generator | None = None,
