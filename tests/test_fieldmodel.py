@@ -21,11 +21,14 @@ from typer.testing import CliRunner
 
 from polarbeam.cli.commands import app
 from polarbeam.contract.campaign import load_campaign
+from polarbeam.contract.numerical import clear_model_cache, numerical_model
 from polarbeam.errors import InputError
+from polarbeam.extraction.context import build_context
 from polarbeam.instrument import fields as fs
-from polarbeam.instrument import numerical as fieldmodel
 from polarbeam.instrument.deflectors import coupling
-from polarbeam.pipeline.analysis import analyze, build_context
+from polarbeam.instrument.numerical import FRINGE_ERROR_KEY
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.pipeline.field import deflector_field
 from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 from polarbeam.uncertain import variance_budget
 
@@ -117,8 +120,7 @@ def test_numerical_campaign_reproduces_analytic_two_wire(tmp_path):
 def test_numerical_results_are_deterministic(tmp_path):
     toml = _numerical(_two_wire_campaign(tmp_path))
     first = analyze(toml)
-    fieldmodel._MODEL_CACHE.clear()
-    fieldmodel._field_factor_cached.cache_clear()
+    clear_model_cache()
     second = analyze(toml)
     a = [s.alpha_eff for c in first.compounds for s in c.series]
     b = [s.alpha_eff for c in second.compounds for s in c.series]
@@ -129,7 +131,7 @@ def test_numerical_results_are_deterministic(tmp_path):
 def test_sensitivities_match_line_charge_derivatives(tmp_path):
     toml = _numerical(_two_wire_campaign(tmp_path))
     c = load_campaign(toml)
-    model = fieldmodel.numerical_model(c)
+    model = numerical_model(c)
 
     def g(a=A, z1=Z1, z2=Z2, h=2.4e-3):  # closed form of the line-charge model
         k = 1.0 / (2.0 * (math.atan(a / z1) - math.atan(a / z2)))
@@ -207,7 +209,7 @@ potential = -0.5
 def test_beam_average_against_line_charge_potential(tmp_path):
     beam = 'beam_height = "2.4 mm"\nbeam_width = "0.4 mm"\nbeam_thickness = "0.3 mm"'
     toml = _electrode_campaign(tmp_path, beam)
-    d = fieldmodel.deflector_field(toml, "10 kV")
+    d = deflector_field(toml, "10 kV")
 
     def g(y, x):  # closed-form line-charge field factor (per V²)
         return abs(fs.two_wire_analytic(x, y, A, Z1, Z2, 1.0)["field_factor"])
@@ -227,7 +229,7 @@ def test_maxwell_fringe_extends_by_gap_over_pi(tmp_path):
     toml = _electrode_campaign(
         tmp_path, 'beam_height = "2.4 mm"', 'fringe = "maxwell"\nfringe_gap = "1.8 mm"'
     )
-    d = fieldmodel.deflector_field(toml, "10 kV")
+    d = deflector_field(toml, "10 kV")
     # Maxwell: each open end adds gap/(2π) to the E²-weighted length
     assert math.isclose(d.effective_length_m, 0.1 + 1.8e-3 / math.pi, rel_tol=1e-12)
 
@@ -239,11 +241,11 @@ def test_numerical_fringe_close_to_maxwell(tmp_path):
         'fringe_grid_spacing = "0.18 mm"',
     )
     c = load_campaign(toml)
-    m = fieldmodel.numerical_model(c)
+    m = numerical_model(c)
     gap = Z2 - Z1
     # thin plates (0.05 gap): close to Maxwell's 1/π within the coarse grid's own error
     assert abs(m.fringe_coefficient - 1 / math.pi) < 2 * m.fringe_error / gap + 0.03
-    assert c.stated[fieldmodel.FRINGE_ERROR_KEY].error == pytest.approx(m.fringe_error)
+    assert c.stated[FRINGE_ERROR_KEY].error == pytest.approx(m.fringe_error)
     _lay, d = c.build()
     assert math.isclose(d.effective_length, 0.1 + m.fringe_coefficient * gap, rel_tol=1e-12)
 
@@ -352,7 +354,7 @@ potential = -0.5
         "potential = 0.5\n", 'potential = 0.5\noffset = ["0 ± 0.01 mm", "0 ± 0.01 mm"]\n'
     )
     toml.write_text(text)
-    d = fieldmodel.deflector_field(toml, "10 kV")
+    d = deflector_field(toml, "10 kV")
     assert d.field_factor_per_m3 > 0 and d.E_V_per_m > 0
     assert "deflector: rod.offset[1]" in d.tolerance_budget
     # a horizontal offset changes g only at second order: its share is negligible

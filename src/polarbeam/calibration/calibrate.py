@@ -127,7 +127,10 @@ class ReferenceValue:
 def reference_tables_dir() -> Path | None:
     """The ``reference_values/`` folder of the source tree (None when not found)."""
     here = Path(__file__).resolve()
-    for cand in (here.parents[2] / "reference_values", here.parent / "data" / "reference_values"):
+    for cand in (
+        here.parents[3] / "reference_values",
+        here.parents[1] / "data" / "reference_values",
+    ):
         if (cand / "polarizabilities.csv").is_file():
             return cand
     return None

@@ -33,6 +33,7 @@ from polarbeam.quantities import Measured, parse_quantity
 
 __all__ = [
     "NUMERICAL_KEYS",
+    "clear_model_cache",
     "numerical_deflector",
     "numerical_error_inputs",
     "numerical_model",
@@ -493,3 +494,9 @@ def numerical_error_inputs(c) -> dict[str, Measured]:
     if m.fringe_error > 0:
         out[FRINGE_ERROR_KEY] = Measured(0.0, m.fringe_error)
     return out
+
+
+def clear_model_cache() -> None:
+    """Forget every solved model (the next campaign solves its cross-section afresh)."""
+    _MODEL_CACHE.clear()
+    field_factor_cached.cache_clear()

@@ -20,6 +20,7 @@ from typing import Any
 
 import numpy as np
 
+from polarbeam._util.optional import has
 from polarbeam.constants import BOLTZMANN, alpha_a3_from_si, debye_from_si
 from polarbeam.results.objects import CampaignResult, CompoundResult
 from polarbeam.uncertain import variance_budget
@@ -81,12 +82,8 @@ _STYLE = {
 
 
 def have_matplotlib() -> bool:
-    """Whether the optional plotting dependency is installed."""
-    try:
-        import matplotlib  # noqa: F401
-    except ImportError:
-        return False
-    return True
+    """Whether the optional plotting dependency is installed (extra ``polarbeam[plots]``)."""
+    return has("matplotlib")
 
 
 def _mpl():
