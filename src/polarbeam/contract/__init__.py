@@ -28,12 +28,21 @@ from polarbeam.contract.recoil import (
     RecoilSeries,
     load_recoil,
 )
+from polarbeam.contract.schema import (
+    OBSERVABLE_COLUMNS,
+    SHIFT_COLUMNS_COMMON,
+    AnalysisSettings,
+    CompoundData,
+    SeriesData,
+)
 
 __all__ = [
     "FLUORESCENCE_FIT",
     "LASER_KEYS",
     "NUMERICAL_KEYS",
+    "OBSERVABLE_COLUMNS",
     "RECOIL_COLUMNS",
+    "SHIFT_COLUMNS_COMMON",
     "AnalysisSettings",
     "Campaign",
     "CompoundData",

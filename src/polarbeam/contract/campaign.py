@@ -44,6 +44,13 @@ from polarbeam.contract.numerical import (
     numerical_stated_inputs,
 )
 from polarbeam.contract.recoil import load_recoil
+from polarbeam.contract.schema import (
+    OBSERVABLE_COLUMNS,
+    SHIFT_COLUMNS_COMMON,
+    AnalysisSettings,
+    CompoundData,
+    SeriesData,
+)
 from polarbeam.errors import CompoundError, InputError, QuantityError, RowValueError
 from polarbeam.instrument.deflectors import (
     DEFLECTOR_MODELS,
@@ -58,10 +65,7 @@ from polarbeam.quantities import Measured, parse_quantity
 from polarbeam.reduction import reduce_file
 
 __all__ = [
-    "AnalysisSettings",
     "Campaign",
-    "CompoundData",
-    "SeriesData",
     "load_campaign",
 ]
 
@@ -135,111 +139,6 @@ _MODEL_KEYS = {
 }
 _SPATIAL_KEYS = ({"entrance"}, {"length"})
 _TIME_KEYS = ({"field_on"}, {"field_duration", "waveform"})
-
-SHIFT_COLUMNS_COMMON = (
-    "compound",
-    "temperature_K",
-    "temperature_err_K",
-    "velocity_m_s",
-    "velocity_err_m_s",
-    "velocity_spread_m_s",
-    "voltage_V",
-)
-OBSERVABLE_COLUMNS = {
-    "talbot-lau": ("phase_rad", "phase_err_rad"),
-    "time-domain": ("phase_rad", "phase_err_rad"),
-    "beam-profile": ("shift_m", "shift_err_m"),
-}
-
-
-@dataclass(frozen=True)
-class AnalysisSettings:
-    """Options of the ``[analysis]`` table (all optional)."""
-
-    velocity_nodes: int = 48
-    fit_offset: bool = True
-    scale_errors: str = "never"  # "never" | "birge" (inflate by sqrt(χ²/ν) when > 1)
-    upper_limit_cl: float = 0.95
-    dipole_significance: float = 3.0
-    orientation_warning: float = 0.2  # warn when μE/kT exceeds this at the largest field
-    structure_check: bool = True  # compare with structure-based predictions when possible
-    conformers: int = 10  # conformers for the predicted dipole (0: no dipole prediction)
-    conformer_seed: int = 61453
-    calibration: str = "auto"  # "auto" | "check" | "off": use of reference compounds
-    mass: str = "average"  # mass from a structure when mass_u is empty: average | monoisotopic
-
-    def __post_init__(self):
-        if self.scale_errors not in ("never", "birge"):
-            raise InputError(
-                "[analysis] scale_errors: expected one of 'never', 'birge', "
-                f"found {self.scale_errors!r}"
-            )
-        if not (isinstance(self.velocity_nodes, int) and 4 <= self.velocity_nodes <= 400):
-            raise InputError(
-                f"[analysis] velocity_nodes: expected an integer 4..400, found "
-                f"{self.velocity_nodes!r}"
-            )
-        if not 0.5 < self.upper_limit_cl < 1:
-            raise InputError(
-                f"[analysis] upper_limit_cl: expected 0.5 < cl < 1, found {self.upper_limit_cl!r}"
-            )
-        if not (isinstance(self.conformers, int) and 0 <= self.conformers <= 1000):
-            raise InputError(
-                f"[analysis] conformers: expected an integer 0..1000, found {self.conformers!r}"
-            )
-        if self.mass not in ("average", "monoisotopic"):
-            raise InputError(
-                f"[analysis] mass: expected one of 'average', 'monoisotopic', found {self.mass!r}"
-            )
-        if self.calibration not in ("auto", "check", "off"):
-            raise InputError(
-                "[analysis] calibration: expected one of 'auto', 'check', 'off', "
-                f"found {self.calibration!r}"
-            )
-        if not self.dipole_significance > 0:
-            raise InputError(
-                f"[analysis] dipole_significance: expected > 0, found {self.dipole_significance!r}"
-            )
-
-
-@dataclass(frozen=True)
-class SeriesData:
-    """Points of one compound at one source temperature."""
-
-    compound: str
-    temperature: Measured
-    velocity: Measured
-    velocities: np.ndarray
-    spreads: np.ndarray
-    voltages: np.ndarray
-    values: np.ndarray
-    errors: np.ndarray
-    lines: tuple[int, ...]
-    covariance: np.ndarray | None = None
-    visibility: np.ndarray | None = None
-    visibility_err: np.ndarray | None = None
-
-    @property
-    def label(self) -> str:
-        return f"{self.compound} @ {self.temperature.value:g} K"
-
-    @property
-    def n_points(self) -> int:
-        return int(self.voltages.size)
-
-
-@dataclass(frozen=True)
-class CompoundData:
-    """A compound: its mass, its series, its extra columns and any row problem found."""
-
-    name: str
-    mass: Measured | None
-    series: tuple[SeriesData, ...] = ()
-    extra: dict[str, str] = field(default_factory=dict)
-    problem: str | None = None
-    alpha_known: Measured | None = None
-    dipole_known: Measured | None = None
-    notes: tuple[str, ...] = ()  # e.g. scans dropped by the fringe reduction
 
 
 @dataclass(frozen=True)
