@@ -4,10 +4,7 @@ parses unit strings.
 """
 
 from polarbeam.contract.campaign import (
-    AnalysisSettings,
     Campaign,
-    CompoundData,
-    SeriesData,
     load_campaign,
 )
 from polarbeam.contract.numerical import (
