@@ -1,12 +1,19 @@
-"""Atomic file output: write to a temporary file in the same folder, then rename over the target."""
+"""Atomic file output, the one writer every stage uses.
+
+A file is written to a temporary file in the target's folder and renamed over the target, so
+readers (and a run killed half-way) see either the old or the whole new file. The new file gets
+the mode an ordinary ``open`` would give it (0666 less the umask), not ``mkstemp``'s 0600.
+"""
 
 from __future__ import annotations
 
 import os
 import tempfile
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
-__all__ = ["write_bytes_atomic", "write_text_atomic"]
+__all__ = ["atomic_path", "write_bytes_atomic", "write_text_atomic"]
 
 
 def _umask() -> int:
@@ -15,25 +22,33 @@ def _umask() -> int:
     return mask
 
 
-def write_bytes_atomic(path: str | Path, data: bytes) -> None:
-    """Write ``data`` to ``path`` so that readers see either the old or the whole new file."""
+@contextmanager
+def atomic_path(path: str | Path) -> Iterator[Path]:
+    """Yield a temporary path beside ``path``; on success it replaces ``path``, else it is removed.
+
+    For writers that want a file name (``DataFrame.to_csv``, ``to_parquet``, streamed CSV).
+    """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
-        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; outputs are for colleagues too
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
+        os.fchmod(fd, 0o666 & ~_umask())  # outputs are for colleagues too
+        os.close(fd)
+        yield Path(tmp)
+        with open(tmp, "rb") as fh:  # flush the data to disk before the rename
             os.fsync(fh.fileno())
         os.replace(tmp, path)
     except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
+        Path(tmp).unlink(missing_ok=True)
         raise
 
 
+def write_bytes_atomic(path: str | Path, data: bytes) -> None:
+    """Write ``data`` to ``path`` so that readers see either the old or the whole new file."""
+    with atomic_path(path) as tmp:
+        tmp.write_bytes(data)
+
+
 def write_text_atomic(path: str | Path, text: str) -> None:
+    """:func:`write_bytes_atomic` of UTF-8 text."""
     write_bytes_atomic(path, text.encode("utf-8"))

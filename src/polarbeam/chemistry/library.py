@@ -11,12 +11,12 @@ from __future__ import annotations
 import csv
 import math
 import os
-import tempfile
 from collections.abc import Iterable
 from pathlib import Path
 
 from rdkit import Chem, rdBase
 
+from polarbeam._util.atomic import atomic_path
 from polarbeam.chemistry.additive import DEFAULT_SCHEME, SCHEMES, fast_estimates
 from polarbeam.chemistry.conformers import (
     DEFAULT_CHARGE_MODEL,
@@ -195,16 +195,7 @@ def _write_csv_atomic(out: Path, header: list[str], rows: Iterable[list[str]]) -
     directory = out.parent if str(out.parent) else Path(".")
     if not directory.is_dir():
         raise InputError(f"{out}: output directory {directory} does not exist")
-    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", suffix=".tmp", dir=directory)
-    try:
-        with os.fdopen(fd, "w", newline="", encoding="utf-8") as fh:
-            w = csv.writer(fh)
-            w.writerow(header)
-            w.writerows(rows)
-        os.replace(tmp, out)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    with atomic_path(out) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(header)
+        w.writerows(rows)

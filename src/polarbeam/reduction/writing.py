@@ -7,28 +7,15 @@ target with :func:`os.replace`, so readers see either the old or the whole new f
 from __future__ import annotations
 
 import os
-import tempfile
-from collections.abc import Callable
 from pathlib import Path
 
 import numpy as np
 
+from polarbeam._util.atomic import atomic_path
 from polarbeam.errors import InputError
 from polarbeam.reduction.result import ReducedPhases
 
 __all__ = ["read_phase_covariance", "write_phases"]
-
-
-def _atomic_write(path: Path, write: Callable[[Path], None]) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    os.close(fd)
-    try:
-        write(Path(tmp))
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
 
 
 def write_phases(
@@ -52,9 +39,11 @@ def write_phases(
     path = Path(path)
     suffix = path.suffix.lower()
     if suffix == ".csv":
-        _atomic_write(path, lambda p: reduced.table.to_csv(p, index=False))
+        with atomic_path(path) as tmp:
+            reduced.table.to_csv(tmp, index=False)
     elif suffix in (".parquet", ".pq"):
-        _atomic_write(path, lambda p: reduced.table.to_parquet(p, index=False))
+        with atomic_path(path) as tmp:
+            reduced.table.to_parquet(tmp, index=False)
     else:
         raise InputError(f"{path}: unknown table format {suffix!r} (expected .csv or .parquet)")
     if covariance_path is not None:
@@ -66,11 +55,8 @@ def write_phases(
             arrays[f"cov_{i}"] = reduced.covariance[key]
             arrays[f"scan_{i}"] = reduced.kept_scans(key)
 
-        def save(p: Path) -> None:
-            with open(p, "wb") as fh:
-                np.savez(fh, **arrays)
-
-        _atomic_write(Path(covariance_path), save)
+        with atomic_path(covariance_path) as tmp, open(tmp, "wb") as fh:
+            np.savez(fh, **arrays)
 
 
 def read_phase_covariance(

@@ -12,6 +12,7 @@ import json
 import os
 from pathlib import Path
 
+from polarbeam._util.atomic import write_text_atomic
 from polarbeam.chemistry.qchem.geometry import Geometry
 from polarbeam.chemistry.qchem.result import RESULT_SCHEMA, ComputedResult
 from polarbeam.errors import InputError
@@ -53,7 +54,4 @@ def read_cached(path: Path) -> ComputedResult | None:
 
 def write_cached(path: Path, result: ComputedResult) -> None:
     """Write ``result`` to ``path`` (temporary file in the same folder, then os.replace)."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_suffix(f".tmp{os.getpid()}")
-    tmp.write_text(json.dumps(result.summary(), indent=1, sort_keys=True))
-    os.replace(tmp, path)
+    write_text_atomic(path, json.dumps(result.summary(), indent=1, sort_keys=True))
