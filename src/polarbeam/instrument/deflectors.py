@@ -293,7 +293,7 @@ def overlap(layout, deflector) -> float:
         def value_at(x):
             return np.interp(x, s, g)
 
-    knots = np.unique(np.concatenate([s, np.asarray(layout._knots()[0], dtype=float)]))
+    knots = np.unique(np.concatenate([s, np.asarray(layout.knots()[0], dtype=float)]))
     knots = knots[(knots >= s[0]) & (knots <= s[-1])]
     mids = 0.5 * (knots[1:] + knots[:-1])
     gk, gm = value_at(knots), value_at(mids)

@@ -69,18 +69,18 @@ class _TriangleWeight:
         if not self.period > 0:
             raise InputError(f"[instrument] grating_period: expected > 0, found {self.period!r}")
 
-    def _knots(self):
+    def knots(self):
         a, b, c = self._points()
         return (a, b, c), (0.0, c - b, 0.0)
 
     def weight(self, s):
         """Weight w(s) (m for positions, s for times)."""
-        xs, ws = self._knots()
+        xs, ws = self.knots()
         return np.interp(np.asarray(s, dtype=float), xs, ws, left=0.0, right=0.0)
 
     def weight_integral(self, a: float, b: float) -> float:
         """∫_a^b w ds, exact (m² for positions, s² for times)."""
-        xs, ws = self._knots()
+        xs, ws = self.knots()
         return piecewise_linear_integral(xs, ws, a, b)
 
     @property
@@ -129,7 +129,7 @@ class BeamProfile:
         z = np.asarray(z, dtype=float)
         return np.where(z < self.detector, self.detector - z, 0.0)
 
-    def _knots(self):
+    def knots(self):
         """Knot of the piecewise-linear weight (its kink at the detector), as ``overlap`` needs."""
         return (self.detector,), (0.0,)
 

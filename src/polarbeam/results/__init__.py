@@ -1,0 +1,31 @@
+"""Typed result objects (series, compound, campaign, photon recoil) and their JSON records. Read by
+the renderers; compute nothing beyond unit conversions.
+"""
+
+from polarbeam.results.objects import (
+    CampaignResult,
+    CompoundResult,
+    SeriesResult,
+)
+from polarbeam.results.recoil import (
+    RECOIL_OUTPUT_COLUMNS,
+    RecoilCampaignResult,
+    RecoilCompoundResult,
+    RecoilResult,
+    nominal_values,
+    std_devs,
+    with_recoil,
+)
+
+__all__ = [
+    "CampaignResult",
+    "CompoundResult",
+    "RECOIL_OUTPUT_COLUMNS",
+    "RecoilCampaignResult",
+    "RecoilCompoundResult",
+    "RecoilResult",
+    "SeriesResult",
+    "nominal_values",
+    "std_devs",
+    "with_recoil",
+]
