@@ -1,0 +1,24 @@
+"""Helpers of the batch tests: small campaigns written by the project's simulator (data invented
+by the simulator) and the output files a batch is compared by."""
+
+from __future__ import annotations
+
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
+
+OUTPUTS = ("series.csv", "properties.csv", "results.json", "report.md", "report.html")
+TEMPS = (300.0, 450.0, 600.0)
+
+
+def make_campaign(path, n=5, seed=11):
+    comps = [
+        CompoundTruth(f"mol-{i}", 100.0 + 40 * i, 15.0 + 5 * i, 0.8 * i, TEMPS) for i in range(n)
+    ]
+    simulate_campaign(path, comps, spec=InstrumentSpec.talbot_lau(), seed=seed, n_voltages=6)
+    return path / "campaign.toml"
+
+
+def output_files(folder):
+    out = {name: (folder / name).read_bytes() for name in OUTPUTS}
+    for f in sorted((folder / "compounds").glob("*.json")):
+        out[f"compounds/{f.name}"] = f.read_bytes()
+    return out
