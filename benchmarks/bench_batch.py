@@ -5,9 +5,9 @@ Run on demand (not part of the test suite)::
     PYTHONPATH=src python benchmarks/bench_batch.py [--sizes 250,500,1000] [--json out.json]
 
 Simulates campaigns of 250, 500 and 1,000 compounds (3 source temperatures × 10 voltages each,
-Talbot–Lau layout, written by :mod:`polarbeam.simulation.campaigns`), then times the command-line run end to
-end as a subprocess (load, analysis, per-compound records, CSV/JSON/Markdown, report.html and
-figures/):
+Talbot–Lau layout, written by :mod:`polarbeam.simulation.campaigns`), then times the command-line
+run end to end as a subprocess (load, analysis, per-compound records, CSV/JSON/Markdown, report.html
+and figures/):
 
 * scaling: ``--jobs 2 --report-details 0`` for every size (the report has its table but no
   figure sections, whose cost does not grow with the library): wall time, compounds per second,

@@ -1,9 +1,10 @@
 """Pull study of the reference-compound calibration (run on demand; numbers in docs/calibration.md).
 
 Simulates campaigns whose uniform field factor is known only through one or two reference
-compounds (``polarbeam.calibration.calibrate.calibration_campaign``), analyses them and prints, for the
-unknowns' α_eff and α, the calibrated g and the references' own α_eff: the number of pulls, the
-fraction with |pull| < 1 (68.3 % for honest Gaussian errors), the mean and the spread, and the time
+compounds (``polarbeam.simulation.calibration.calibration_campaign``), analyses them and prints,
+for the unknowns' α_eff and α, the calibrated g and the references' own α_eff: the number of pulls,
+the fraction with |pull| < 1 (68.3 % for honest Gaussian errors), the mean and the spread, and the
+time
 per campaign.
 
     python benchmarks/calibration_pulls.py [n_campaigns] [seed]

@@ -49,7 +49,7 @@ def _imports(name: str, tree: ast.AST, is_package: bool):
     for node in ast.walk(tree):
         if isinstance(node, ast.ImportFrom):
             if node.level:
-                mod = ".".join(base[: len(base) - node.level + 1] + [node.module or ""]).strip(".")
+                mod = ".".join([*base[: len(base) - node.level + 1], node.module or ""]).strip(".")
             else:
                 mod = node.module or ""
             if mod == "polarbeam" or mod.startswith("polarbeam."):

@@ -41,11 +41,10 @@ from polarbeam.beam.photon_recoil import (
     recoil_phasor,
 )
 from polarbeam.cli.commands import app
-from polarbeam.constants import AMU
+from polarbeam.constants import AMU, CM2
 from polarbeam.contract.campaign import load_campaign
 from polarbeam.errors import InputError
 from polarbeam.extraction.recoil import (
-    CM2,
     gaussian_effective_area,
     photon_energy,
     recoil_observables,

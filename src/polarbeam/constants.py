@@ -17,6 +17,7 @@ __all__ = [
     "ANGSTROM3_SI",
     "AU_POLARIZABILITY_SI",
     "BOLTZMANN",
+    "CM2",
     "CONSTANTS",
     "DEBYE_SI",
     "EPSILON0",
@@ -103,3 +104,7 @@ def si_from_debye(mu_d):
 def langevin_debye_si(mu_si, temperature_k):
     """Orientational (Langevin–Debye) polarizability ⟨μ²⟩/(3kT) in C·m²/V, high-T limit."""
     return mu_si**2 / (3.0 * BOLTZMANN * temperature_k)
+
+
+#: One cm² in m² (cross-sections are reported in cm², the unit of the trade).
+CM2 = 1e-4

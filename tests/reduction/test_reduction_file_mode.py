@@ -12,8 +12,9 @@ from polarbeam.reduction import write_phases
 
 
 class _Reduced:  # the attributes write_phases reads
-    table = pd.DataFrame({"compound": ["a"], "phase_rad": [0.1]})
-    covariance: dict = {}
+    def __init__(self):
+        self.table = pd.DataFrame({"compound": ["a"], "phase_rad": [0.1]})
+        self.covariance: dict = {}
 
 
 def test_phases_file_gets_the_umask_mode(tmp_path):

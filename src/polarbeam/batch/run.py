@@ -2,7 +2,7 @@
 
 Work is split per compound.  A worker rebuilds the campaign itself from the campaign path
 (:func:`~polarbeam.contract.campaign.load_campaign` and
-:func:`~polarbeam.pipeline.analysis.build_context`, cached per process;
+:func:`~polarbeam.extraction.context.build_context`, cached per process;
 :mod:`polarbeam.batch.workers`) and sends back each compound's result as a plain, JSON-ready
 *record* (:func:`~polarbeam.batch.records.encode_compound`).  Records carry every
 correlated :mod:`uncertainties` value exactly: the nominal value, the derivative with respect to

@@ -3,7 +3,7 @@ processes, or on a Dask cluster.
 
 A worker rebuilds the campaign itself from the campaign path
 (:func:`~polarbeam.contract.campaign.load_campaign` and
-:func:`~polarbeam.pipeline.analysis.build_context`, cached per process) and sends back each
+:func:`~polarbeam.extraction.context.build_context`, cached per process) and sends back each
 compound's result as a record (:func:`~polarbeam.batch.records.encode_compound`).
 """
 

@@ -15,6 +15,7 @@ from scipy import constants as _sc
 from uncertainties import umath
 
 from polarbeam.beam.velocity import velocity_nodes
+from polarbeam.constants import CM2
 
 __all__ = [
     "CM2",
@@ -37,10 +38,6 @@ PLANCK = _sc.h
 
 #: Speed of light in vacuum (m/s), exact (SI definition), via scipy.constants.
 SPEED_OF_LIGHT = _sc.c
-
-
-#: One cm² in m².
-CM2 = 1e-4
 
 
 #: Largest number of steps used to track the phase continuously from n̄ = 0.

@@ -638,7 +638,8 @@ def load_campaign(path: str | Path) -> Campaign:
     defl = doc.get("deflector", {})
     layout = _require_str(inst, "layout", f"{fname} [instrument]", LAYOUTS)
     data = doc.get("data", {})
-    # photon recoil (polarbeam.extraction.recoil): [data] recoil makes shifts, and then [deflector], optional
+    # photon recoil (polarbeam.contract.recoil): [data] recoil makes shifts and [deflector]
+    # optional
     has_recoil = "recoil" in data or "laser" in doc
     if has_recoil and not ({"shifts", "scans"} & set(data)) and "deflector" not in doc:
         model = "none"

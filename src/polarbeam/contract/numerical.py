@@ -1,4 +1,4 @@
-"""The ``numerical`` deflector model in ``campaign.toml``: parsing and the solved model per campaign.
+"""The ``numerical`` deflector model of ``campaign.toml``: parsing, and the solved model.
 
 Parses the electrode cross-section of ``[deflector]`` (the two-wire pair by its line-charge
 parameters or radii, or ``[[deflector.electrodes]]`` inside a grounded ``boundary``) into a

@@ -91,7 +91,7 @@ def build_context(c: Campaign) -> Context:
 def field_factor_sensitivities(c) -> tuple[float, dict[str, float]]:
     """Nominal g of the campaign's deflector and ∂ln g/∂p for every stated input with an error.
 
-    Central differences of the model, as :func:`polarbeam.pipeline.analysis.build_context` does for the
+    Central differences of the model, as :func:`build_context` does for the
     coupling (for the numerical model they act on its first-order expansion, so they are exact).
     """
     _lay, d0 = c.build()

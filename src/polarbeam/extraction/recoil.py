@@ -2,8 +2,8 @@
 
 A molecule that absorbs one photon of wavelength λ picks up the transverse velocity
 Δv = ħk/m = h/(λ m).  A kick at z_L (spatial layouts) shifts its fringe by
-Δx = (Δv/v)·w(z_L), with the layout weight w of :mod:`polarbeam.instrument.layouts`; in the time-domain
-layout Δx = Δv·w(t_L).  One photon therefore turns the fringe phasor by φ1 = 2π Δx/d.
+Δx = (Δv/v)·w(z_L), with the layout weight w of :mod:`polarbeam.instrument.layouts`; in the
+time-domain layout Δx = Δv·w(t_L).  One photon therefore turns the fringe phasor by φ1 = 2π Δx/d.
 
 The number of absorbed photons is Poisson distributed with mean n̄ = σ E/(A ħω) for a pulse of
 energy E spread over an effective area A (top hat; a Gaussian beam of waist w0 whose axis is
@@ -41,9 +41,7 @@ import uncertainties
 from scipy import stats
 from uncertainties import UFloat, ufloat
 
-from polarbeam._util.text import finite_or_none
 from polarbeam.beam.photon_recoil import (
-    CM2,
     gaussian_effective_area,
     photon_energy,
     recoil_observables,
@@ -54,8 +52,14 @@ from polarbeam.contract.campaign import build_layout
 from polarbeam.contract.recoil import Laser, RecoilCompound, RecoilData
 from polarbeam.errors import CompoundError, FitError, InputError
 from polarbeam.quantities import Measured, format_value_error
-from polarbeam.results.recoil import RecoilCompoundResult, RecoilResult, nominal_values, std_devs
-from polarbeam.uncertain import FIT_TAG, variance_budget
+from polarbeam.results.recoil import (
+    CrossSectionFit,
+    RecoilCompoundResult,
+    RecoilResult,
+    nominal_values,
+    std_devs,
+)
+from polarbeam.uncertain import FIT_TAG
 
 __all__ = [
     "CrossSectionFit",
@@ -248,78 +252,6 @@ def _jacobian(fun, x0: np.ndarray, steps: np.ndarray) -> np.ndarray:
         xm[k] -= h
         cols.append((fun(xp) - fun(xm)) / (2 * h))
     return np.column_stack(cols)
-
-
-@dataclass(frozen=True)
-class CrossSectionFit:
-    """σ of one compound at one laser, with the points and the model."""
-
-    compound: str
-    laser: str
-    wavelength_m: float
-    cross_section: UFloat  # m²
-    mean_photons_at_max: float
-    chi2: float
-    ndof: float
-    pulse_energies: np.ndarray
-    phases: np.ndarray
-    phase_errors: np.ndarray
-    visibility_ratios: np.ndarray
-    visibility_errors: np.ndarray
-    model_phases: np.ndarray
-    model_visibility: np.ndarray
-
-    @property
-    def cross_section_cm2(self) -> float:
-        return self.cross_section.nominal_value / CM2
-
-    @property
-    def cross_section_err_cm2(self) -> float:
-        return self.cross_section.std_dev / CM2
-
-    @property
-    def reduced_chi2(self) -> float:
-        return self.chi2 / self.ndof if self.ndof > 0 else math.nan
-
-    @property
-    def n_points(self) -> int:
-        return int(self.pulse_energies.size)
-
-    def summary(self) -> dict[str, Any]:
-        return {
-            "laser": self.laser,
-            "wavelength_nm": self.wavelength_m * 1e9,
-            "cross_section_cm2": self.cross_section_cm2,
-            "cross_section_err_cm2": self.cross_section_err_cm2,
-            "cross_section_m2": self.cross_section.nominal_value,
-            "cross_section_err_m2": self.cross_section.std_dev,
-            "mean_photons_at_max": self.mean_photons_at_max,
-            "chi2": self.chi2,
-            "ndof": self.ndof,
-            "reduced_chi2": finite_or_none(self.reduced_chi2),
-            "budget": variance_budget(self.cross_section),
-            "points": [
-                {
-                    "pulse_energy_J": float(e),
-                    "phase_rad": float(p),
-                    "phase_err_rad": float(pe),
-                    "model_phase_rad": float(mp),
-                    "visibility_ratio": float(v),
-                    "visibility_ratio_err": float(ve),
-                    "model_visibility_ratio": float(mv),
-                }
-                for e, p, pe, mp, v, ve, mv in zip(
-                    self.pulse_energies,
-                    self.phases,
-                    self.phase_errors,
-                    self.model_phases,
-                    self.visibility_ratios,
-                    self.visibility_errors,
-                    self.model_visibility,
-                    strict=True,
-                )
-            ],
-        }
 
 
 def _failed(rc: RecoilCompound, message: str, mass_u=None) -> RecoilCompoundResult:

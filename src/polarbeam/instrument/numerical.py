@@ -8,8 +8,8 @@ cross-section and hands the pipeline a deflector like any other model.
 
 Cost and determinism
 --------------------
-:func:`polarbeam.pipeline.analysis.build_context` differentiates the coupling with respect to every stated
-input by finite differences of the *model*.  Solving Laplace's equation for every such
+:func:`polarbeam.extraction.context.build_context` differentiates the coupling with respect to
+every stated input by finite differences of the *model*.  Solving Laplace's equation for every such
 difference would be slow and, for steps far below the grid spacing, noisy.  Instead the
 cross-section is solved once at the nominal geometry (three nested grids, Richardson-extrapolated)
 and once at ``p ± max(σ, h/2)`` for every geometric input ``p`` that carries an error

@@ -1,9 +1,9 @@
 """The analysis pipeline: campaign → per-series α_eff → per-compound α and μ.
 
 :func:`analyze` is the public entry point; :func:`analyze_campaign` works on a loaded
-:class:`~polarbeam.contract.campaign.Campaign` and :func:`analyze_compound` on one compound, so a batch can
-spread compounds over processes.  A :class:`~polarbeam.errors.CompoundError` (or any numerical
-failure) inside one compound marks only that compound ``failed``.
+:class:`~polarbeam.contract.campaign.Campaign` and :func:`analyze_compound` on one compound, so a
+batch can spread compounds over processes.  A :class:`~polarbeam.errors.CompoundError` (or any
+numerical failure) inside one compound marks only that compound ``failed``.
 """
 
 from __future__ import annotations

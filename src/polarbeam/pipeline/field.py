@@ -20,12 +20,12 @@ from polarbeam.calibration.calibrate import (
     check_calibration_inputs,
     field_factor_missing,
 )
+from polarbeam.contract.arguments import parse_voltage
 from polarbeam.contract.campaign import Campaign, load_campaign
 from polarbeam.contract.numerical import numerical_model
 from polarbeam.errors import InputError
 from polarbeam.extraction.context import field_factor_sensitivities
 from polarbeam.instrument import fields as fs
-from polarbeam.quantities import parse_quantity
 from polarbeam.uncertain import variance_budget
 
 __all__ = [
@@ -143,13 +143,6 @@ class FieldReport:
         return "\n".join(lines)
 
 
-def _parse_voltage(voltage) -> float:
-    v = parse_quantity(voltage, "V", where="--voltage").value
-    if not (math.isfinite(v) and v != 0):
-        raise InputError(f"--voltage: expected a non-zero voltage, found {voltage!r}")
-    return abs(v)
-
-
 def _load(campaign):
     return campaign if isinstance(campaign, Campaign) else load_campaign(campaign)
 
@@ -163,7 +156,7 @@ def deflector_field(campaign, voltage) -> FieldReport:
     ``field_per_volt`` is given.
     """
     c = _load(campaign)
-    V = _parse_voltage(voltage)
+    V = parse_voltage(voltage)
     _lay, d = c.build()
     tol_sigma, budget = None, {}
     calib = None
@@ -264,7 +257,7 @@ def deflector_field(campaign, voltage) -> FieldReport:
 def plot_deflector_field(campaign, path, voltage) -> Path:
     """Equipotentials, electrodes and the beam of the campaign's cross-section (``--plot``)."""
     c = _load(campaign)
-    V = _parse_voltage(voltage)
+    V = parse_voltage(voltage)
     _lay, d = c.build()
     if c.model == "numerical":
         m = numerical_model(c)

@@ -116,7 +116,8 @@ def render_markdown(result: CampaignResult) -> str:
         else:
             dip = "—"
         lines.append(
-            f"| {md_escape(c.compound)} | {value_error_text(r['alpha_A3'], r['alpha_err_A3'])} | {dip} | "
+            f"| {md_escape(c.compound)} | "
+            f"{value_error_text(r['alpha_A3'], r['alpha_err_A3'])} | {dip} | "
             f"{c.status} | {md_escape(c.message)} |"
         )
     for note in result.notes:
@@ -222,7 +223,8 @@ def _parity_lines(result: CampaignResult) -> list[str]:
         ]
         for r in cmp_.to_dict(orient="records"):
             out.append(
-                f"| {md_escape(r['compound'])} | {md_escape(r['method'])} | {r['alpha_computed_A3']:.2f} | "
+                f"| {md_escape(r['compound'])} | {md_escape(r['method'])} | "
+                f"{r['alpha_computed_A3']:.2f} | "
                 f"{value_error_text(r['alpha_measured_A3'], r['alpha_measured_err_A3'])} | "
                 f"{r['alpha_diff_A3']:+.2f} |"
             )

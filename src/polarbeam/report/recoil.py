@@ -1,4 +1,4 @@
-"""Renderers of photon-recoil results: Markdown, terminal lines, recoil.csv and the spectrum plot."""
+"""Renderers of photon-recoil results: Markdown, terminal lines, recoil.csv, spectrum plot."""
 
 from __future__ import annotations
 
@@ -32,7 +32,8 @@ def render_recoil_only(result: RecoilCampaignResult) -> str:
     lines = [
         f"# {md_escape(result.title)}",
         "",
-        f"polarbeam {result.version} · layout `{result.layout}` · source `{md_escape(result.source)}`",
+        f"polarbeam {result.version} · layout `{result.layout}` · "
+        f"source `{md_escape(result.source)}`",
         "",
     ]
     for note in result.notes:
@@ -117,7 +118,7 @@ def recoil_markdown_lines(recoil: RecoilResult) -> list[str]:
         for f in c.fits:
             out.append(
                 f"| {md_escape(c.compound)} | {md_escape(f.laser)} | {f.wavelength_m * 1e9:g} | "
-                f"{value_error_text(f.cross_section_cm2 / 1e-16, f.cross_section_err_cm2 / 1e-16)} | "
+                f"{_sigma_text(f)} | "
                 f"{f.mean_photons_at_max:.3g} | {f.reduced_chi2:.2f} | {c.status} |"
             )
     for note in recoil.notes:
@@ -144,7 +145,7 @@ def recoil_markdown_lines(recoil: RecoilResult) -> list[str]:
             out += [
                 "",
                 f"Laser {md_escape(f.laser)} ({f.wavelength_m * 1e9:g} nm): "
-                f"σ = ({value_error_text(f.cross_section_cm2 / 1e-16, f.cross_section_err_cm2 / 1e-16)})"
+                f"σ = ({_sigma_text(f)})"
                 "·10⁻¹⁶ cm²",
                 "",
                 "| E (J) | phase (rad) | model | pull | visibility ratio | model | pull |",
@@ -203,3 +204,8 @@ def recoil_terminal_lines(recoil: RecoilResult) -> list[str]:
 
 def recoil_markdown(recoil: RecoilResult) -> str:
     return "\n".join(recoil_markdown_lines(recoil)) + "\n"
+
+
+def _sigma_text(fit) -> str:
+    """σ of a fit as "value ± error" in units of 10⁻¹⁶ cm²."""
+    return value_error_text(fit.cross_section_cm2 / 1e-16, fit.cross_section_err_cm2 / 1e-16)

@@ -18,9 +18,9 @@ from polarbeam.results.recoil import (
 )
 
 __all__ = [
+    "RECOIL_OUTPUT_COLUMNS",
     "CampaignResult",
     "CompoundResult",
-    "RECOIL_OUTPUT_COLUMNS",
     "RecoilCampaignResult",
     "RecoilCompoundResult",
     "RecoilResult",

@@ -1,22 +1,28 @@
-"""Typed results of photon-recoil fits: per compound, per campaign, and their JSON records.
-"""
+"""Typed results of photon-recoil fits: per compound, per campaign, and their JSON records."""
 
 from __future__ import annotations
 
 import html
+import math
 from dataclasses import dataclass, field, fields
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import uncertainties
 from uncertainties import UFloat
 
-from polarbeam.quantities import value_error_text
 from polarbeam._util.text import finite_or_none
-from polarbeam.results.objects import CampaignResult, variance_budget
+from polarbeam.constants import CM2
+from polarbeam.quantities import value_error_text
+from polarbeam.results.objects import CampaignResult
+from polarbeam.uncertain import variance_budget
+
+if TYPE_CHECKING:  # annotation only: results hold the contract's laser records
+    from polarbeam.contract.recoil import Laser
 
 __all__ = [
     "RECOIL_OUTPUT_COLUMNS",
+    "CrossSectionFit",
     "RecoilCampaignResult",
     "RecoilCompoundResult",
     "RecoilResult",
@@ -179,7 +185,9 @@ class RecoilResult:
             for f in c.fits or (None,):
                 cells = ["—", "—", "—"]
                 if f is not None:
-                    sig = value_error_text(f.cross_section_cm2 / 1e-16, f.cross_section_err_cm2 / 1e-16)
+                    sig = value_error_text(
+                        f.cross_section_cm2 / 1e-16, f.cross_section_err_cm2 / 1e-16
+                    )
                     cells = [f.laser, f"{f.wavelength_m * 1e9:g}", sig]
                 rows.append(
                     "<tr>"
@@ -198,7 +206,7 @@ class RecoilResult:
 
 @dataclass(frozen=True)
 class RecoilCampaignResult(CampaignResult):
-    """A :class:`~polarbeam.results.objects.CampaignResult` with the photon-recoil results attached."""
+    """A :class:`~polarbeam.results.objects.CampaignResult` with photon-recoil results attached."""
 
     recoil: RecoilResult | None = None
 
@@ -227,3 +235,75 @@ def with_recoil(result: CampaignResult, recoil: RecoilResult) -> RecoilCampaignR
     """``result`` with the recoil results attached (all deflection fields unchanged)."""
     kw = {f.name: getattr(result, f.name) for f in fields(CampaignResult)}
     return RecoilCampaignResult(**kw, recoil=recoil)
+
+
+@dataclass(frozen=True)
+class CrossSectionFit:
+    """σ of one compound at one laser, with the points and the model."""
+
+    compound: str
+    laser: str
+    wavelength_m: float
+    cross_section: UFloat  # m²
+    mean_photons_at_max: float
+    chi2: float
+    ndof: float
+    pulse_energies: np.ndarray
+    phases: np.ndarray
+    phase_errors: np.ndarray
+    visibility_ratios: np.ndarray
+    visibility_errors: np.ndarray
+    model_phases: np.ndarray
+    model_visibility: np.ndarray
+
+    @property
+    def cross_section_cm2(self) -> float:
+        return self.cross_section.nominal_value / CM2
+
+    @property
+    def cross_section_err_cm2(self) -> float:
+        return self.cross_section.std_dev / CM2
+
+    @property
+    def reduced_chi2(self) -> float:
+        return self.chi2 / self.ndof if self.ndof > 0 else math.nan
+
+    @property
+    def n_points(self) -> int:
+        return int(self.pulse_energies.size)
+
+    def summary(self) -> dict[str, Any]:
+        return {
+            "laser": self.laser,
+            "wavelength_nm": self.wavelength_m * 1e9,
+            "cross_section_cm2": self.cross_section_cm2,
+            "cross_section_err_cm2": self.cross_section_err_cm2,
+            "cross_section_m2": self.cross_section.nominal_value,
+            "cross_section_err_m2": self.cross_section.std_dev,
+            "mean_photons_at_max": self.mean_photons_at_max,
+            "chi2": self.chi2,
+            "ndof": self.ndof,
+            "reduced_chi2": finite_or_none(self.reduced_chi2),
+            "budget": variance_budget(self.cross_section),
+            "points": [
+                {
+                    "pulse_energy_J": float(e),
+                    "phase_rad": float(p),
+                    "phase_err_rad": float(pe),
+                    "model_phase_rad": float(mp),
+                    "visibility_ratio": float(v),
+                    "visibility_ratio_err": float(ve),
+                    "model_visibility_ratio": float(mv),
+                }
+                for e, p, pe, mp, v, ve, mv in zip(
+                    self.pulse_energies,
+                    self.phases,
+                    self.phase_errors,
+                    self.model_phases,
+                    self.visibility_ratios,
+                    self.visibility_errors,
+                    self.model_visibility,
+                    strict=True,
+                )
+            ],
+        }
