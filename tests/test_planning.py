@@ -19,10 +19,8 @@ from typer.testing import CliRunner
 from polarbeam.cli.commands import app
 from polarbeam.errors import InputError
 from polarbeam.pipeline.analysis import analyze
-from polarbeam.planning.plan import (
+from polarbeam.planning import (
     SeriesModel,
-    _fixed_covariance,
-    _precision_core,
     acquisition_sequence,
     debye_precision,
     even_ladder,
@@ -35,6 +33,7 @@ from polarbeam.planning.plan import (
     voltage_max,
     write_plan,
 )
+from polarbeam.planning.precision import fixed_covariance, precision_core
 from polarbeam.reduction import fit_scans
 
 runner = CliRunner()
@@ -102,10 +101,10 @@ def test_fisher_of_independent_points_is_the_weighted_line_fit():
     rng = np.random.default_rng(3)
     x = np.sort(rng.uniform(0.01, 0.2, 12))
     sig = rng.uniform(0.05, 0.2, 12)
-    var_a, _, _ = _precision_core(x, sig**2, None, np.zeros((12, 12)), True)
+    var_a, _, _ = precision_core(x, sig**2, None, np.zeros((12, 12)), True)
     _, cov = np.polyfit(x, rng.normal(size=12), 1, w=1 / sig, cov="unscaled")
     assert var_a == pytest.approx(cov[0, 0], rel=1e-10)
-    var_1, _, _ = _precision_core(x, sig**2, None, np.zeros((12, 12)), False)
+    var_1, _, _ = precision_core(x, sig**2, None, np.zeros((12, 12)), False)
     assert var_1 == pytest.approx(1 / np.sum(x**2 / sig**2), rel=1e-10)  # through the origin
 
 
@@ -129,7 +128,7 @@ def test_drift_corrected_covariance_against_monte_carlo():
     interp = np.stack([np.interp(ts, tr, row) for row in ref])
     corrected = phase[:, ~seq.is_reference] - interp
     mc = np.cov(corrected, rowvar=False)
-    analytic = _fixed_covariance(seq, var_r, diff) + var_s * np.eye(ts.size)
+    analytic = fixed_covariance(seq, var_r, diff) + var_s * np.eye(ts.size)
     assert np.allclose(mc, analytic, atol=6 * analytic.max() / math.sqrt(n_draw))
 
 
