@@ -10,7 +10,7 @@ from typing import Any, Literal
 from polarbeam._util.tables import read_table
 from polarbeam.constants import AMU
 from polarbeam.contract import campaign as cm
-from polarbeam.errors import CompoundError, InputError, QuantityError
+from polarbeam.errors import CompoundError, InputError
 from polarbeam.quantities import Measured, parse_quantity
 
 __all__ = ["CRITERIA", "PLAN_KEYS", "Criterion", "PlanCompound", "PlanSettings", "load_plan"]
@@ -114,7 +114,103 @@ def _plan_error(fname: str, key: str, expected: str, found) -> InputError:
     return InputError(f"{fname} [plan] {key}: expected {expected}, found {found!r}")
 
 
-def _parse_settings(table: dict, fname: str, layout: str) -> PlanSettings:
+# Readers of single keys -----------------------------------------------------------------------
+
+
+def _quantity(
+    table: dict, fname: str, key: str, default=None, *, positive=False, nonneg=False
+) -> Measured | None:
+    if key not in table:
+        return default
+    m = parse_quantity(table[key], PLAN_KEYS[key] or "", where=f"{fname} [plan] {key}")
+    if positive and not m.value > 0:
+        raise _plan_error(fname, key, "a value > 0", table[key])
+    if nonneg and m.value < 0:
+        raise _plan_error(fname, key, "a value >= 0", table[key])
+    return m
+
+
+def _number(
+    table: dict,
+    fname: str,
+    key: str,
+    default=None,
+    *,
+    lo=None,
+    hi=None,
+    integer=False,
+    open_lo=False,
+):
+    if key not in table:
+        return default
+    v = table[key]
+    ok = isinstance(v, int | float) and not isinstance(v, bool)
+    if integer:
+        ok = isinstance(v, int) and not isinstance(v, bool)
+    if ok and not math.isfinite(v):
+        ok = False
+    if ok and lo is not None and (v < lo or (open_lo and v == lo)):
+        ok = False
+    if ok and hi is not None and v > hi:
+        ok = False
+    if not ok:
+        kind = "an integer" if integer else "a number"
+        rng = ""
+        if lo is not None and hi is not None:
+            rng = f" in {'(' if open_lo else '['}{lo:g}, {hi:g}]"
+        elif lo is not None:
+            rng = f" {'>' if open_lo else '>='} {lo:g}"
+        raise _plan_error(fname, key, kind + rng, v)
+    return int(v) if integer else float(v)
+
+
+def _require(table: dict, fname: str, key: str, hint: str = "") -> None:
+    if key not in table:
+        raise InputError(f"{fname} [plan] {key}: required key missing{hint}")
+
+
+def _per_temperature(
+    table: dict,
+    fname: str,
+    key: str,
+    temps: tuple[float, ...] | None,
+    default=None,
+    *,
+    positive=False,
+    nonneg=False,
+) -> tuple[Measured, ...] | None:
+    if key not in table:
+        return None if default is None else (default,)
+    raw = table[key]
+    if isinstance(raw, list):
+        if temps is None:
+            raise InputError(
+                f"{fname} [plan] {key}: a list (one value per temperature) needs "
+                "temperatures_K; with temperature_range_K give one value"
+            )
+        if len(raw) != len(temps):
+            raise InputError(
+                f"{fname} [plan] {key}: expected {len(temps)} values (one per temperature of "
+                f"temperatures_K), found {len(raw)}"
+            )
+        items = raw
+    else:
+        items = [raw]
+    out = []
+    for item in items:
+        m = parse_quantity(item, PLAN_KEYS[key] or "", where=f"{fname} [plan] {key}")
+        if positive and not m.value > 0:
+            raise _plan_error(fname, key, "values > 0", raw)
+        if nonneg and m.value < 0:
+            raise _plan_error(fname, key, "values >= 0", raw)
+        out.append(m)
+    return tuple(out)
+
+
+# Groups of keys, in the order they are checked ------------------------------------------------
+
+
+def _check_unknown_keys(table: dict, fname: str) -> None:
     unknown = [k for k in table if k not in PLAN_KEYS]
     if unknown:
         raise InputError(
@@ -122,47 +218,17 @@ def _parse_settings(table: dict, fname: str, layout: str) -> PlanSettings:
             f"expected one of {', '.join(PLAN_KEYS)}"
         )
 
-    def q(key: str, default=None, *, positive=False, nonneg=False) -> Measured | None:
-        if key not in table:
-            return default
-        try:
-            m = parse_quantity(table[key], PLAN_KEYS[key] or "", where=f"{fname} [plan] {key}")
-        except QuantityError:
-            raise
-        if positive and not m.value > 0:
-            raise _plan_error(fname, key, "a value > 0", table[key])
-        if nonneg and m.value < 0:
-            raise _plan_error(fname, key, "a value >= 0", table[key])
-        return m
 
-    def number(key: str, default=None, *, lo=None, hi=None, integer=False, open_lo=False):
-        if key not in table:
-            return default
-        v = table[key]
-        ok = isinstance(v, int | float) and not isinstance(v, bool)
-        if integer:
-            ok = isinstance(v, int) and not isinstance(v, bool)
-        if ok and not math.isfinite(v):
-            ok = False
-        if ok and lo is not None and (v < lo or (open_lo and v == lo)):
-            ok = False
-        if ok and hi is not None and v > hi:
-            ok = False
-        if not ok:
-            kind = "an integer" if integer else "a number"
-            rng = ""
-            if lo is not None and hi is not None:
-                rng = f" in {'(' if open_lo else '['}{lo:g}, {hi:g}]"
-            elif lo is not None:
-                rng = f" {'>' if open_lo else '>='} {lo:g}"
-            raise _plan_error(fname, key, kind + rng, v)
-        return int(v) if integer else float(v)
+def _is_temperature_list(raw) -> bool:
+    return isinstance(raw, list) and all(
+        isinstance(t, int | float) and not isinstance(t, bool) and t > 0 for t in raw
+    )
 
-    def required(key: str, hint: str = "") -> None:
-        if key not in table:
-            raise InputError(f"{fname} [plan] {key}: required key missing{hint}")
 
-    # temperatures
+def _temperatures(
+    table: dict, fname: str
+) -> tuple[tuple[float, ...] | None, tuple[float, float] | None, int]:
+    """``temperatures_K`` or ``temperature_range_K`` (exactly one), and ``n_temperatures``."""
     temps = rng_t = None
     if "temperatures_K" in table and "temperature_range_K" in table:
         raise InputError(
@@ -170,11 +236,7 @@ def _parse_settings(table: dict, fname: str, layout: str) -> PlanSettings:
         )
     if "temperatures_K" in table:
         raw = table["temperatures_K"]
-        if not (
-            isinstance(raw, list)
-            and raw
-            and all(isinstance(t, int | float) and not isinstance(t, bool) and t > 0 for t in raw)
-        ):
+        if not (_is_temperature_list(raw) and raw):
             raise _plan_error(fname, "temperatures_K", "a list of temperatures > 0 (K)", raw)
         temps = tuple(sorted(float(t) for t in raw))
         if len(set(temps)) != len(temps):
@@ -186,12 +248,7 @@ def _parse_settings(table: dict, fname: str, layout: str) -> PlanSettings:
             )
     elif "temperature_range_K" in table:
         raw = table["temperature_range_K"]
-        if not (
-            isinstance(raw, list)
-            and len(raw) == 2
-            and all(isinstance(t, int | float) and not isinstance(t, bool) and t > 0 for t in raw)
-            and raw[0] < raw[1]
-        ):
+        if not (_is_temperature_list(raw) and len(raw) == 2 and raw[0] < raw[1]):
             raise _plan_error(
                 fname, "temperature_range_K", "[lowest, highest] in K, lowest first", raw
             )
@@ -201,65 +258,64 @@ def _parse_settings(table: dict, fname: str, layout: str) -> PlanSettings:
             f"{fname} [plan] temperatures_K: required key missing (or temperature_range_K with "
             "n_temperatures)"
         )
-    n_t = number("n_temperatures", len(temps) if temps else 3, lo=1, hi=8, integer=True)
+    n_t = _number(
+        table, fname, "n_temperatures", len(temps) if temps else 3, lo=1, hi=8, integer=True
+    )
+    return temps, rng_t, n_t
 
-    def per_t(
-        key: str, default=None, *, positive=False, nonneg=False
-    ) -> tuple[Measured, ...] | None:
-        if key not in table:
-            return None if default is None else (default,)
-        raw = table[key]
-        if isinstance(raw, list):
-            if temps is None:
-                raise InputError(
-                    f"{fname} [plan] {key}: a list (one value per temperature) needs "
-                    "temperatures_K; with temperature_range_K give one value"
-                )
-            if len(raw) != len(temps):
-                raise InputError(
-                    f"{fname} [plan] {key}: expected {len(temps)} values (one per temperature of "
-                    f"temperatures_K), found {len(raw)}"
-                )
-            items = raw
-        else:
-            items = [raw]
-        out = []
-        for item in items:
-            m = parse_quantity(item, PLAN_KEYS[key] or "", where=f"{fname} [plan] {key}")
-            if positive and not m.value > 0:
-                raise _plan_error(fname, key, "values > 0", raw)
-            if nonneg and m.value < 0:
-                raise _plan_error(fname, key, "values >= 0", raw)
-            out.append(m)
-        return tuple(out)
 
-    timing = layout == "time-domain"
-    if not timing:
-        required("velocity", ' (mean detected velocity, e.g. "210 ± 1.3 m/s")')
-        required("velocity_spread", ' (1σ of the velocity distribution; "0 m/s" if monochromatic)')
-    vel = per_t("velocity", Measured(1.0, 0.0), positive=True)
-    spread = per_t("velocity_spread", Measured(0.0, 0.0), nonneg=True)
-    required("visibility", " (zero-field fringe visibility, 0 < V <= 1)")
-    vis = number("visibility", lo=0.0, hi=1.0, open_lo=True)
-    required("scan_time", ' (duration of one grating scan, e.g. "20 s")')
-    scan_time = q("scan_time", positive=True).value
+def _velocity_distribution(
+    table: dict, fname: str, layout: str, temps: tuple[float, ...] | None
+) -> tuple[tuple[Measured, ...], tuple[Measured, ...]]:
+    """``velocity`` and ``velocity_spread`` (required unless the layout is time-domain)."""
+    if layout != "time-domain":
+        _require(table, fname, "velocity", ' (mean detected velocity, e.g. "210 ± 1.3 m/s")')
+        _require(
+            table,
+            fname,
+            "velocity_spread",
+            ' (1σ of the velocity distribution; "0 m/s" if monochromatic)',
+        )
+    vel = _per_temperature(table, fname, "velocity", temps, Measured(1.0, 0.0), positive=True)
+    spread = _per_temperature(
+        table, fname, "velocity_spread", temps, Measured(0.0, 0.0), nonneg=True
+    )
+    return vel, spread
+
+
+def _signal(table: dict, fname: str, temps: tuple[float, ...] | None):
+    """``visibility``, ``scan_time`` and one of ``count_rate``, ``counts_per_bin``,
+    ``phase_noise`` (with ``dark_rate`` only beside the first two)."""
+    _require(table, fname, "visibility", " (zero-field fringe visibility, 0 < V <= 1)")
+    vis = _number(table, fname, "visibility", lo=0.0, hi=1.0, open_lo=True)
+    _require(table, fname, "scan_time", ' (duration of one grating scan, e.g. "20 s")')
+    scan_time = _quantity(table, fname, "scan_time", positive=True).value
     given = [k for k in ("count_rate", "counts_per_bin", "phase_noise") if k in table]
     if len(given) != 1:
         raise InputError(
             f"{fname} [plan] count_rate: expected exactly one of count_rate, counts_per_bin, "
             f"phase_noise, found {', '.join(given) if given else 'none'}"
         )
-    rate = per_t("count_rate", positive=True)
-    cpb = number("counts_per_bin", lo=0.0, open_lo=True)
-    noise = q("phase_noise", positive=True)
+    rate = _per_temperature(table, fname, "count_rate", temps, positive=True)
+    cpb = _number(table, fname, "counts_per_bin", lo=0.0, open_lo=True)
+    noise = _quantity(table, fname, "phase_noise", positive=True)
     if noise is not None and "dark_rate" in table:
         raise InputError(
             f"{fname} [plan] dark_rate: give it with count_rate or counts_per_bin; phase_noise "
             "already includes the dark counts"
         )
-    vfloor = number("visibility_floor", 0.3 * vis, lo=0.0)
+    return vis, scan_time, rate, cpb, noise
+
+
+def _visibility_floor(table: dict, fname: str, vis: float) -> float:
+    vfloor = _number(table, fname, "visibility_floor", 0.3 * vis, lo=0.0)
     if vfloor >= vis:
         raise _plan_error(fname, "visibility_floor", f"a value below visibility ({vis:g})", vfloor)
+    return vfloor
+
+
+def _ladder(table: dict, fname: str) -> str | tuple[float, ...]:
+    """``ladder``: 'optimal', 'even' or the stated voltages (sorted |V|)."""
     ladder = table.get("ladder", "optimal")
     if isinstance(ladder, list):
         if not (
@@ -275,22 +331,79 @@ def _parse_settings(table: dict, fname: str, layout: str) -> PlanSettings:
         ladder = tuple(sorted(abs(float(v)) for v in ladder))
     elif ladder not in ("optimal", "even"):
         raise _plan_error(fname, "ladder", "'optimal', 'even' or a list of voltages (V)", ladder)
+    return ladder
+
+
+def _choices(table: dict, fname: str) -> tuple[str, bool]:
+    """``temperature_criterion`` and ``rehearsal``."""
     crit = table.get("temperature_criterion", "determinant")
     if crit not in CRITERIA:
         raise _plan_error(fname, "temperature_criterion", "one of " + ", ".join(CRITERIA), crit)
     rehearsal = table.get("rehearsal", True)
     if not isinstance(rehearsal, bool):
         raise _plan_error(fname, "rehearsal", "true or false", rehearsal)
-    vt = number("velocity_temperature_K", lo=0.0, open_lo=True)
-    n_volt = number("n_voltages", 6, lo=2, hi=40, integer=True)
+    return crit, rehearsal
+
+
+def _voltages(table: dict, fname: str, ladder) -> tuple[int, float | None]:
+    """``n_voltages`` (the stated ladder's length wins) and ``voltage_limit``."""
+    n_volt = _number(table, fname, "n_voltages", 6, lo=2, hi=40, integer=True)
     if isinstance(ladder, tuple):
         n_volt = len(ladder)
-    vlim = q("voltage_limit", positive=True)
+    vlim = _quantity(table, fname, "voltage_limit", positive=True)
+    return n_volt, None if vlim is None else vlim.value
+
+
+def _acquisition(table: dict, fname: str) -> dict[str, Any]:
+    """Temperature error, dark counts, bins and the acquisition order."""
+
+    def q(key, default):
+        return _quantity(table, fname, key, Measured(default), nonneg=True).value
+
+    return {
+        "temperature_err_K": q("temperature_err", 0.0),
+        "dark_rate": q("dark_rate", 0.0),
+        "bins": _number(table, fname, "bins", 40, lo=4, hi=100000, integer=True),
+        "scan_dead_time": q("scan_dead_time", 0.0),
+        "reference_every": _number(table, fname, "reference_every", 2, lo=1, hi=1000, integer=True),
+        "scans_per_voltage": _number(
+            table, fname, "scans_per_voltage", 2, lo=1, hi=10000, integer=True
+        ),
+    }
+
+
+def _limits_and_targets(table: dict, fname: str) -> dict[str, Any]:
+    """Phase limit, drift and diffusion, precision targets, design margin and seed."""
+    return {
+        "phase_limit": _quantity(table, fname, "phase_limit", Measured(3.0), positive=True).value,
+        "phase_drift": _quantity(table, fname, "phase_drift", Measured(0.0)).value,
+        "phase_diffusion": _quantity(
+            table, fname, "phase_diffusion", Measured(0.0), nonneg=True
+        ).value,
+        "target_alpha_rel": _number(table, fname, "target_alpha_rel", lo=0.0, open_lo=True),
+        "target_dipole_D": _number(table, fname, "target_dipole_D", lo=0.0, open_lo=True),
+        "design_margin": _number(table, fname, "design_margin", 0.0, lo=0.0),
+        "seed": _number(table, fname, "seed", 0, lo=0, integer=True),
+    }
+
+
+def _parse_settings(table: dict, fname: str, layout: str) -> PlanSettings:
+    """The ``[plan]`` table of ``fname`` as :class:`PlanSettings` (one-line InputError if bad)."""
+    _check_unknown_keys(table, fname)
+    temps, rng_t, n_t = _temperatures(table, fname)
+    vel, spread = _velocity_distribution(table, fname, layout, temps)
+    vis, scan_time, rate, cpb, noise = _signal(table, fname, temps)
+    vfloor = _visibility_floor(table, fname, vis)
+    ladder = _ladder(table, fname)
+    crit, rehearsal = _choices(table, fname)
+    vt = _number(table, fname, "velocity_temperature_K", lo=0.0, open_lo=True)
+    n_volt, vlim = _voltages(table, fname, ladder)
+    acquisition = _acquisition(table, fname)
+    limits = _limits_and_targets(table, fname)
     return PlanSettings(
         temperatures_K=temps,
         temperature_range_K=rng_t,
         n_temperatures=n_t,
-        temperature_err_K=q("temperature_err", Measured(0.0), nonneg=True).value,
         velocity=vel,
         velocity_spread=tuple(m.value for m in spread),
         velocity_temperature_K=vt,
@@ -298,25 +411,15 @@ def _parse_settings(table: dict, fname: str, layout: str) -> PlanSettings:
         count_rate=None if rate is None else tuple(m.value for m in rate),
         counts_per_bin=cpb,
         phase_noise=None if noise is None else noise.value,
-        dark_rate=q("dark_rate", Measured(0.0), nonneg=True).value,
-        bins=number("bins", 40, lo=4, hi=100000, integer=True),
         scan_time=scan_time,
-        scan_dead_time=q("scan_dead_time", Measured(0.0), nonneg=True).value,
-        reference_every=number("reference_every", 2, lo=1, hi=1000, integer=True),
-        scans_per_voltage=number("scans_per_voltage", 2, lo=1, hi=10000, integer=True),
         n_voltages=n_volt,
         ladder=ladder,
-        voltage_limit=None if vlim is None else vlim.value,
-        phase_limit=q("phase_limit", Measured(3.0), positive=True).value,
+        voltage_limit=vlim,
         visibility_floor=vfloor,
-        phase_drift=q("phase_drift", Measured(0.0)).value,
-        phase_diffusion=q("phase_diffusion", Measured(0.0), nonneg=True).value,
-        target_alpha_rel=number("target_alpha_rel", lo=0.0, open_lo=True),
-        target_dipole_D=number("target_dipole_D", lo=0.0, open_lo=True),
         temperature_criterion=crit,
-        design_margin=number("design_margin", 0.0, lo=0.0),
         rehearsal=rehearsal,
-        seed=number("seed", 0, lo=0, integer=True),
+        **acquisition,
+        **limits,
     )
 
 
