@@ -241,7 +241,7 @@ def build_deflector(c: Campaign, v: dict[str, float]):
     )
 
 
-def _check_keys(doc: dict, fname: str) -> None:
+def check_keys(doc: dict, fname: str) -> None:
     unknown = [k for k in doc if k not in _SCHEMA and k not in _ARRAY_TABLES]
     if unknown == ["plan"]:
         raise InputError(
@@ -265,7 +265,7 @@ def _check_keys(doc: dict, fname: str) -> None:
             )
 
 
-def _require_str(table: dict, key: str, where: str, choices=None) -> str:
+def require_str(table: dict, key: str, where: str, choices=None) -> str:
     if key not in table:
         raise InputError(f"{where} {key}: required key missing")
     val = table[key]
@@ -276,7 +276,7 @@ def _require_str(table: dict, key: str, where: str, choices=None) -> str:
     return val
 
 
-def _stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, Measured]:
+def stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, Measured]:
     stated: dict[str, Measured] = {}
     inst, defl = doc.get("instrument", {}), doc.get("deflector", {})
 
@@ -394,7 +394,7 @@ def _read_waveform(path: Path):
     return tuple(ts), tuple(amps)
 
 
-def _settings(doc: dict, fname: str) -> AnalysisSettings:
+def analysis_settings(doc: dict, fname: str) -> AnalysisSettings:
     a = doc.get("analysis", {})
     kinds: dict[str, Callable] = {
         "velocity_nodes": int,
@@ -424,7 +424,7 @@ def _settings(doc: dict, fname: str) -> AnalysisSettings:
         raise InputError(f"{fname} {exc}") from None
 
 
-def _data_path(base: Path, doc: dict, key: str, fname: str, required=True) -> Path | None:
+def data_path(base: Path, doc: dict, key: str, fname: str, required=True) -> Path | None:
     data = doc.get("data", {})
     if key not in data:
         if required:
@@ -633,10 +633,10 @@ def load_campaign(path: str | Path) -> Campaign:
     path = Path(path)
     fname = path.name
     doc = read_toml(path)
-    _check_keys(doc, fname)
+    check_keys(doc, fname)
     inst = doc.get("instrument", {})
     defl = doc.get("deflector", {})
-    layout = _require_str(inst, "layout", f"{fname} [instrument]", LAYOUTS)
+    layout = require_str(inst, "layout", f"{fname} [instrument]", LAYOUTS)
     data = doc.get("data", {})
     # photon recoil (polarbeam.contract.recoil): [data] recoil makes shifts and [deflector]
     # optional
@@ -644,17 +644,17 @@ def load_campaign(path: str | Path) -> Campaign:
     if has_recoil and not ({"shifts", "scans"} & set(data)) and "deflector" not in doc:
         model = "none"
     else:
-        model = _require_str(defl, "model", f"{fname} [deflector]", DEFLECTOR_MODELS)
+        model = require_str(defl, "model", f"{fname} [deflector]", DEFLECTOR_MODELS)
     title = doc.get("campaign", {}).get("title", path.stem)
     if not isinstance(title, str):
         raise InputError(f"{fname} [campaign] title: expected a string, found {title!r}")
-    stated = _stated_inputs(doc, fname, layout, model)
-    settings = _settings(doc, fname)
+    stated = stated_inputs(doc, fname, layout, model)
+    settings = analysis_settings(doc, fname)
     base = path.parent
     field_map, waveform = deflector_files(defl, base, fname, layout, model)
     data = doc.get("data", {})
-    compounds_path = _data_path(base, doc, "compounds", fname)
-    structures = _load_structures(base, doc, fname)
+    compounds_path = data_path(base, doc, "compounds", fname)
+    structures = load_structures(base, doc, fname)
     reduction = None
     notes: dict[str, list[str]] = {}
     ignored: tuple[str, ...] = ()
@@ -666,12 +666,12 @@ def load_campaign(path: str | Path) -> Campaign:
                 f"{fname} [data] scans: raw fringe scans need a fringe layout "
                 "(talbot-lau or time-domain), found 'beam-profile'"
             )
-        shifts_path = _data_path(base, doc, "scans", fname)
+        shifts_path = data_path(base, doc, "scans", fname)
         info = _load_compounds(compounds_path, structures, settings.mass)
         reduction = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
         series, problems, notes = series_from_reduction(reduction)
     else:
-        shifts_path = _data_path(base, doc, "shifts", fname, required=not has_recoil)
+        shifts_path = data_path(base, doc, "shifts", fname, required=not has_recoil)
         info = _load_compounds(compounds_path, structures, settings.mass)
         if shifts_path is not None:
             series, problems, ignored = _load_shifts(shifts_path, layout)
@@ -726,7 +726,7 @@ def load_campaign(path: str | Path) -> Campaign:
     unmeasured = tuple(
         n for n in info if n not in series and n not in problems and n not in in_recoil
     )
-    computed = _data_path(base, doc, "computed", fname, required=False)
+    computed = data_path(base, doc, "computed", fname, required=False)
     if computed is not None and not computed.is_file():
         raise InputError(f"{computed}: computed-values file not found ([data] computed)")
     patterns = doc.get("data", {}).get("computed_outputs", [])
@@ -817,9 +817,9 @@ def series_from_reduction(reduction):
     return series, problems, notes
 
 
-def _load_structures(base: Path, doc: dict, fname: str) -> dict[str, Any]:
+def load_structures(base: Path, doc: dict, fname: str) -> dict[str, Any]:
     """Records of the ``[data] structures`` SDF file by name (Mol, or the error text)."""
-    path = _data_path(base, doc, "structures", fname, required=False)
+    path = data_path(base, doc, "structures", fname, required=False)
     if path is None:
         return {}
     if not path.is_file():
