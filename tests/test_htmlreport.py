@@ -15,9 +15,9 @@ import numpy as np
 import pytest
 from uncertainties import ufloat
 
+from polarbeam._util.cautions import CAUTIONS
 from polarbeam.constants import BOLTZMANN, alpha_a3_from_si
 from polarbeam.pipeline.analysis import analyze
-from polarbeam.results.objects import CAUTIONS
 from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 pytest.importorskip("matplotlib", reason="figures need matplotlib (extra polarbeam[plots])")

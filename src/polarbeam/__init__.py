@@ -26,7 +26,7 @@ _API: dict[str, str] = {
     "write_report": "polarbeam.pipeline.outputs",
     "run_batch": "polarbeam.batch.run",
     "make_plan": "polarbeam.planning.plan",
-    "write_plan": "polarbeam.planning.plan",
+    "write_plan": "polarbeam.planning.output",
     "deflector_field": "polarbeam.pipeline.field",
     "estimate_table": "polarbeam.chemistry.library",
     "CampaignResult": "polarbeam.results.objects",

@@ -3,7 +3,6 @@ response to the field or to photons (Langevin–Debye α_eff; photon recoil).
 """
 
 from polarbeam.beam.photon_recoil import (
-    CM2,
     PLANCK,
     SPEED_OF_LIGHT,
     emission_factor,
@@ -23,7 +22,6 @@ from polarbeam.beam.velocity import (
 )
 
 __all__ = [
-    "CM2",
     "PLANCK",
     "SPEED_OF_LIGHT",
     "averaged_phasor_phase",

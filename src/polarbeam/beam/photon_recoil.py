@@ -15,10 +15,8 @@ from scipy import constants as _sc
 from uncertainties import umath
 
 from polarbeam.beam.velocity import velocity_nodes
-from polarbeam.constants import CM2
 
 __all__ = [
-    "CM2",
     "PLANCK",
     "SPEED_OF_LIGHT",
     "emission_factor",

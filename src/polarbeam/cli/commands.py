@@ -19,7 +19,8 @@ from polarbeam.chemistry import estimate_table
 from polarbeam.contract.campaign import load_campaign
 from polarbeam.errors import PolarbeamError
 from polarbeam.pipeline.field import deflector_field, plot_deflector_field
-from polarbeam.planning.plan import make_plan, write_plan
+from polarbeam.planning.output import write_plan
+from polarbeam.planning.plan import make_plan
 from polarbeam.reduction import write_phases
 from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 from polarbeam.simulation.demo import write_demo, write_demo_scans

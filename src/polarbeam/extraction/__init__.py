@@ -9,7 +9,6 @@ from polarbeam.extraction.context import (
     field_factor_sensitivities,
 )
 from polarbeam.extraction.recoil import (
-    CrossSectionFit,
     analyze_recoil,
 )
 from polarbeam.extraction.series import (
@@ -21,7 +20,6 @@ from polarbeam.extraction.series import (
 
 __all__ = [
     "Context",
-    "CrossSectionFit",
     "SeriesFit",
     "alpha_eff_with_errors",
     "analyze_recoil",

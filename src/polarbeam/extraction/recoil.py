@@ -62,7 +62,6 @@ from polarbeam.results.recoil import (
 from polarbeam.uncertain import FIT_TAG
 
 __all__ = [
-    "CrossSectionFit",
     "analyze_recoil",
 ]
 

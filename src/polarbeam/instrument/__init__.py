@@ -31,6 +31,10 @@ from polarbeam.instrument.numerical import (
     NumericalModel,
     NumericalSpec,
 )
+from polarbeam.instrument.protocols import (
+    DeflectorModel,
+    LayoutModel,
+)
 
 __all__ = [
     "DEFLECTOR_MODELS",
@@ -40,8 +44,10 @@ __all__ = [
     "UNCALIBRATED_FIELD_FACTOR",
     "BeamProfile",
     "Deflector",
+    "DeflectorModel",
     "FieldMapDeflector",
     "Layout",
+    "LayoutModel",
     "NumericalDeflector",
     "NumericalModel",
     "NumericalSpec",

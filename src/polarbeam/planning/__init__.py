@@ -2,6 +2,7 @@
 rehearsal campaign.
 """
 
+from polarbeam.contract.plan import PlanSettings, load_plan
 from polarbeam.planning.ladders import design_ladder, even_ladder
 from polarbeam.planning.model import (
     AcquisitionSequence,
@@ -21,7 +22,6 @@ from polarbeam.planning.precision import (
 )
 from polarbeam.planning.rehearsal import rehearsal_scans, rehearsal_scatter, write_rehearsal
 from polarbeam.planning.results import CampaignPlan, CompoundPlan, SeriesPlan
-from polarbeam.planning.settings import PlanSettings, load_plan
 
 __all__ = [
     "BRANCH_Z",

@@ -55,11 +55,11 @@ from polarbeam.constants import (
     langevin_debye_si,
     si_from_debye,
 )
+from polarbeam.contract.plan import PlanCompound, PlanSettings, load_plan
 from polarbeam.errors import CompoundError
 from polarbeam.pipeline.analysis import build_context
 from polarbeam.planning.ladders import design_ladder, even_ladder
 from polarbeam.planning.model import SeriesModel, voltage_max
-from polarbeam.planning.output import write_plan as write_plan  # the CLI's import path
 from polarbeam.planning.precision import (
     DebyePrecision,
     debye_precision,
@@ -67,7 +67,6 @@ from polarbeam.planning.precision import (
     ladder_precision,
 )
 from polarbeam.planning.results import CampaignPlan, CompoundPlan, SeriesPlan
-from polarbeam.planning.settings import PlanCompound, PlanSettings, load_plan
 from polarbeam.quantities import Measured
 
 __all__ = ["make_plan", "plan_campaign"]

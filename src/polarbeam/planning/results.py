@@ -7,13 +7,14 @@ import math
 from dataclasses import asdict, dataclass
 from typing import Any
 
+from polarbeam._util.cautions import CAUTIONS
 from polarbeam._util.text import finite_or_none
 from polarbeam._version import __version__
+from polarbeam.contract.plan import PlanSettings
 from polarbeam.planning.model import SeriesModel
 from polarbeam.planning.precision import DebyePrecision, LadderPrecision
-from polarbeam.planning.settings import PlanSettings
 
-__all__ = ["CAUTIONS", "CampaignPlan", "CompoundPlan", "SeriesPlan", "render_markdown"]
+__all__ = ["CampaignPlan", "CompoundPlan", "SeriesPlan", "render_markdown"]
 
 
 @dataclass(frozen=True)
@@ -191,7 +192,7 @@ class CampaignPlan:
             "coupling_budget": self.budget,
             "compounds": [c.summary() for c in self.compounds],
             "notes": list(self.notes),
-            "cautions": CAUTIONS,
+            "cautions": list(CAUTIONS),
         }
 
     def to_markdown(self) -> str:
@@ -201,17 +202,6 @@ class CampaignPlan:
         import html
 
         return "<pre>" + html.escape(self.to_markdown()) + "</pre>"
-
-
-CAUTIONS = (
-    "Deflection experiments involve kilovolt electrodes (interlocked supplies; bleed and ground "
-    "electrodes before touching them), vacuum vessels and viewports (implosion, over-pressure on "
-    "venting), hot molecular sources (burns, toxic vapours: follow the compounds' safety data "
-    "sheets) and lasers (eyewear for the wavelength, enclosed beam paths).  A plan is arithmetic, "
-    "not a safety assessment: check every planned voltage and temperature against the ratings of "
-    "the supply, feedthroughs, electrodes and oven, and follow local codes, your institution's "
-    "rules and the lab's safety officer."
-)
 
 
 def _fmt(x, spec: str = ".3g") -> str:
@@ -289,5 +279,5 @@ def render_markdown(p: CampaignPlan) -> str:
     ]
     if notes or p.notes:
         lines += ["", "Notes:", ""] + [f"* {n}" for n in (*p.notes, *notes)]
-    lines += ["", "## Safety", "", CAUTIONS, ""]
+    lines += ["", "## Safety", "", *[f"- {c}" for c in CAUTIONS], ""]
     return "\n".join(lines)

@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam._util.atomic import write_text_atomic
+from polarbeam._util.cautions import CAUTIONS
 from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
 from polarbeam.quantities import value_error_text
 from polarbeam.report.recoil import (
@@ -22,7 +23,7 @@ from polarbeam.report.recoil import (
     write_recoil_results,
 )
 from polarbeam.report.text import md_escape
-from polarbeam.results.objects import CAUTIONS, CampaignResult
+from polarbeam.results.objects import CampaignResult
 from polarbeam.uncertain import variance_budget
 
 __all__ = ["render_markdown", "render_terminal", "write_results"]

@@ -18,6 +18,7 @@ from collections.abc import Mapping
 from pathlib import Path
 
 from polarbeam._util.atomic import write_bytes_atomic, write_text_atomic
+from polarbeam._util.cautions import CAUTIONS
 from polarbeam._util.text import safe_name
 from polarbeam.constants import alpha_a3_from_si, debye_from_si
 from polarbeam.quantities import format_value_error
@@ -29,7 +30,7 @@ from polarbeam.report.figures import (
     to_png,
     to_svg,
 )
-from polarbeam.results.objects import CAUTIONS, CampaignResult, CompoundResult
+from polarbeam.results.objects import CampaignResult, CompoundResult
 from polarbeam.uncertain import variance_budget
 
 __all__ = [

@@ -6,9 +6,9 @@ import io
 from pathlib import Path
 
 from polarbeam._util.atomic import write_bytes_atomic, write_text_atomic
+from polarbeam._util.cautions import CAUTIONS
 from polarbeam.quantities import value_error_text
 from polarbeam.report.text import md_escape
-from polarbeam.results.objects import CAUTIONS
 from polarbeam.results.recoil import (
     RecoilCampaignResult,
     RecoilResult,

@@ -9,6 +9,7 @@ from polarbeam.results.objects import (
 )
 from polarbeam.results.recoil import (
     RECOIL_OUTPUT_COLUMNS,
+    CrossSectionFit,
     RecoilCampaignResult,
     RecoilCompoundResult,
     RecoilResult,
@@ -21,6 +22,7 @@ __all__ = [
     "RECOIL_OUTPUT_COLUMNS",
     "CampaignResult",
     "CompoundResult",
+    "CrossSectionFit",
     "RecoilCampaignResult",
     "RecoilCompoundResult",
     "RecoilResult",

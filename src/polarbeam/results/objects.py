@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 from uncertainties import UFloat
 
+from polarbeam._util.cautions import CAUTIONS
 from polarbeam._util.text import finite_or_none
 from polarbeam._version import __version__
 from polarbeam.constants import alpha_a3_from_si, alpha_au_from_si, debye_from_si
@@ -256,20 +257,6 @@ def _correlation(series) -> list[list[float]] | None:
     from uncertainties import correlation_matrix
 
     return np.round(correlation_matrix([s.alpha_eff for s in series]), 6).tolist()
-
-
-CAUTIONS = (
-    "Deflector electrodes run at kilovolts: interlock the supplies, bleed and ground the "
-    "electrodes before touching them, and keep the high-voltage feedthroughs guarded.",
-    "Vacuum vessels and viewports store energy: use rated windows and pressure relief, and "
-    "vent only through the designated valves.",
-    "Hot molecular sources (ovens at several hundred kelvin and above) burn and can release "
-    "toxic vapours: let them cool, and handle compounds per their safety data sheets.",
-    "Lasers used for gratings or detection are typically class 3B or 4: wear the eyewear "
-    "specified for the wavelength and keep beam paths enclosed.",
-    "These notes do not replace local codes, the lab's safety rules and the safety officer's "
-    "authority; follow licensed practice for electrical, vacuum, laser and chemical work.",
-)
 
 
 @dataclass(frozen=True)

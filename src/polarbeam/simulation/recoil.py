@@ -12,13 +12,12 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam.beam.photon_recoil import (
-    CM2,
     gaussian_effective_area,
     photon_energy,
     recoil_observables,
     recoil_velocity,
 )
-from polarbeam.constants import AMU
+from polarbeam.constants import AMU, CM2
 from polarbeam.contract.campaign import build_layout
 from polarbeam.contract.recoil import FLUORESCENCE_FIT, RECOIL_COLUMNS
 from polarbeam.simulation.campaigns import InstrumentSpec
