@@ -39,7 +39,7 @@ from polarbeam.simulation.campaigns import (
 
 US = 1e-6
 T = 24 * US
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 runner = CliRunner()
 
 
@@ -232,6 +232,7 @@ def pulls(tmp_path_factory):
     return {k: np.array(v) for k, v in out.items()}
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("name", ["alpha_eff", "alpha", "mu2", "mu"])
 def test_time_domain_pulls_are_honest(pulls, name):
     # Gaussian 1σ coverage: |pull| < 1 in 68.3 % of cases (common practice for error bars).

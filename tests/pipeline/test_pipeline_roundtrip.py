@@ -55,6 +55,7 @@ def pulls(tmp_path_factory):
     }
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("name", ["alpha_eff", "alpha", "mu2"])
 def test_pull_coverage_and_bias(pulls, name):
     p = pulls[name]
@@ -68,6 +69,7 @@ def test_pull_coverage_and_bias(pulls, name):
     assert abs(p.mean()) < 4.0 / math.sqrt(p.size) + 0.1
 
 
+@pytest.mark.slow
 def test_dipole_pulls_for_polar_compounds(tmp_path):
     """Dedicated μ round trip: polar compounds (1.5–4 D) at 3–4 temperatures."""
     rng = np.random.default_rng(77)

@@ -61,7 +61,7 @@ from polarbeam.simulation.recoil import (
 )
 
 runner = CliRunner()
-EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "recoil"
+EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "recoil"
 
 # --------------------------------------------------------------------------------------------
 # physics
@@ -246,6 +246,7 @@ def round_trip(tmp_path_factory):
     return np.array(sigma), np.array(yields), info
 
 
+@pytest.mark.slow
 def test_sigma_pulls_are_honest(round_trip):
     p, _, info = round_trip
     frac = float(np.mean(np.abs(p) < 1))
@@ -261,6 +262,7 @@ def test_sigma_pulls_are_honest(round_trip):
     assert 0.85 < p.std() < 1.15
 
 
+@pytest.mark.slow
 def test_round_trip_covers_the_advertised_range(round_trip):
     _, _, info = round_trip
     layouts = {i[0] for i in info}
@@ -271,6 +273,7 @@ def test_round_trip_covers_the_advertised_range(round_trip):
     assert max(spatial) > 0.13 and min(spatial) < 0.02  # velocity spreads 0 … 15 %
 
 
+@pytest.mark.slow
 def test_fitted_yield_pulls(round_trip):
     _, q, _ = round_trip
     frac = float(np.mean(np.abs(q) < 1))

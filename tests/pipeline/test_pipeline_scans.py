@@ -68,6 +68,7 @@ def scan_pulls(tmp_path_factory):
     }
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("name", ["alpha_eff", "alpha", "mu2", "mu"])
 def test_raw_scan_round_trip_pulls(scan_pulls, name):
     p = scan_pulls[name]

@@ -20,7 +20,7 @@ from polarbeam.contract.campaign import load_campaign
 from polarbeam.pipeline.analysis import analyze, analyze_campaign
 from polarbeam.quantities import Measured
 
-DEMO = Path(__file__).resolve().parents[1] / "examples" / "demo"
+DEMO = Path(__file__).resolve().parents[2] / "examples" / "demo"
 runner = CliRunner()
 
 
@@ -188,6 +188,7 @@ def test_compute_cli_round_trips_into_computed_csv(tmp_path):
     assert df.iloc[0]["method"] == "hf/sto-3g" and df.iloc[0]["alpha_computed_A3"] > 0
 
 
+@pytest.mark.slow
 def test_monte_carlo_agrees_with_linear_propagation():
     """Redraw every stated input and every point from its error; the scatter of the results
     must match the linearly propagated σ (the uncertainties package's own check of analytic

@@ -1,0 +1,37 @@
+"""z-scores and verdicts of the structure cross-check (values computed by hand)."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from polarbeam.comparison.structure_check import verdict, z_score
+
+
+def test_z_score_by_hand():
+    # (10 − 4) / √(3² + 4²) = 6 / 5
+    assert z_score(10.0, 3.0, 4.0, 4.0) == pytest.approx(1.2, rel=1e-15)
+    # (1 − 13) / √(5² + 12²) = −12 / 13
+    assert z_score(1.0, 5.0, 13.0, 12.0) == pytest.approx(-12 / 13, rel=1e-15)
+    assert math.isnan(z_score(1.0, 0.0, 1.0, 0.0))
+
+
+@pytest.mark.parametrize(
+    "alpha_z,eff_z,dipole,start",
+    [
+        (None, [0.5, -0.5], False, "consistent"),
+        (None, [3.0, 2.5], False, "dipole contribution likely"),
+        (None, [3.0, 2.5], True, "above prediction"),
+        (None, [-2.5, -3.0], False, "measured below prediction"),
+        (-2.1, [0.0], False, "measured below prediction"),
+        (2.5, [0.0], False, "α above the additive estimate"),
+        # the series of one compound are averaged: (3.0 + 0.5)/2 = 1.75 < 2
+        (None, [3.0, 0.5], False, "consistent"),
+        # a NaN z-score is ignored: mean of [2.5] = 2.5 > 2
+        (None, [2.5, float("nan")], False, "dipole contribution likely"),
+        (None, [], False, "consistent"),
+    ],
+)
+def test_verdict_by_hand(alpha_z, eff_z, dipole, start):
+    assert verdict(alpha_z, eff_z, dipole).startswith(start)
