@@ -2,6 +2,10 @@
 response to the field or to photons (Langevin–Debye α_eff; photon recoil).
 """
 
+from polarbeam.beam.distributions import (
+    GaussianVelocity,
+    VelocityDistribution,
+)
 from polarbeam.beam.photon_recoil import (
     PLANCK,
     SPEED_OF_LIGHT,
@@ -15,17 +19,26 @@ from polarbeam.beam.photon_recoil import (
     recoil_phasor,
     recoil_velocity,
 )
+from polarbeam.beam.response import (
+    LangevinDebye,
+    ParticleResponse,
+)
 from polarbeam.beam.velocity import (
     averaged_phasor_phase,
+    fringe_nodes,
     mean_inverse_square,
-    velocity_nodes,
 )
 
 __all__ = [
     "PLANCK",
     "SPEED_OF_LIGHT",
+    "GaussianVelocity",
+    "LangevinDebye",
+    "ParticleResponse",
+    "VelocityDistribution",
     "averaged_phasor_phase",
     "emission_factor",
+    "fringe_nodes",
     "gaussian_effective_area",
     "kick_phase",
     "mean_inverse_square",
@@ -35,5 +48,4 @@ __all__ = [
     "recoil_observables",
     "recoil_phasor",
     "recoil_velocity",
-    "velocity_nodes",
 ]

@@ -14,7 +14,7 @@ import numpy as np
 from scipy import constants as _sc
 from uncertainties import umath
 
-from polarbeam.beam.velocity import velocity_nodes
+from polarbeam.beam.distributions import GaussianVelocity
 
 __all__ = [
     "PLANCK",
@@ -118,7 +118,7 @@ def _photon_terms(
 ):
     """Quadrature weights and z = g e^{iφ1} − 1 per velocity node."""
     if velocity_dependent:
-        v, w = velocity_nodes(velocity, spread, nodes)
+        v, w = GaussianVelocity(velocity, spread).nodes(nodes)
         phi, phie = phase_coefficient / v, emission_coefficient / v
     else:
         w = np.array([1.0])

@@ -1,7 +1,7 @@
 """Velocity averaging over the detected velocity distribution.
 
-The detected distribution is taken as Gaussian with mean v̄ and standard deviation σ_v
-(σ_v = 0: monochromatic), truncated at v > 0.  Averages use Gauss–Hermite quadrature.
+The distribution is any :class:`~polarbeam.beam.distributions.VelocityDistribution` (today the
+Gaussian of mean v̄ and standard deviation σ_v, truncated at v > 0, by Gauss–Hermite quadrature).
 
 For a spatial layout the shift of one velocity class is Δx(v) = κ/v² with κ ∝ α_eff V².
 
@@ -14,37 +14,27 @@ For a spatial layout the shift of one velocity class is Δx(v) = κ/v² with κ 
 
 from __future__ import annotations
 
-from functools import lru_cache
-
 import numpy as np
+
+from polarbeam.beam.distributions import VelocityDistribution
 
 __all__ = [
     "averaged_phasor_phase",
+    "fringe_nodes",
     "mean_inverse_square",
-    "velocity_nodes",
 ]
 
 
-@lru_cache(maxsize=8)
-def _hermite(n: int):
-    x, w = np.polynomial.hermite_e.hermegauss(n)
-    return x, w / w.sum()
+def fringe_nodes(dist: VelocityDistribution, n: int = 48) -> tuple[np.ndarray, np.ndarray]:
+    """Quadrature nodes and weights of ``dist``, the weights times the nodes' relative contrast."""
+    v, w = dist.nodes(n)
+    c = dist.contrast(n)
+    return (v, w) if c is None else (v, w * np.asarray(c, dtype=float))
 
 
-def velocity_nodes(mean: float, spread: float, n: int = 48) -> tuple[np.ndarray, np.ndarray]:
-    """Quadrature nodes and normalised weights of the truncated Gaussian velocity distribution."""
-    if spread <= 0:
-        return np.array([float(mean)]), np.array([1.0])
-    x, w = _hermite(n)
-    v = mean + spread * x
-    keep = (v > 0.02 * mean) & (w > 1e-13 * w.max())  # drop negligible far-tail nodes
-    v, w = v[keep], w[keep]
-    return v, w / w.sum()
-
-
-def mean_inverse_square(mean: float, spread: float, n: int = 48) -> float:
+def mean_inverse_square(dist: VelocityDistribution, n: int = 48) -> float:
     """⟨v⁻²⟩ of the distribution (s²/m²)."""
-    v, w = velocity_nodes(mean, spread, n)
+    v, w = dist.nodes(n)
     return float(np.sum(w / v**2))
 
 
@@ -54,16 +44,15 @@ def mean_inverse_square(mean: float, spread: float, n: int = 48) -> float:
 # κ were asked for before (a fit's iterations, or other compounds in the same worker).
 _STEP_RAD = 0.3
 _MAX_TABLE = 200_000
-_turn_tables: dict[tuple[float, float, int], tuple[float, np.ndarray]] = {}
+_turn_tables: dict[tuple, tuple[float, np.ndarray]] = {}
 
 
 def _phasor(kappa: np.ndarray, u: np.ndarray, w: np.ndarray) -> np.ndarray:
     return (w[None, :] * np.exp(1j * np.outer(kappa, u))).sum(axis=1)
 
 
-def _turn_table(mean: float, spread: float, n: int, u, w, kmax: float):
+def _turn_table(key: tuple, u, w, kmax: float):
     """(grid step, unwrapped phase at j·step for j = 0…) covering at least [0, kmax]."""
-    key = (float(mean), float(spread), int(n))
     step = _STEP_RAD / float(u.max())
     need = int(np.ceil(kmax / step)) + 2
     if need > _MAX_TABLE:
@@ -82,20 +71,20 @@ def _turn_table(mean: float, spread: float, n: int, u, w, kmax: float):
     return table
 
 
-def averaged_phasor_phase(kappa, mean: float, spread: float, n: int = 48):
+def averaged_phasor_phase(kappa, dist: VelocityDistribution, n: int = 48):
     """Continuous phase arg⟨exp(iκ/v²)⟩ and modulus |⟨exp(iκ/v²)⟩| for each κ (rad·m²/s²).
 
     The phase is odd in κ and followed continuously from κ = 0 along a path fine enough that no
     component of the average turns by more than 0.3 rad between neighbouring path points.
     """
     kappa = np.asarray(kappa, dtype=float)
-    v, w = velocity_nodes(mean, spread, n)
+    v, w = fringe_nodes(dist, n)
     u = 1.0 / v**2
-    if v.size == 1:
+    if v.size == 1 and dist.contrast(n) is None:
         return kappa * u[0], np.ones_like(kappa)
     kabs = np.abs(kappa).ravel()
     kmax = float(kabs.max(initial=0.0))
-    table = _turn_table(mean, spread, n, u, w, kmax)
+    table = _turn_table((*dist.key, int(n)), u, w, kmax)
     if table is None:
         return _averaged_phasor_phase_path(kappa, u, w)
     step, ref = table

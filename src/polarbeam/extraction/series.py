@@ -24,6 +24,7 @@ import numpy as np
 import uncertainties
 from scipy import linalg, stats
 
+from polarbeam.beam.distributions import GaussianVelocity
 from polarbeam.beam.velocity import averaged_phasor_phase, mean_inverse_square
 from polarbeam.constants import ANGSTROM3_SI
 from polarbeam.contract.campaign import SeriesData
@@ -62,9 +63,9 @@ def observable_model(
     for v, s in groups:
         sel = (velocities == v) & (spreads == s)
         if kind == "beam-profile":
-            out[sel] = kappa[sel] * mean_inverse_square(v, s, nodes)
+            out[sel] = kappa[sel] * mean_inverse_square(GaussianVelocity(v, s), nodes)
         else:
-            out[sel], mod[sel] = averaged_phasor_phase(kappa[sel], v, s, nodes)
+            out[sel], mod[sel] = averaged_phasor_phase(kappa[sel], GaussianVelocity(v, s), nodes)
     return out, mod
 
 
@@ -127,7 +128,7 @@ def fit_series(
     if kind == "talbot-lau":
         x = np.array(
             [
-                com * vv**2 * ANGSTROM3_SI * mean_inverse_square(v, s, nodes)
+                com * vv**2 * ANGSTROM3_SI * mean_inverse_square(GaussianVelocity(v, s), nodes)
                 for vv, v, s in zip(V, vel, spr, strict=True)
             ]
         )

@@ -22,6 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from polarbeam.beam.distributions import GaussianVelocity
 from polarbeam.beam.velocity import mean_inverse_square
 from polarbeam.constants import alpha_si_from_a3
 from polarbeam.extraction.series import observable_model
@@ -132,7 +133,9 @@ def voltage_max(
     inv_v2 = (
         1.0
         if model.kind == "time-domain"
-        else mean_inverse_square(model.velocity_m_s, model.spread_m_s, model.nodes)
+        else mean_inverse_square(
+            GaussianVelocity(model.velocity_m_s, model.spread_m_s), model.nodes
+        )
     )
     kappa_per_v2 = alpha_si_from_a3(a) * model.coupling_over_mass * inv_v2
     v_est = math.sqrt(phase_limit / kappa_per_v2)  # small-spread estimate of the phase limit

@@ -18,7 +18,8 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam._util.atomic import write_text_atomic
-from polarbeam.constants import AMU, alpha_si_from_a3, langevin_debye_si, si_from_debye
+from polarbeam.beam.response import LangevinDebye, ParticleResponse
+from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.campaign import build_layout
 from polarbeam.extraction.series import observable_model
 from polarbeam.instrument.deflectors import (
@@ -29,6 +30,9 @@ from polarbeam.instrument.deflectors import (
     coupling,
 )
 from polarbeam.simulation import scans as scansim
+
+#: the default particle response of simulated compounds.
+LANGEVIN_DEBYE = LangevinDebye()
 
 __all__ = [
     "CompoundTruth",
@@ -195,11 +199,14 @@ def simulate_campaign(
     title: str = "simulated campaign",
     offset_scale: float = 0.1,
     velocity_columns: bool = True,
+    response: ParticleResponse = LANGEVIN_DEBYE,
 ) -> SimulationTruth:
     """Write ``campaign.toml``, ``shifts.csv`` and ``compounds.csv`` into ``out_dir``.
 
     Parameters
     ----------
+    response
+        How the true α_eff follows from α, μ and T (default Langevin–Debye).
     max_signal
         The largest observable (rad, or m for a beam profile: then read as metres ×1e-6) the
         voltage ladder should reach for the largest α_eff of each compound.
@@ -228,14 +235,14 @@ def simulate_campaign(
         m_stated = (comp.mass_u + comp.mass_err_u * rng.standard_normal()) * AMU
         a_si = alpha_si_from_a3(comp.alpha_A3)
         mu_si = si_from_debye(comp.dipole_D)
-        a_max = a_si + langevin_debye_si(mu_si, min(comp.temperatures_K))
+        a_max = response.alpha_eff(a_si, mu_si, min(comp.temperatures_K))
         v_nom = velocity_m_s
         inv_v2 = 1.0 if kind == "time-domain" else (1 + 3 * spread_frac**2) / v_nom**2
         vmax = math.sqrt(signal * m_stated / (a_max * c_nom * inv_v2))
         ladder = np.linspace(-vmax, vmax, n_voltages)
         for t_stated in comp.temperatures_K:
             t_true = t_stated + temperature_err_K * rng.standard_normal()
-            a_eff = a_si + langevin_debye_si(mu_si, t_true)
+            a_eff = response.alpha_eff(a_si, mu_si, t_true)
             v_err = velocity_err_frac * v_nom
             v_true = v_nom + v_err * rng.standard_normal()
             spread = spread_frac * v_nom
@@ -428,6 +435,7 @@ def simulate_scan_campaign(
     random_walk_rad2_s: float = 2.0e-5,
     title: str = "simulated raw-scan campaign",
     parquet: bool = False,
+    response: ParticleResponse = LANGEVIN_DEBYE,
 ) -> SimulationTruth:
     """Like :func:`simulate_campaign` but writes raw fringe scans (``[data] scans``).
 
@@ -458,13 +466,13 @@ def simulate_scan_campaign(
         m_true = comp.mass_u * AMU
         a_si = alpha_si_from_a3(comp.alpha_A3)
         mu_si = si_from_debye(comp.dipole_D)
-        a_max = a_si + langevin_debye_si(mu_si, min(comp.temperatures_K))
+        a_max = response.alpha_eff(a_si, mu_si, min(comp.temperatures_K))
         inv_v2 = 1.0 if kind == "time-domain" else (1 + 3 * spread_frac**2) / velocity_m_s**2
         vmax = math.sqrt(max_signal * m_true / (a_max * c_nom * inv_v2))
         ladder = np.linspace(vmax / n_voltages, vmax, n_voltages)
         for t_stated in comp.temperatures_K:
             t_true = t_stated + temperature_err_K * rng.standard_normal()
-            a_eff = a_si + langevin_debye_si(mu_si, t_true)
+            a_eff = response.alpha_eff(a_si, mu_si, t_true)
             v_err = velocity_err_frac * velocity_m_s
             v_true = velocity_m_s + v_err * rng.standard_normal()
             volts = np.repeat(ladder, scans_per_voltage)
