@@ -17,6 +17,7 @@ from _batch_helpers import make_campaign, output_files
 from uncertainties import correlation_matrix
 
 import polarbeam.batch.workers as workers  # the batch module that calls analyze_compound
+from polarbeam._util.optional import missing_reason
 from polarbeam.batch import run_batch
 from polarbeam.pipeline.analysis import analyze
 
@@ -39,7 +40,7 @@ def test_inline_batch_equals_the_pipeline(camp, inline_run):
 
 
 def test_processes_and_dask_give_the_same_bytes(camp, inline_run, tmp_path):
-    pytest.importorskip("distributed", reason="needs dask[distributed] (extra polarbeam[batch])")
+    pytest.importorskip("distributed", reason=missing_reason("distributed"))
     ref = output_files(inline_run[0])
     o2 = tmp_path / "jobs2"
     assert run_batch(camp, o2, jobs=2, report_details=1).exit_code == 0

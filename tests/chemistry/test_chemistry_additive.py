@@ -22,6 +22,7 @@ from rdkit.Chem import Crippen
 from scipy import constants as sc
 
 from polarbeam import chemistry as chem
+from polarbeam._util.optional import missing_reason
 from polarbeam.chemistry import additive
 from polarbeam.errors import CompoundError, InputError
 
@@ -262,7 +263,7 @@ def test_unparametrised_element_gives_nan_not_a_number():
 # ---------------------------------------------------------------------------- D4 (optional)
 
 
-@pytest.mark.skipif(not chem.dftd4_available(), reason="needs the optional 'dftd4' package")
+@pytest.mark.skipif(not chem.dftd4_available(), reason=missing_reason("dftd4"))
 def test_d4_polarizability_of_benzene():
     a = chem.alpha_d4_A3("c1ccccc1")
     assert a == pytest.approx(10.32, rel=0.08)  # CRC benzene 10.32 A^3 (from memory)

@@ -9,6 +9,7 @@ import pandas as pd
 import pytest
 from scipy import constants as sc
 
+from polarbeam._util.optional import missing_reason
 from polarbeam.chemistry import (
     ALPHA_UNITS,
     COMPARISON_COLUMNS,
@@ -291,7 +292,7 @@ def test_note_names_both_contributions():
 
 
 def test_read_outputs_through_cclib(tmp_path):
-    pytest.importorskip("cclib", reason="cclib not installed (extra polarbeam[qc])")
+    pytest.importorskip("cclib", reason=missing_reason("cclib"))
     from _qc_output_writer import nwchem_text
 
     symbols = ["O", "H", "H"]

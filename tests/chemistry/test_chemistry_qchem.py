@@ -18,7 +18,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-pytest.importorskip("pyscf", reason="PySCF not installed (extra polarbeam[qc])")
+from polarbeam._util.optional import missing_reason
+
+pytest.importorskip("pyscf", reason=missing_reason("pyscf"))
 
 from polarbeam.chemistry import compare, parity_table, qchem, read_outputs
 from polarbeam.chemistry.qchem import (
@@ -231,7 +233,7 @@ def test_results_feed_the_comparison(water_b3lyp, cache):
 
 
 def test_pyscf_result_written_as_nwchem_text_reads_back_through_cclib(tmp_path, water_b3lyp):
-    pytest.importorskip("cclib", reason="cclib not installed (extra polarbeam[qc])")
+    pytest.importorskip("cclib", reason=missing_reason("cclib"))
     from _qc_output_writer import nwchem_text
 
     from polarbeam.constants import AU_POLARIZABILITY_SI
@@ -258,7 +260,7 @@ def test_pyscf_result_written_as_nwchem_text_reads_back_through_cclib(tmp_path, 
 
 
 def test_d4_estimate_for_water():
-    pytest.importorskip("dftd4", reason="dftd4 not installed (extra polarbeam[qc])")
+    pytest.importorskip("dftd4", reason=missing_reason("dftd4"))
     d4 = qchem.d4_polarizability("O")
     assert d4.method == "D4" and d4.alpha_tensor_si is None and math.isnan(d4.dipole_si)
     # D4 atomic reference polarizabilities come from TD-DFT; water within 10 % of the CRC value

@@ -33,6 +33,7 @@ from scipy import constants as sc
 from scipy import integrate, stats
 from typer.testing import CliRunner
 
+from polarbeam._util.optional import missing_reason
 from polarbeam.beam.photon_recoil import (
     emission_factor,
     kick_phase,
@@ -391,7 +392,7 @@ def test_report_files_and_reemission_note(camp, tmp_path):
     }
     first = text[1].split(",")
     assert float(first[3]) == pytest.approx(rows[(first[0], first[1])]["cross_section_cm2"])
-    pytest.importorskip("matplotlib", reason="matplotlib (polarbeam[plots]) not installed")
+    pytest.importorskip("matplotlib", reason=missing_reason("matplotlib"))
     assert (out / "recoil_spectrum.png").read_bytes()[:4] == b"\x89PNG"
 
 

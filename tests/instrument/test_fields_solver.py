@@ -15,7 +15,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from polarbeam._util.optional import has
+from polarbeam._util.optional import has, missing_reason
 from polarbeam.instrument.fields import (
     Beam,
     BoundaryBox,
@@ -137,7 +137,7 @@ def test_parallel_plate_uniform_field():
     assert abs(bf.field_factor) * d**3 < 1e-4
 
 
-@pytest.mark.skipif(not has("pyamg"), reason="pyamg not installed")
+@pytest.mark.skipif(not has("pyamg"), reason=missing_reason("pyamg"))
 def test_multigrid_agrees_with_direct(two_wire):
     beam = Beam(0.0, 1.2 * A)
     g = [
@@ -148,7 +148,7 @@ def test_multigrid_agrees_with_direct(two_wire):
 
 
 def test_plot_cross_section(tmp_path, two_wire):
-    pytest.importorskip("matplotlib", reason="matplotlib not installed")
+    pytest.importorskip("matplotlib", reason=missing_reason("matplotlib"))
     sol = solve_deflector(two_wire, Beam(0.0, 1.2 * A, 0.3e-3, 0.4e-3), h=0.1e-3, levels=1)
     out = plot_cross_section(sol, tmp_path / "xs.png")
     assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"

@@ -19,6 +19,7 @@ import pytest
 from scipy import integrate
 from typer.testing import CliRunner
 
+from polarbeam._util.optional import missing_reason
 from polarbeam.cli.commands import app
 from polarbeam.contract.campaign import load_campaign
 from polarbeam.contract.numerical import clear_model_cache, numerical_model
@@ -380,7 +381,7 @@ def test_uniform_field_command(tmp_path, simple_campaign):
 
 
 def test_plot_two_wire_and_numerical(tmp_path):
-    pytest.importorskip("matplotlib")
+    pytest.importorskip("matplotlib", reason=missing_reason("matplotlib"))
     toml = _two_wire_campaign(tmp_path)
     for t in (toml, _numerical(toml)):
         out = tmp_path / f"{t.stem}.png"

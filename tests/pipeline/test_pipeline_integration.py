@@ -14,6 +14,7 @@ import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
+from polarbeam._util.optional import missing_reason
 from polarbeam.cli.commands import app
 from polarbeam.constants import alpha_a3_from_si, debye_from_si
 from polarbeam.contract.campaign import load_campaign
@@ -176,7 +177,7 @@ def test_estimate_cli(tmp_path):
 
 
 def test_compute_cli_round_trips_into_computed_csv(tmp_path):
-    pytest.importorskip("pyscf", reason="needs the optional extra polarbeam[qc]")
+    pytest.importorskip("pyscf", reason=missing_reason("pyscf"))
     from polarbeam.chemistry import read_computed
 
     out = tmp_path / "computed.csv"

@@ -16,11 +16,12 @@ import pytest
 from uncertainties import ufloat
 
 from polarbeam._util.cautions import CAUTIONS
+from polarbeam._util.optional import missing_reason
 from polarbeam.constants import BOLTZMANN, alpha_a3_from_si
 from polarbeam.pipeline.analysis import analyze
 from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
-pytest.importorskip("matplotlib", reason="figures need matplotlib (extra polarbeam[plots])")
+pytest.importorskip("matplotlib", reason=missing_reason("matplotlib"))
 
 from polarbeam.report import figures
 from polarbeam.report import html as html_report

@@ -2,8 +2,8 @@
 
 The core install stays light: every optional package is imported only when a function needs it,
 through :func:`require`, which turns a missing package into a one-line
-:class:`MissingExtraError` naming the pip package and the extra that brings it. Tests use
-:func:`skip_unless` (through ``tests/conftest.py``) so a skipped test says which extra is missing.
+:class:`MissingExtraError` naming the pip package and the extra that brings it. Tests skip with
+:func:`missing_reason` so a skipped test says which extra is missing.
 """
 
 from __future__ import annotations
@@ -14,7 +14,7 @@ from types import ModuleType
 
 from polarbeam.errors import InputError
 
-__all__ = ["EXTRAS", "MissingExtraError", "extra_for", "has", "require"]
+__all__ = ["EXTRAS", "MissingExtraError", "extra_for", "has", "missing_reason", "require"]
 
 #: import name → (pip package, extra of polarbeam that installs it).
 EXTRAS: dict[str, tuple[str, str]] = {
@@ -46,6 +46,12 @@ def extra_for(module: str) -> tuple[str, str]:
     """(pip package, polarbeam extra) for an import name; unknown names map to themselves."""
     top = module.split(".")[0]
     return EXTRAS.get(top, (top, "all"))
+
+
+def missing_reason(module: str) -> str:
+    """Why something needing ``module`` is skipped: the pip package and the extra to install."""
+    pip_name, extra = extra_for(module)
+    return f"needs {pip_name}, which is not installed: pip install 'polarbeam[{extra}]'"
 
 
 def require(module: str, purpose: str) -> ModuleType:

@@ -24,6 +24,7 @@ __all__ = [
     "Context",
     "build_context",
     "field_factor_sensitivities",
+    "log_sensitivities",
 ]
 
 
@@ -57,32 +58,12 @@ def build_context(c: Campaign) -> Context:
             "check [deflector] entrance/length (or field_on) against the grating or detector "
             "positions"
         )
-    nominal = c.nominal()
-    sens: dict[str, float] = {}
+    sens = log_sensitivities(c, lambda built: coupling(*built), c0)
     shift = 0.0
-    for key, m in c.stated.items():
-        if m.error <= 0:
-            continue
-        h = max(m.error * 1e-3, abs(m.value) * 1e-9, 1e-300)
-        vals = []
-        for sgn in (+1, -1):
-            v = dict(nominal)
-            v[key] = m.value + sgn * h
-            try:
-                vals.append(coupling(*c.build(v)))
-            except InputError:
-                vals.append(None)
-        if vals[0] is not None and vals[1] is not None:
-            d = (vals[0] - vals[1]) / (2 * h)
-        elif vals[0] is not None:
-            d = (vals[0] - c0) / h
-        elif vals[1] is not None:
-            d = (c0 - vals[1]) / h
-        else:
-            continue
-        sens[key] = d / c0
+    for key, s_key in sens.items():
+        m = c.stated[key]
         u = ufloat(m.value, m.error, tag=input_label(key))
-        shift = shift + sens[key] * (u - m.value)
+        shift = shift + s_key * (u - m.value)
     ratio = 1.0 / (1.0 + shift)
     fpv = getattr(deflector, "field_per_volt", None)
     return Context(layout, deflector, c0, ratio, sens, fpv)
@@ -96,8 +77,17 @@ def field_factor_sensitivities(c) -> tuple[float, dict[str, float]]:
     """
     _lay, d0 = c.build()
     g0 = float(d0.field_factor)
+    sens = log_sensitivities(c, lambda built: float(built[1].field_factor), g0)
+    sens = {k: v for k, v in sens.items() if v != 0}
+    return g0, sens
+
+
+def log_sensitivities(c, value_of, v0: float) -> dict[str, float]:
+    """∂ln Q/∂p of a quantity Q of the built (layout, deflector) for every stated input p with an
+    error: central differences (one-sided where a step leaves the valid geometry), step
+    max(10⁻³ σ, 10⁻⁹ |p|). Inputs whose every step is invalid are left out."""
     nominal = c.nominal()
-    sens = {}
+    sens: dict[str, float] = {}
     for key, m in c.stated.items():
         if m.error <= 0:
             continue
@@ -105,17 +95,16 @@ def field_factor_sensitivities(c) -> tuple[float, dict[str, float]]:
         vals = []
         for sgn in (+1, -1):
             try:
-                vals.append(float(c.build({**nominal, key: m.value + sgn * h})[1].field_factor))
+                vals.append(value_of(c.build({**nominal, key: m.value + sgn * h})))
             except InputError:
                 vals.append(None)
         if vals[0] is not None and vals[1] is not None:
             d = (vals[0] - vals[1]) / (2 * h)
         elif vals[0] is not None:
-            d = (vals[0] - g0) / h
+            d = (vals[0] - v0) / h
         elif vals[1] is not None:
-            d = (g0 - vals[1]) / h
+            d = (v0 - vals[1]) / h
         else:
             continue
-        if d != 0:
-            sens[key] = d / g0
-    return g0, sens
+        sens[key] = d / v0
+    return sens

@@ -290,10 +290,49 @@ def _start(model: _CompoundModel, vals, q0: float) -> np.ndarray:
     return theta0
 
 
+@dataclass(frozen=True)
+class _Solution:
+    """The least-squares solution of one compound's recoil fit (internal fit units)."""
+
+    names: list[str]
+    theta: np.ndarray
+    jac: np.ndarray
+    jtj: np.ndarray
+    cov: np.ndarray
+    residuals: np.ndarray
+    chi2: float
+    ndof: int
+    error_scale: float
+
+
 def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCompoundResult:
+    """σ of every laser (and the fluorescence yield when fitted) for one compound, in steps."""
     model = _CompoundModel(rc, ctx)
-    nl = len(model.lasers)
     vals0 = model.values()
+    sol = _solve(rc, model, vals0, ctx.scale_errors)
+    fit_u = _uncertain_parameters(rc, model, ctx, vals0, sol)
+    fits, warnings = _laser_fits(rc, model, ctx, vals0, sol, fit_u)
+    q_u = _fluorescence_yield(rc, sol, fit_u, len(model.lasers), warnings)
+    messages = _messages(rc, q_u, sol.error_scale)
+    status = "warning" if warnings else "ok"
+    return RecoilCompoundResult(
+        compound=rc.name,
+        status=status,
+        message="; ".join(messages + warnings) or "ok",
+        mass_u=mass_u,
+        fits=tuple(fits),
+        fluorescence_yield=q_u,
+        yield_fitted=rc.fit_yield,
+        emission_wavelength_m=rc.emission_wavelength,
+        chi2=sol.chi2,
+        ndof=sol.ndof,
+        warnings=tuple(warnings),
+    )
+
+
+def _solve(rc: RecoilCompound, model: _CompoundModel, vals0: dict, scale_errors: str) -> _Solution:
+    """Least squares from the linearised start, then the covariance (Gauss–Newton, Birge)."""
+    nl = len(model.lasers)
     fit_q = rc.fit_yield
     q_start = 0.5
     theta0 = _start(model, vals0, q_start)
@@ -328,12 +367,14 @@ def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCom
     chi2 = float(r0 @ r0)
     ndof = 2 * model.n - len(names)
     error_scale = 1.0
-    if ctx.scale_errors == "birge" and ndof > 0 and chi2 / ndof > 1:
+    if scale_errors == "birge" and ndof > 0 and chi2 / ndof > 1:
         error_scale = math.sqrt(chi2 / ndof)
         cov = cov * error_scale**2
+    return _Solution(names, theta, jac, jtj, cov, r0, chi2, ndof, error_scale)
 
-    # nuisance inputs entering non-linearly: implicit derivative of the least-squares solution,
-    # dθ/dp = −(JᵀJ)⁻¹ Jᵀ ∂r/∂p
+
+def _nuisance_inputs(rc: RecoilCompound, model: _CompoundModel, ctx: _Context):
+    """(key, 1σ, uncertain value) of every stated input that enters the model non-linearly."""
     nuisances: list[tuple[str, float, Any]] = []
     relevant = {f"laser.{n}.{x}" for n in model.lasers for x in ("wavelength", "position")}
     for k, u in ctx.shared.items():
@@ -351,7 +392,7 @@ def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCom
                     (f"velocity[{g}]", rel, ufloat(1.0, rel, tag=f"velocity: {s.label}"))
                 )
     q_stated = rc.fluorescence_yield
-    if not fit_q and q_stated.error > 0:
+    if not rc.fit_yield and q_stated.error > 0:
         nuisances.append(
             (
                 "fluorescence_yield",
@@ -359,25 +400,41 @@ def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCom
                 ufloat(q_stated.value, q_stated.error, tag=f"fluorescence yield: {rc.name}"),
             )
         )
-    solve = np.linalg.solve
-    scales = np.array([SIGMA_UNIT] * nl + ([1.0] if fit_q else []))
+    return nuisances
+
+
+def _uncertain_parameters(rc, model, ctx, vals0, sol: _Solution) -> list:
+    """Fitted parameters as correlated uncertain numbers, with every stated input attached.
+
+    Nuisance inputs enter through the implicit derivative of the least-squares solution,
+    dθ/dp = −(JᵀJ)⁻¹ Jᵀ ∂r/∂p.
+    """
+    nl = len(model.lasers)
+    scales = np.array([SIGMA_UNIT] * nl + ([1.0] if rc.fit_yield else []))
     fit_u = uncertainties.correlated_values(
-        theta * scales,
-        cov * np.outer(scales, scales),
-        tags=[f"{FIT_TAG}|recoil {rc.name}"] * len(names),
+        sol.theta * scales,
+        sol.cov * np.outer(scales, scales),
+        tags=[f"{FIT_TAG}|recoil {rc.name}"] * len(sol.names),
     )
     fit_u = list(fit_u)
-    for key, err, u in nuisances:
+    for key, err, u in _nuisance_inputs(rc, model, ctx):
         h = 1e-3 * err
         vp, vm = dict(vals0), dict(vals0)
         vp[key] += h
         vm[key] -= h
-        drdp = (model.residual(theta, vp) - model.residual(theta, vm)) / (2 * h)
-        dtheta = -solve(jtj, jac.T @ drdp) * scales
-        for i in range(len(names)):
+        drdp = (model.residual(sol.theta, vp) - model.residual(sol.theta, vm)) / (2 * h)
+        dtheta = -np.linalg.solve(sol.jtj, sol.jac.T @ drdp) * scales
+        for i in range(len(sol.names)):
             fit_u[i] = fit_u[i] + dtheta[i] * (u - u.nominal_value)
+    return fit_u
 
-    q_val = theta[nl] if fit_q else q_stated.value
+
+def _laser_fits(rc, model, ctx, vals0, sol: _Solution, fit_u) -> tuple[list, list[str]]:
+    """One :class:`CrossSectionFit` per laser, and the warnings each raises."""
+    nl = len(model.lasers)
+    fit_q = rc.fit_yield
+    theta, r0 = sol.theta, sol.residuals
+    q_val = theta[nl] if fit_q else rc.fluorescence_yield.value
     ph_m, vi_m = model.predict(theta[:nl] * SIGMA_UNIT, q_val, vals0)
     coef = model.coefficients(vals0)
     fits = []
@@ -397,8 +454,8 @@ def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCom
                 wavelength_m=la.wavelength.value,
                 cross_section=sigma_u,
                 mean_photons_at_max=n_at_max,
-                chi2=chi2 if fit_q else chi_l,
-                ndof=ndof if fit_q else nu_l,
+                chi2=sol.chi2 if fit_q else chi_l,
+                ndof=sol.ndof if fit_q else nu_l,
                 pulse_energies=model.energy[rows],
                 phases=model.phase[rows],
                 phase_errors=model.phase_err[rows],
@@ -428,52 +485,49 @@ def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCom
                 f"{name}: beam_offset {la.beam_offset.value:g} ± {la.beam_offset.error:g} m is "
                 "compatible with 0; the area error from it is second order and is not propagated"
             )
-    if fit_q and ndof > 0 and stats.chi2.sf(chi2, ndof) < 0.01:
+    if fit_q and sol.ndof > 0 and stats.chi2.sf(sol.chi2, sol.ndof) < 0.01:
         warnings.append(
-            f"reduced χ² = {chi2 / ndof:.2f} (p < 0.01); the stated point errors may be too "
-            "small, or a stated input (laser position, velocity) off by more than its error"
+            f"reduced χ² = {sol.chi2 / sol.ndof:.2f} (p < 0.01); the stated point errors may be "
+            "too small, or a stated input (laser position, velocity) off by more than its error"
         )
-    if fit_q:
+    return fits, warnings
+
+
+def _fluorescence_yield(rc, sol: _Solution, fit_u, nl: int, warnings: list[str]):
+    """The fitted (with a range warning) or stated fluorescence yield."""
+    q_stated = rc.fluorescence_yield
+    if rc.fit_yield:
         q_u = fit_u[nl]
         if not 0 <= q_u.nominal_value <= 1:
             warnings.append(
                 f"fitted fluorescence yield {q_u.nominal_value:.2f} lies outside 0..1 "
                 "(unconstrained fit; the data barely determine it)"
             )
-    else:
-        q_u = (
-            ufloat(q_stated.value, q_stated.error, tag=f"fluorescence yield: {rc.name}")
-            if q_stated.error > 0
-            else q_stated.value
-        )
+        return q_u
+    return (
+        ufloat(q_stated.value, q_stated.error, tag=f"fluorescence yield: {rc.name}")
+        if q_stated.error > 0
+        else q_stated.value
+    )
+
+
+def _messages(rc, q_u, error_scale: float) -> list[str]:
+    """What the compound's message says besides its warnings."""
     messages = []
-    if fit_q or q_stated.value > 0:
+    if rc.fit_yield or rc.fluorescence_yield.value > 0:
         lam_e = (
             f"{rc.emission_wavelength * 1e9:g} nm"
             if rc.emission_wavelength
             else "the laser wavelength"
         )
-        what = "fitted" if fit_q else "stated"
+        what = "fitted" if rc.fit_yield else "stated"
         messages.append(
             f"isotropic re-emission included ({what} fluorescence yield "
             f"{format_value_error(nominal_values(q_u), std_devs(q_u))}, emission at {lam_e})"
         )
     if error_scale > 1:
         messages.append(f"fit errors scaled by √(χ²/ν) = {error_scale:.2f} (Birge)")
-    status = "warning" if warnings else "ok"
-    return RecoilCompoundResult(
-        compound=rc.name,
-        status=status,
-        message="; ".join(messages + warnings) or "ok",
-        mass_u=mass_u,
-        fits=tuple(fits),
-        fluorescence_yield=q_u,
-        yield_fitted=fit_q,
-        emission_wavelength_m=rc.emission_wavelength,
-        chi2=chi2,
-        ndof=ndof,
-        warnings=tuple(warnings),
-    )
+    return messages
 
 
 def analyze_recoil(c) -> RecoilResult:
