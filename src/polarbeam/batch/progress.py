@@ -7,6 +7,8 @@ import sys
 import time
 from dataclasses import dataclass
 
+from polarbeam._util.optional import has
+
 __all__ = ["ProgressEvent", "TerminalProgress"]
 
 
@@ -34,31 +36,30 @@ class TerminalProgress:
         self._task = None
         self._last = 0.0
         self._first: tuple[float, int] | None = None
+        if not self.plain and not has("rich"):  # optional extra polarbeam[batch]
+            self.plain = True
         if not self.plain:
-            try:
-                from rich.console import Console
-                from rich.progress import (
-                    BarColumn,
-                    MofNCompleteColumn,
-                    Progress,
-                    TextColumn,
-                    TimeElapsedColumn,
-                    TimeRemainingColumn,
-                )
-            except ImportError:
-                self.plain = True
-            else:
-                self._bar = Progress(
-                    TextColumn("{task.description}"),
-                    BarColumn(),
-                    MofNCompleteColumn(),
-                    TimeElapsedColumn(),
-                    TextColumn("ETA"),
-                    TimeRemainingColumn(),
-                    console=Console(file=self.stream),
-                    transient=False,
-                )
-                self._bar.start()
+            from rich.console import Console
+            from rich.progress import (
+                BarColumn,
+                MofNCompleteColumn,
+                Progress,
+                TextColumn,
+                TimeElapsedColumn,
+                TimeRemainingColumn,
+            )
+
+            self._bar = Progress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                MofNCompleteColumn(),
+                TimeElapsedColumn(),
+                TextColumn("ETA"),
+                TimeRemainingColumn(),
+                console=Console(file=self.stream),
+                transient=False,
+            )
+            self._bar.start()
 
     def _line(self, text: str) -> None:
         print(text, file=self.stream, flush=True)

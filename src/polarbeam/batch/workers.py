@@ -17,6 +17,7 @@ from typing import Any
 
 from uncertainties import UFloat
 
+from polarbeam._util.optional import has
 from polarbeam.batch.inputs import campaign_key, compound_hashes
 from polarbeam.batch.records import decode_compound, encode_compound
 from polarbeam.contract.campaign import load_campaign
@@ -181,25 +182,23 @@ class _Processes:
 
 class _Dask:
     def __init__(self, scheduler: str, jobs: int | None, dashboard: bool):
-        try:
-            from distributed import Client, LocalCluster
-        except ImportError:  # pragma: no cover - depends on the install
+        if not has("distributed"):  # pragma: no cover - depends on the install
             raise InputError(
                 "--scheduler: Dask's distributed scheduler is not installed; "
                 'pip install "polarbeam[batch]"'
-            ) from None
+            )
         import logging
+
+        from distributed import Client, LocalCluster
 
         self.cluster = None
         if scheduler == "local":
             n = jobs or os.cpu_count() or 1
             if dashboard:
-                try:
-                    import bokeh  # noqa: F401
-                except ImportError:
+                if not has("bokeh"):
                     raise InputError(
                         "--dashboard: Dask's dashboard needs bokeh; pip install 'bokeh>=3.1'"
-                    ) from None
+                    )
             # Everything on the loopback interface: the scheduler, the workers and the small
             # HTTP endpoint Dask always opens (health checks; the dashboard only when asked).
             self.cluster = LocalCluster(

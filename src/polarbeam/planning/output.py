@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam._util.atomic import write_text_atomic
+from polarbeam._util.optional import has
 from polarbeam.planning.rehearsal import write_rehearsal
 from polarbeam.planning.results import CampaignPlan, CompoundPlan
 
@@ -58,12 +59,8 @@ def write_plan(cplan: CampaignPlan, out: str | Path, *, rehearsal: bool | None =
         out / "plan.csv", table.to_csv(index=False, float_format="%.6g", lineterminator="\n")
     )
     notes = list(cplan.notes)
-    try:
-        import matplotlib  # noqa: F401
-
-        have_mpl = True
-    except ImportError:
-        have_mpl = False
+    have_mpl = has("matplotlib")
+    if not have_mpl:
         notes.append("plots skipped: matplotlib is not installed (pip install polarbeam[plots])")
     if have_mpl:
         for c in cplan.compounds:

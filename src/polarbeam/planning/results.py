@@ -14,6 +14,12 @@ from polarbeam.contract.plan import PlanSettings
 from polarbeam.planning.model import SeriesModel
 from polarbeam.planning.precision import DebyePrecision, LadderPrecision
 
+#: What a plan adds to the one caution text.
+PLAN_CAUTION = (
+    "A plan is arithmetic, not a safety assessment: check every planned voltage and temperature "
+    "against the ratings of the supply, feedthroughs, electrodes and oven."
+)
+
 __all__ = ["CampaignPlan", "CompoundPlan", "SeriesPlan", "render_markdown"]
 
 
@@ -192,7 +198,7 @@ class CampaignPlan:
             "coupling_budget": self.budget,
             "compounds": [c.summary() for c in self.compounds],
             "notes": list(self.notes),
-            "cautions": list(CAUTIONS),
+            "cautions": [*CAUTIONS, PLAN_CAUTION],
         }
 
     def to_markdown(self) -> str:
@@ -279,5 +285,5 @@ def render_markdown(p: CampaignPlan) -> str:
     ]
     if notes or p.notes:
         lines += ["", "Notes:", ""] + [f"* {n}" for n in (*p.notes, *notes)]
-    lines += ["", "## Safety", "", *[f"- {c}" for c in CAUTIONS], ""]
+    lines += ["", "## Safety", "", *[f"- {c}" for c in (*CAUTIONS, PLAN_CAUTION)], ""]
     return "\n".join(lines)

@@ -7,6 +7,7 @@ from pathlib import Path
 
 from polarbeam._util.atomic import write_bytes_atomic, write_text_atomic
 from polarbeam._util.cautions import CAUTIONS
+from polarbeam._util.optional import has
 from polarbeam.quantities import value_error_text
 from polarbeam.report.text import md_escape
 from polarbeam.results.recoil import (
@@ -64,13 +65,13 @@ def write_recoil_results(recoil: RecoilResult, out: str | Path) -> list[str]:
 
 
 def _spectrum_png(recoil: RecoilResult) -> bytes | None:
-    try:
-        import matplotlib
-
-        matplotlib.use("Agg", force=False)
-        from matplotlib.figure import Figure
-    except ImportError:  # optional extra polarbeam[plots]
+    if not has("matplotlib"):  # optional extra polarbeam[plots]
         return None
+    import matplotlib
+
+    matplotlib.use("Agg", force=False)
+    from matplotlib.figure import Figure
+
     fig = Figure(figsize=(6.0, 4.0), dpi=120)
     ax = fig.add_subplot()
     for c in recoil.compounds:
