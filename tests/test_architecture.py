@@ -133,3 +133,30 @@ def test_no_private_names_across_modules():
 def test_modules_stay_small(name, path):
     lines = path.read_text(encoding="utf-8").count("\n")
     assert lines <= 900, f"{name} has {lines} lines; split it along its concerns"
+
+
+def test_one_error_hierarchy():
+    """Every exception class lives in polarbeam.errors (common practice: one hierarchy)."""
+    bad = []
+    for name, path, tree in MODULES:
+        if name == "polarbeam.errors":
+            continue
+        for node in ast.walk(tree):
+            if isinstance(node, ast.ClassDef) and node.name.endswith(("Error", "Exception")):
+                bad.append(f"{path.relative_to(SRC)}:{node.lineno} class {node.name}")
+    assert not bad, "\n".join(bad)
+
+
+def test_only_the_contract_parses_unit_strings():
+    bad = []
+    for name, path, tree in MODULES:
+        if _stage(name) in ("contract", "quantities"):
+            continue
+        for node in ast.walk(tree):
+            if isinstance(node, ast.Name) and node.id == "parse_quantity":
+                bad.append(f"{path.relative_to(SRC)}:{node.lineno}")
+            if isinstance(node, ast.ImportFrom) and any(
+                a.name == "parse_quantity" for a in node.names
+            ):
+                bad.append(f"{path.relative_to(SRC)}:{node.lineno}")
+    assert not bad, "parse_quantity outside polarbeam.contract:\n" + "\n".join(sorted(set(bad)))

@@ -12,9 +12,11 @@ expected and what was found.  Two families matter to the pipeline:
 from __future__ import annotations
 
 __all__ = [
+    "CalculationTooBigError",
     "CompoundError",
     "FitError",
     "InputError",
+    "MissingExtraError",
     "PolarbeamError",
     "QuantityError",
     "RowValueError",
@@ -43,3 +45,11 @@ class RowValueError(CompoundError):
 
 class FitError(CompoundError):
     """A fit that did not converge or gave no usable covariance."""
+
+
+class MissingExtraError(InputError, ImportError):
+    """An optional package needed for the requested step is not installed."""
+
+
+class CalculationTooBigError(CompoundError):
+    """The estimated run time of a quantum-chemistry calculation exceeds the configured limit."""

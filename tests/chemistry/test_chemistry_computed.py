@@ -328,7 +328,7 @@ def test_read_outputs_through_cclib(tmp_path):
 def test_missing_cclib_gives_one_line_install_hint(monkeypatch, tmp_path):
     import importlib
 
-    from polarbeam._util.optional import MissingExtraError
+    from polarbeam.errors import MissingExtraError
 
     real = importlib.import_module
 

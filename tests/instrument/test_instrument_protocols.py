@@ -18,6 +18,7 @@ from polarbeam.instrument.deflectors import (
     coupling,
     overlap,
 )
+from polarbeam.instrument.numerical import NumericalDeflector
 from polarbeam.instrument.protocols import DeflectorModel, LayoutModel
 
 ROOT = __import__("pathlib").Path(__file__).resolve().parents[2]
@@ -46,6 +47,8 @@ def _deflectors():
         # worked case of the README: a = 2 mm, z1 = 1.6 mm, z2 = 3.4 mm, beam at 1.2 a
         ("two-wire", TwoWireDeflector(2e-3, 1.6e-3, 3.4e-3, 2.4e-3, e, length)),
         ("field-map", FieldMapDeflector((0.0, length / 2, length), (0.0, 2e5, 0.0), e)),
+        # a solved cross-section over its effective length L + 2·extension
+        ("numerical", NumericalDeflector(1.5e5, e, length, 0.01 * length, 4.0e3)),
     ]
 
 

@@ -12,7 +12,7 @@ import importlib
 import importlib.util
 from types import ModuleType
 
-from polarbeam.errors import InputError
+from polarbeam.errors import MissingExtraError
 
 __all__ = ["EXTRAS", "MissingExtraError", "extra_for", "has", "missing_reason", "require"]
 
@@ -28,10 +28,6 @@ EXTRAS: dict[str, tuple[str, str]] = {
     "rich": ("rich", "batch"),
     "pyamg": ("pyamg", "fields"),
 }
-
-
-class MissingExtraError(InputError, ImportError):
-    """An optional package needed for the requested step is not installed."""
 
 
 def has(module: str) -> bool:

@@ -65,7 +65,7 @@ def build_context(c: Campaign) -> Context:
         u = ufloat(m.value, m.error, tag=input_label(key))
         shift = shift + s_key * (u - m.value)
     ratio = 1.0 / (1.0 + shift)
-    fpv = getattr(deflector, "field_per_volt", None)
+    fpv = deflector.field_per_volt
     return Context(layout, deflector, c0, ratio, sens, fpv)
 
 

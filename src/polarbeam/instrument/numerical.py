@@ -51,6 +51,10 @@ __all__ = [
     "NumericalSpec",
 ]
 
+#: The two-wire cross-section by its line-charge parameters, or by its electrode radii and gap.
+TWO_WIRE_LINES = ("line_half_spacing", "convex_crossing", "concave_crossing")
+TWO_WIRE_RADII = ("convex_radius", "concave_radius", "gap")
+
 #: Stated input carrying the mesh-refinement error of g (a factor 1 ± ε).
 FIELD_ERROR_KEY = "deflector.numerical field error"
 #: Stated input carrying the grid error of a numerically solved effective length (metres).
@@ -274,14 +278,3 @@ class NumericalDeflector:
         if self.map_profile is not None:
             return float(self.map_profile[0][0]), float(self.map_profile[0][-1])
         return self.entrance - self.extension, self.entrance + self.length + self.extension
-
-
-# ---------------------------------------------------------------------------------------------
-# Sensitivities of g for any model, and the `polarbeam field` report
-# ---------------------------------------------------------------------------------------------
-
-
-TWO_WIRE_LINES = ("line_half_spacing", "convex_crossing", "concave_crossing")
-
-
-TWO_WIRE_RADII = ("convex_radius", "concave_radius", "gap")

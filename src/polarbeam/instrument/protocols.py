@@ -38,7 +38,14 @@ class LayoutModel(Protocol):
 
 @runtime_checkable
 class DeflectorModel(Protocol):
-    """A deflector: the field factor g = E·∂E/∂x / V² along the beam."""
+    """A deflector: the field factor g = E·∂E/∂x / V² along the beam.
+
+    ``field_per_volt`` is E/V at the beam (m⁻¹) where the model knows it (for the μE/kT check),
+    else None.
+    """
+
+    model: str
+    field_per_volt: float | None
 
     @property
     def span(self) -> tuple[float, float]:

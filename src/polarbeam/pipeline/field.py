@@ -221,7 +221,7 @@ def deflector_field(campaign, voltage) -> FieldReport:
         if m.spec.fringe == "map":
             Leff = None
     else:
-        fpv = getattr(d, "field_per_volt", None)
+        fpv = d.field_per_volt
         if fpv:
             E = fpv * V
             dEdx = g * V * V / E

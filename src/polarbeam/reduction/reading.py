@@ -13,8 +13,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from polarbeam._util.optional import MissingExtraError, has, require
-from polarbeam.errors import InputError, RowValueError
+from polarbeam._util.optional import has, require
+from polarbeam.errors import InputError, MissingExtraError, RowValueError
 from polarbeam.reduction.columns import (
     INPUT_COLUMNS,
     NUMERIC_COLUMNS,

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from polarbeam.chemistry.qchem.geometry import Geometry, geometry_from_smiles
 from polarbeam.chemistry.qchem.response import DEFAULT_FIELD_AU, PolarizabilityScheme
 from polarbeam.chemistry.qchem.scf import build_mol, is_hf, run_pyscf
-from polarbeam.errors import CompoundError, InputError
+from polarbeam.errors import CalculationTooBigError, InputError
 
 __all__ = [
     "DEFAULT_COST_MODELS",
@@ -29,10 +29,6 @@ __all__ = [
 
 #: Default refusal limit for one calculation, seconds (estimated, see :class:`CostModel`).
 DEFAULT_MAX_SECONDS = 1800.0
-
-
-class CalculationTooBigError(CompoundError):
-    """The estimated run time of a calculation exceeds the configured limit."""
 
 
 @dataclass(frozen=True)
