@@ -1,4 +1,7 @@
-"""Command-line interface: a thin typer layer over the Python API.
+"""Command-line interface: typer commands over the public Python API (``polarbeam.<name>``).
+
+Each command reaches the stage it needs through the package's lazy façade, so ``--help`` and
+argument errors cost no scientific imports.
 
 Exit codes: 0 all compounds analysed, 1 some compounds failed, 2 every compound failed or the
 input is structurally wrong (the error is printed as one line, never a traceback).
@@ -11,19 +14,8 @@ from pathlib import Path
 
 import typer
 
-from polarbeam import chemistry as qchem
-from polarbeam._util.atomic import write_text_atomic
-from polarbeam._util.tables import read_table
-from polarbeam.batch.run import run_cli
-from polarbeam.chemistry import estimate_table
-from polarbeam.contract.campaign import load_campaign
+import polarbeam as pb  # the public API, loaded on first use (a fast `--help`)
 from polarbeam.errors import PolarbeamError
-from polarbeam.pipeline.field import deflector_field, plot_deflector_field
-from polarbeam.planning.output import write_plan
-from polarbeam.planning.plan import make_plan
-from polarbeam.reduction import write_phases
-from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
-from polarbeam.simulation.demo import write_demo, write_demo_scans
 
 __all__ = ["app", "main"]
 
@@ -74,7 +66,7 @@ def analyze(
 ):
     """Analyse campaigns: α_eff per series, α and μ per compound, report and budgets."""
     try:
-        code = run_cli(
+        code = pb.run_cli(
             campaigns,
             out,
             quiet=quiet,
@@ -97,14 +89,14 @@ def reduce(
 ):
     """Reduce raw fringe scans to drift-corrected phases (one row per non-reference scan)."""
     try:
-        camp = load_campaign(campaign)
+        camp = pb.load_campaign(campaign)
         if camp.reduction is None:
             raise PolarbeamError(
                 f"{campaign.name} [data] scans: expected a raw-scan file to reduce, found none"
             )
     except PolarbeamError as exc:
         _fail(exc)
-    write_phases(camp.reduction, out)
+    pb.write_phases(camp.reduction, out)
     t = camp.reduction.table
     kept = int(t["phase_rad"].notna().sum())
     typer.echo(
@@ -122,8 +114,8 @@ def plan(
 ):
     """Plan a campaign: predicted phases, voltage ladders, expected precision, beam time."""
     try:
-        result = make_plan(campaign)
-        write_plan(result, out, rehearsal=rehearsal and result.settings.rehearsal)
+        result = pb.make_plan(campaign)
+        pb.write_plan(result, out, rehearsal=rehearsal and result.settings.rehearsal)
     except PolarbeamError as exc:
         _fail(exc)
     table = result.table()
@@ -155,7 +147,7 @@ def estimate(
 ):
     """Structure-based estimates (additive α, mass, dipoles) for a library without measurements."""
     try:
-        counts = estimate_table(
+        counts = pb.estimate_table(
             input,
             out,
             dipoles=dipoles,
@@ -185,77 +177,30 @@ def compute(
     d4: bool = typer.Option(False, "--d4", help="fast D4-model polarizability instead of SCF"),
 ):
     """Compute static polarizabilities and dipoles with PySCF (extra polarbeam[qc]); cached."""
-    if polarizability not in ("analytic", "finite-field"):
-        _fail(
-            PolarbeamError(
-                "--polarizability: expected one of analytic, finite-field, "
-                f"found {polarizability!r}"
-            )
-        )
-    jobs: list[tuple[str, str]] = []
-    path = Path(input)
     try:
-        if path.suffix.lower() == ".csv":
-            t = read_table(path, ("compound", "smiles"), "structures")
-            jobs = [(r["compound"], r["smiles"]) for r in t.rows]
-        else:
-            jobs = [(path.stem if path.is_file() else input, input)]
+        pb.qchem.check_scheme(polarizability)
+        jobs = pb.qchem.compute_jobs(input)
     except PolarbeamError as exc:
         _fail(exc)
-    results, failed = [], 0
 
     def progress(step, total, message):
         typer.echo(f"  [{step}/{total}] {message}", err=True)
 
-    for name, structure in jobs:
-        typer.echo(f"{name}: {method}/{basis}", err=True)
-        try:
-            if d4:
-                r = qchem.d4_polarizability(structure, name=name)
-            else:
-                r = qchem.compute_properties(
-                    structure,
-                    method,
-                    basis,
-                    name=name,
-                    polarizability=polarizability,
-                    max_seconds=max_seconds,
-                    progress=progress,
-                )
-            results.append(r)
-        except PolarbeamError as exc:
-            failed += 1
-            typer.echo(f"failed: {name}: {exc}", err=True)
+    results, failures = pb.qchem.compute_library(
+        jobs,
+        method,
+        basis,
+        polarizability=polarizability,
+        max_seconds=max_seconds,
+        d4=d4,
+        progress=progress,
+        on_start=lambda name: typer.echo(f"{name}: {method}/{basis}", err=True),
+        on_failure=lambda name, message: typer.echo(f"failed: {name}: {message}", err=True),
+    )
     if results:
-        import io
-
-        buf = io.StringIO()
-        table = qchem.results_table(results)
-        table = table.rename(
-            columns={
-                "alpha_computed_A3": "alpha",
-                "dipole_computed_D": "dipole_D",
-                "alpha_xx_A3": "alpha_xx",
-                "alpha_yy_A3": "alpha_yy",
-                "alpha_zz_A3": "alpha_zz",
-            }
-        )
-        table.insert(3, "alpha_unit", "A3")  # the [data] computed input contract
-        keep = [
-            "compound",
-            "method",
-            "alpha",
-            "alpha_unit",
-            "dipole_D",
-            "alpha_xx",
-            "alpha_yy",
-            "alpha_zz",
-            "source",
-        ]
-        table[[c for c in keep if c in table]].to_csv(buf, index=False, lineterminator="\n")
-        write_text_atomic(out, buf.getvalue())
+        pb.qchem.write_computed(results, out)
         typer.echo(f"{len(results)} result(s) written to {out}")
-    raise typer.Exit(0 if failed == 0 else (2 if not results else 1))
+    raise typer.Exit(0 if not failures else (2 if not results else 1))
 
 
 @app.command()
@@ -267,24 +212,10 @@ def simulate(
     """Write a simulated campaign (random compound, known truth) in the input contract."""
     import json
 
-    import numpy as np
-
-    specs = {
-        "talbot-lau": InstrumentSpec.talbot_lau,
-        "beam-profile": InstrumentSpec.beam_profile,
-        "time-domain": InstrumentSpec.time_domain,
-    }
-    if layout not in specs:
-        _fail(PolarbeamError(f"--layout: expected one of {', '.join(specs)}, found {layout!r}"))
-    rng = np.random.default_rng(seed)
-    comp = CompoundTruth(
-        "sample-1",
-        float(rng.uniform(80, 600)),
-        float(rng.uniform(10, 80)),
-        float(rng.uniform(0, 3)),
-        (300.0, 400.0, 500.0, 600.0),
-    )
-    truth = simulate_campaign(out, [comp], spec=specs[layout](), seed=rng)
+    try:
+        truth, comp = pb.simulate_random_campaign(out, seed, layout)
+    except PolarbeamError as exc:
+        _fail(exc)
     typer.echo(
         json.dumps(
             {
@@ -307,9 +238,9 @@ def field(
     import json
 
     try:
-        report = deflector_field(campaign, voltage)
+        report = pb.deflector_field(campaign, voltage)
         if plot is not None:
-            plot_deflector_field(campaign, plot, voltage)
+            pb.plot_deflector_field(campaign, plot, voltage)
     except PolarbeamError as exc:
         _fail(exc)
     typer.echo(json.dumps(report.summary(), ensure_ascii=False) if as_json else report.to_text())
@@ -323,7 +254,7 @@ def demo(
     scans: bool = typer.Option(False, "--scans", help="the raw-scan variant instead"),
 ):
     """Rewrite the invented demo campaign (deterministic)."""
-    (write_demo_scans if scans else write_demo)(out)
+    (pb.write_demo_scans if scans else pb.write_demo)(out)
     typer.echo(f"demo campaign written to {out}/campaign.toml")
 
 

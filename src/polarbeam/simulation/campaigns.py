@@ -21,6 +21,7 @@ from polarbeam._util.atomic import write_text_atomic
 from polarbeam.beam.response import LangevinDebye, ParticleResponse
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.campaign import build_layout
+from polarbeam.errors import InputError
 from polarbeam.extraction.series import observable_model
 from polarbeam.instrument.deflectors import (
     FieldMapDeflector,
@@ -35,6 +36,7 @@ from polarbeam.simulation import scans as scansim
 LANGEVIN_DEBYE = LangevinDebye()
 
 __all__ = [
+    "LAYOUT_PRESETS",
     "CompoundTruth",
     "InstrumentSpec",
     "SimulationTruth",
@@ -42,6 +44,7 @@ __all__ = [
     "random_campaign",
     "random_time_domain_campaign",
     "simulate_campaign",
+    "simulate_random_campaign",
     "simulate_scan_campaign",
 ]
 
@@ -524,3 +527,30 @@ def simulate_scan_campaign(
     toml = _toml(spec, title).replace('shifts = "shifts.csv"', f'scans = "{name}"')
     write_text_atomic(out / "campaign.toml", toml)
     return SimulationTruth(true, {c.name: c for c in compounds}, truth_eff, out)
+
+
+#: Instrument presets of :func:`simulate_random_campaign`, by layout.
+LAYOUT_PRESETS = {
+    "talbot-lau": InstrumentSpec.talbot_lau,
+    "beam-profile": InstrumentSpec.beam_profile,
+    "time-domain": InstrumentSpec.time_domain,
+}
+
+
+def simulate_random_campaign(
+    out_dir: str | Path, seed: int = 0, layout: str = "talbot-lau"
+) -> tuple[SimulationTruth, CompoundTruth]:
+    """One random compound (α 10–80 Å³, μ 0–3 D, 80–600 u) at 300–600 K in a preset instrument:
+    the campaign ``polarbeam simulate`` writes. Returns the truth and the compound."""
+    if layout not in LAYOUT_PRESETS:
+        raise InputError(f"--layout: expected one of {', '.join(LAYOUT_PRESETS)}, found {layout!r}")
+    rng = np.random.default_rng(seed)
+    comp = CompoundTruth(
+        "sample-1",
+        float(rng.uniform(80, 600)),
+        float(rng.uniform(10, 80)),
+        float(rng.uniform(0, 3)),
+        (300.0, 400.0, 500.0, 600.0),
+    )
+    truth = simulate_campaign(out_dir, [comp], spec=LAYOUT_PRESETS[layout](), seed=rng)
+    return truth, comp

@@ -50,6 +50,13 @@ from polarbeam.chemistry.qchem.geometry import (
     geometry_from_smiles,
     load_geometry,
 )
+from polarbeam.chemistry.qchem.library import (
+    POLARIZABILITY_SCHEMES,
+    check_scheme,
+    compute_jobs,
+    compute_library,
+    write_computed,
+)
 from polarbeam.chemistry.qchem.response import (
     AU_DIPOLE_SI,
     DEFAULT_FIELD_AU,
@@ -67,6 +74,7 @@ __all__ = [
     "DEFAULT_FIELD_AU",
     "DEFAULT_MAX_SECONDS",
     "DEFAULT_SEED",
+    "POLARIZABILITY_SCHEMES",
     "CalculationTooBigError",
     "ComputedResult",
     "CostEstimate",
@@ -75,6 +83,9 @@ __all__ = [
     "PolarizabilityScheme",
     "ProgressCallback",
     "calibrate_cost_model",
+    "check_scheme",
+    "compute_jobs",
+    "compute_library",
     "compute_properties",
     "cpscf_polarizability",
     "d4_polarizability",
@@ -87,4 +98,5 @@ __all__ = [
     "load_geometry",
     "results_table",
     "run_pyscf",
+    "write_computed",
 ]

@@ -1,0 +1,125 @@
+"""Several molecules at once: the jobs of ``polarbeam compute`` and the ``computed.csv`` it writes.
+
+The input is one SMILES, one structure file (.xyz, .sdf, .mol) or a CSV ``compound, smiles``;
+each molecule is computed (or taken from the cache) and a failure is reported without stopping
+the others. :func:`write_computed` writes the results in the ``[data] computed`` input contract.
+"""
+
+from __future__ import annotations
+
+import io
+from collections.abc import Callable
+from pathlib import Path
+
+from polarbeam._util.atomic import write_text_atomic
+from polarbeam._util.tables import read_table
+from polarbeam.chemistry.qchem.compute import (
+    ProgressCallback,
+    compute_properties,
+    d4_polarizability,
+)
+from polarbeam.chemistry.qchem.result import ComputedResult, results_table
+from polarbeam.errors import InputError, PolarbeamError
+
+__all__ = [
+    "POLARIZABILITY_SCHEMES",
+    "check_scheme",
+    "compute_jobs",
+    "compute_library",
+    "write_computed",
+]
+
+#: Response schemes of the polarizability a library run accepts.
+POLARIZABILITY_SCHEMES = ("analytic", "finite-field")
+
+#: Columns of ``computed.csv`` (the ``[data] computed`` contract), in order.
+_COMPUTED_CSV = (
+    "compound",
+    "method",
+    "alpha",
+    "alpha_unit",
+    "dipole_D",
+    "alpha_xx",
+    "alpha_yy",
+    "alpha_zz",
+    "source",
+)
+
+
+def check_scheme(polarizability: str) -> None:
+    """Raise :class:`~polarbeam.errors.InputError` unless ``polarizability`` is a known scheme."""
+    if polarizability not in POLARIZABILITY_SCHEMES:
+        raise InputError(
+            f"--polarizability: expected one of {', '.join(POLARIZABILITY_SCHEMES)}, "
+            f"found {polarizability!r}"
+        )
+
+
+def compute_jobs(source: str) -> list[tuple[str, str]]:
+    """(name, structure) pairs: the rows of a CSV ``compound, smiles``, or one molecule named by
+    its file stem (a structure file) or by the SMILES itself."""
+    path = Path(source)
+    if path.suffix.lower() == ".csv":
+        t = read_table(path, ("compound", "smiles"), "structures")
+        return [(r["compound"], r["smiles"]) for r in t.rows]
+    return [(path.stem if path.is_file() else source, source)]
+
+
+def compute_library(
+    jobs: list[tuple[str, str]],
+    method: str = "b3lyp",
+    basis: str = "def2-svpd",
+    *,
+    polarizability: str = "analytic",
+    max_seconds: float = 1800.0,
+    d4: bool = False,
+    progress: ProgressCallback | None = None,
+    on_start: Callable[[str], None] | None = None,
+    on_failure: Callable[[str, str], None] | None = None,
+) -> tuple[list[ComputedResult], list[tuple[str, str]]]:
+    """Compute every job; returns (results, [(name, one-line error), …] of the failures).
+
+    ``on_start(name)`` and ``on_failure(name, message)`` report each molecule as it goes.
+    """
+    check_scheme(polarizability)
+    results: list[ComputedResult] = []
+    failures: list[tuple[str, str]] = []
+    for name, structure in jobs:
+        if on_start is not None:
+            on_start(name)
+        try:
+            if d4:
+                r = d4_polarizability(structure, name=name)
+            else:
+                r = compute_properties(
+                    structure,
+                    method,
+                    basis,
+                    name=name,
+                    polarizability=polarizability,
+                    max_seconds=max_seconds,
+                    progress=progress,
+                )
+            results.append(r)
+        except PolarbeamError as exc:
+            failures.append((name, str(exc)))
+            if on_failure is not None:
+                on_failure(name, str(exc))
+    return results, failures
+
+
+def write_computed(results: list[ComputedResult], out: str | Path) -> None:
+    """Write ``computed.csv`` (Å³ and debye, ``alpha_unit = A3``) atomically."""
+    table = results_table(results).rename(
+        columns={
+            "alpha_computed_A3": "alpha",
+            "dipole_computed_D": "dipole_D",
+            "alpha_xx_A3": "alpha_xx",
+            "alpha_yy_A3": "alpha_yy",
+            "alpha_zz_A3": "alpha_zz",
+        }
+    )
+    table.insert(3, "alpha_unit", "A3")  # the [data] computed input contract
+    buf = io.StringIO()
+    table[[c for c in _COMPUTED_CSV if c in table]].to_csv(buf, index=False, lineterminator="\n")
+    write_text_atomic(out, buf.getvalue())
