@@ -23,7 +23,7 @@ _API: dict[str, str] = {
     "analyze": "polarbeam.pipeline.analysis",
     "analyze_campaign": "polarbeam.pipeline.analysis",
     "load_campaign": "polarbeam.contract.campaign",
-    "write_report": "polarbeam.pipeline.outputs",
+    "write_report": "polarbeam.report.folder",
     "run_batch": "polarbeam.batch.run",
     "make_plan": "polarbeam.planning.plan",
     "write_plan": "polarbeam.planning.output",

@@ -70,3 +70,17 @@ def test_summary_json_round_trip_keeps_alpha_mu_and_budget():
 def test_exit_code_rules(statuses, code):
     comps = [_ok(f"c{i}") if s == "ok" else _failed(f"c{i}") for i, s in enumerate(statuses)]
     assert _campaign(*comps).exit_code == code
+
+
+def test_results_reach_the_renderers_through_the_registry(tmp_path):
+    # the report stage registers itself; results never import it (docs/architecture.md)
+    import polarbeam.report  # noqa: F401
+    from polarbeam.errors import PolarbeamError
+    from polarbeam.results.objects import CampaignResult, writer
+
+    result = CampaignResult("t", "src", "talbot-lau", "uniform", ())
+    assert result.to_markdown().startswith("# t")
+    result.to_report(tmp_path / "out", html=False)
+    assert (tmp_path / "out" / "properties.csv").exists()
+    with pytest.raises(PolarbeamError, match="no 'pdf' renderer is registered"):
+        writer("pdf")

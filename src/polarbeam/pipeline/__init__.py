@@ -15,7 +15,6 @@ from polarbeam.pipeline.field import (
 )
 from polarbeam.pipeline.outputs import (
     write_outputs,
-    write_report,
 )
 
 __all__ = [
@@ -27,5 +26,4 @@ __all__ = [
     "deflector_field",
     "plot_deflector_field",
     "write_outputs",
-    "write_report",
 ]

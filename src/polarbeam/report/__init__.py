@@ -20,6 +20,9 @@ from polarbeam.report.files import (
     render_terminal,
     write_results,
 )
+from polarbeam.report.folder import (
+    write_report,
+)
 from polarbeam.report.html import (
     DEFAULT_DETAILS,
     compound_figure_files,
@@ -65,5 +68,6 @@ __all__ = [
     "visibility_figure",
     "write_html",
     "write_recoil_results",
+    "write_report",
     "write_results",
 ]

@@ -6,6 +6,8 @@ from polarbeam.results.objects import (
     CampaignResult,
     CompoundResult,
     SeriesResult,
+    register_writer,
+    writer,
 )
 from polarbeam.results.recoil import (
     RECOIL_OUTPUT_COLUMNS,
@@ -28,6 +30,8 @@ __all__ = [
     "RecoilResult",
     "SeriesResult",
     "nominal_values",
+    "register_writer",
     "std_devs",
     "with_recoil",
+    "writer",
 ]

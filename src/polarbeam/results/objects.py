@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import html
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -19,6 +20,7 @@ from polarbeam._util.cautions import CAUTIONS
 from polarbeam._util.text import finite_or_none
 from polarbeam._version import __version__
 from polarbeam.constants import alpha_a3_from_si, alpha_au_from_si, debye_from_si
+from polarbeam.errors import PolarbeamError
 from polarbeam.quantities import format_value_error
 from polarbeam.uncertain import variance_budget
 
@@ -26,6 +28,8 @@ __all__ = [
     "CampaignResult",
     "CompoundResult",
     "SeriesResult",
+    "register_writer",
+    "writer",
 ]
 
 STATUS = ("ok", "warning", "failed")  # reference compounds: extra["role"] == "reference"
@@ -329,6 +333,15 @@ class CampaignResult:
             "cautions": list(CAUTIONS),
         }
 
+    def to_markdown(self) -> str:
+        """The Markdown report (the renderer registered by :mod:`polarbeam.report`)."""
+        return writer("markdown")(self)
+
+    def to_report(self, path, *, html: bool = True, details: int | None = None) -> None:
+        """Write the whole results folder (CSV, JSON, Markdown and, unless ``html=False``,
+        ``report.html`` with ``figures/``) to ``path``; ``details``: compounds with figures."""
+        writer("folder")(self, path, html=html, details=details)
+
     def _repr_html_(self) -> str:
         rows = []
         for c in self.compounds:
@@ -355,3 +368,24 @@ class CampaignResult:
             + "".join(rows)
             + "</tbody></table>"
         )
+
+
+#: Renderers by name ("markdown", "folder"), registered by :mod:`polarbeam.report` on import, so
+#: results offer ``to_markdown``/``to_report`` without importing the renderers.
+_WRITERS: dict[str, Callable[..., Any]] = {}
+
+
+def register_writer(name: str, function: Callable[..., Any]) -> None:
+    """Make ``function`` the renderer ``name`` of campaign results."""
+    _WRITERS[name] = function
+
+
+def writer(name: str) -> Callable[..., Any]:
+    """The registered renderer ``name``; a clear error when the report stage is not loaded."""
+    try:
+        return _WRITERS[name]
+    except KeyError:
+        raise PolarbeamError(
+            f"no {name!r} renderer is registered: import polarbeam.report first "
+            "(polarbeam.analyze and the batch do)"
+        ) from None
