@@ -9,7 +9,8 @@ from scipy import constants as sc
 from scipy import integrate, optimize, stats
 from uncertainties import ufloat
 
-from polarbeam.separation.debye import debye_fit, dipole_from_mu2
+from polarbeam.separation.debye import bounded_upper_limit, debye_fit
+from polarbeam.separation.dipole import dipole_statement
 
 K_B = sc.k  # Boltzmann constant, scipy.constants (CODATA)
 DEBYE = 1e-21 / sc.c  # 1 D = 1e-21/c C·m = 3.33564e-30 C·m (definition; c from scipy.constants)
@@ -48,20 +49,31 @@ def _flat_prior_upper_limit(m: float, s: float, cl: float) -> float:
 
 
 @pytest.mark.parametrize("ratio", [-0.5, 0.0, 1.0, 1.9])
-def test_insignificant_mu2_gives_an_upper_limit(ratio):
+def test_flat_prior_upper_limit(ratio):
+    # the planner's predicted limit (a Bayesian limit with a flat prior on ⟨μ²⟩ ≥ 0)
     s = (1.0 * DEBYE) ** 2
-    mu2 = ufloat(ratio * s, s, tag="fit")
-    mu, upper = dipole_from_mu2(mu2, significance=2.0, cl=0.95)
-    assert mu is None
+    upper = math.sqrt(bounded_upper_limit(ratio * s, s, 0.95))
     ref = math.sqrt(_flat_prior_upper_limit(ratio * s, s, 0.95))
     assert math.isclose(upper, ref, rel_tol=1e-7)
     assert upper > math.sqrt(max(ratio, 0.0) * s)
 
 
+@pytest.mark.parametrize("ratio", [-0.5, 0.0, 1.0, 1.5])
+def test_mu2_compatible_with_zero_gives_an_upper_limit(ratio):
+    s = (1.0 * DEBYE) ** 2
+    st = dipole_statement(ufloat(ratio * s, s, tag="fit"))
+    assert st.value is None and st.limit is not None
+    assert st.limit > math.sqrt(max(ratio, 0.0) * s)
+    assert 0.0 <= st.lower <= st.upper <= st.limit
+
+
 def test_significant_mu2_gives_a_value():
     mu2 = ufloat((2.5 * DEBYE) ** 2, 0.1 * (2.5 * DEBYE) ** 2, tag="fit")
-    mu, upper = dipole_from_mu2(mu2, significance=2.0, cl=0.95)
-    assert upper is None
-    assert math.isclose(mu.nominal_value, 2.5 * DEBYE, rel_tol=1e-12)
-    # σ_μ = σ_μ² / (2μ) (first-order propagation of a square root)
-    assert math.isclose(mu.std_dev, 0.1 * (2.5 * DEBYE) ** 2 / (2 * 2.5 * DEBYE), rel_tol=1e-9)
+    st = dipole_statement(mu2)
+    assert st.limit is None
+    assert math.isclose(st.value.nominal_value, 2.5 * DEBYE, rel_tol=1e-12)
+    # far from the boundary the half width tends to σ_μ² / (2μ) (first-order propagation of a
+    # square root); the unified interval of μ² is central there
+    expected = 0.1 * (2.5 * DEBYE) ** 2 / (2 * 2.5 * DEBYE)
+    assert math.isclose(st.value.std_dev, expected, rel_tol=0.01)
+    assert st.lower < st.value.nominal_value < st.upper

@@ -72,7 +72,7 @@ from polarbeam.extraction.context import Context, build_context, field_factor_se
 from polarbeam.quantities import Measured, format_value_error
 from polarbeam.results.objects import CompoundResult
 from polarbeam.separation.compound import separate
-from polarbeam.separation.debye import dipole_from_mu2
+from polarbeam.separation.dipole import dipole_statement
 from polarbeam.uncertain import variance_budget
 
 #: analyse one compound with a context: ``(compound, campaign, context) -> CompoundResult``.
@@ -599,7 +599,8 @@ def reference_result(r1, ref, known, scale, st, own: ReferenceCalibration | None
     if r1.method == "temperature series" and r1.alpha is not None:
         alpha = r1.alpha / scale if scale is not None else r1.alpha
         mu2 = r1.mu2 / scale if scale is not None else r1.mu2
-        dipole, upper = dipole_from_mu2(mu2, st.dipole_significance, st.upper_limit_cl)
+        statement = dipole_statement(mu2, limit_cl=st.upper_limit_cl)
+        dipole, upper = statement.value, statement.limit
     warnings = [w for w in r1.warnings if not w.startswith("single source temperature")]
     a_txt = format_value_error(alpha_a3_from_si(ref.alpha.value), alpha_a3_from_si(ref.alpha.error))
     mu_txt = format_value_error(debye_from_si(ref.dipole.value), debye_from_si(ref.dipole.error))

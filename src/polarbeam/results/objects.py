@@ -175,6 +175,8 @@ class CompoundResult:
     alpha: UFloat | None = None
     dipole: UFloat | None = None
     dipole_upper_si: float | None = None
+    dipole_interval_si: tuple[float, float] | None = None  # unified interval [μ_lo, μ_hi]
+    dipole_cl: tuple[float, float] | None = None  # (interval CL, limit CL)
     mu2: UFloat | None = None
     method: str = "none"
     debye_chi2: float | None = None
@@ -201,6 +203,12 @@ class CompoundResult:
             ),
             "status": self.status,
             "message": self.message,
+            "dipole_lo_D": (
+                debye_from_si(self.dipole_interval_si[0]) if self.dipole_interval_si else None
+            ),
+            "dipole_hi_D": (
+                debye_from_si(self.dipole_interval_si[1]) if self.dipole_interval_si else None
+            ),
             "n_series": len(self.series),
             "temperatures_K": ";".join(f"{s.temperature_K:g}" for s in self.series),
             "method": self.method,
@@ -231,6 +239,14 @@ class CompoundResult:
                     else None
                 ),
                 "upper_Cm": self.dipole_upper_si,
+                "interval_D": (
+                    [debye_from_si(v) for v in self.dipole_interval_si]
+                    if self.dipole_interval_si
+                    else None
+                ),
+                "interval_cl": self.dipole_cl[0] if self.dipole_cl else None,
+                "limit_cl": self.dipole_cl[1] if self.dipole_cl else None,
+                "method": "unified intervals for <mu^2> >= 0 (Feldman-Cousins 1998)",
             },
             "dipole_budget": variance_budget(d if d is not None else self.mu2),
             "mean_square_dipole_C2m2": (

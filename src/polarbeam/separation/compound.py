@@ -18,7 +18,8 @@ from polarbeam.errors import CompoundError
 from polarbeam.extraction.context import Context
 from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
 from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResult
-from polarbeam.separation.debye import debye_fit, dipole_from_known_alpha, dipole_from_mu2
+from polarbeam.separation.debye import debye_fit, dipole_from_known_alpha
+from polarbeam.separation.dipole import dipole_statement
 
 __all__ = [
     "make_result",
@@ -146,8 +147,10 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
             "single source temperature: α and μ cannot be separated (α_eff is in series.csv); "
             "measure at more temperatures or give alpha_known_A3"
         )
+    statement = None
     if mu2 is not None:
-        dipole, upper = dipole_from_mu2(mu2, st.dipole_significance, st.upper_limit_cl)
+        statement = dipole_statement(mu2, limit_cl=st.upper_limit_cl)
+        dipole, upper = statement.value, statement.limit
         if upper is not None:
             messages.append(
                 f"no significant dipole: μ < {debye_from_si(upper):.2f} D "
@@ -180,6 +183,8 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         alpha=alpha,
         dipole=dipole,
         dipole_upper_si=upper,
+        dipole_interval_si=((statement.lower, statement.upper) if statement is not None else None),
+        dipole_cl=(statement.interval_cl, statement.limit_cl) if statement is not None else None,
         mu2=mu2,
         method=method,
         debye_chi2=chi2,

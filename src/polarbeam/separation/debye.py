@@ -9,9 +9,9 @@ estimate — a fixed linear combination of the α_eff — is propagated exactly 
 correlated covariance by :mod:`uncertainties`.  Temperature errors enter through x = 1/T both in
 the propagation and, as an effective variance (β·σ_x)², in the weights.
 
-A slope not significant at ``dipole_significance`` σ gives an upper limit on μ at confidence
-``cl`` from the Gaussian likelihood restricted to β ≥ 0 (a positivity-bounded Bayesian limit with
-flat prior, the usual treatment of a bounded physical parameter).
+What the slope says about μ (a value or an upper limit, with intervals that keep their coverage)
+is decided in :mod:`polarbeam.separation.dipole`. :func:`bounded_upper_limit` (flat prior on
+β ≥ 0) remains for the planner's predicted limits.
 """
 
 from __future__ import annotations
@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy import stats
-from uncertainties import UFloat, umath
+from uncertainties import UFloat
 
 from polarbeam.constants import ANGSTROM3_SI, BOLTZMANN
 
@@ -98,13 +98,3 @@ def bounded_upper_limit(estimate: float, sigma: float, cl: float = 0.95) -> floa
     lo = stats.norm.cdf(-estimate / sigma)  # prior mass cut away below zero
     target = lo + cl * (1.0 - lo)
     return float(estimate + sigma * stats.norm.ppf(target))
-
-
-def dipole_from_mu2(mu2: UFloat, significance: float, cl: float):
-    """(μ as an uncertain value or None, upper limit or None) from ⟨μ²⟩ in C²·m²."""
-    m, s = mu2.nominal_value, mu2.std_dev
-    if s > 0 and m / s < significance:
-        return None, math.sqrt(bounded_upper_limit(m, s, cl))
-    if m <= 0:
-        return None, math.sqrt(bounded_upper_limit(m, s, cl))
-    return umath.sqrt(mu2), None
