@@ -34,7 +34,7 @@ from typing import Any
 import numpy as np
 
 from polarbeam import chemistry as st
-from polarbeam._util.tables import Table, read_table
+from polarbeam._util.tables import CELL_BLANKS, Table, read_table
 from polarbeam.chemistry import read_sdf
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.numerical import (
@@ -162,6 +162,7 @@ class Campaign:
     reduction: Any = None  # fringes.ReducedPhases when the campaign starts from raw scans
     ignored_columns: tuple[str, ...] = ()  # shifts.csv columns the layout does not use
     recoil: Any = None  # polarbeam.extraction.recoil.RecoilData when [data] recoil is given
+    table_notes: tuple[str, ...] = ()  # comment lines skipped above the headers of the tables
 
     @property
     def observable(self) -> str:
@@ -457,9 +458,16 @@ def _structure_mass_u(name: str, row: dict, structures: dict, kind: str) -> floa
     return st.mass_monoisotopic_u(mol) if kind == "monoisotopic" else st.mass_average_u(mol)
 
 
-def _load_compounds(path: Path, structures: dict | None = None, mass_kind: str = "average"):
+def _load_compounds(
+    path: Path,
+    structures: dict | None = None,
+    mass_kind: str = "average",
+    table_notes: list[str] | None = None,
+):
     structures = structures or {}
     table = read_table(path, ("compound",), "compounds")
+    if table.note and table_notes is not None:
+        table_notes.append(table.note)
     if "mass_u" not in table.columns and "smiles" not in table.columns and not structures:
         raise InputError(
             f"{table.name}: missing column(s) mass_u; expected compound, mass_u (or a smiles "
@@ -467,7 +475,7 @@ def _load_compounds(path: Path, structures: dict | None = None, mass_kind: str =
         )
     info: dict[str, dict] = {}
     for i, row in enumerate(table.rows):
-        name = row.get("compound", "").strip()
+        name = row.get("compound", "").strip(CELL_BLANKS)
         entry: dict[str, Any] = {"extra": {k: v for k, v in row.items() if k != "__bad__"}}
         try:
             if "__bad__" in row:
@@ -505,12 +513,14 @@ def _load_compounds(path: Path, structures: dict | None = None, mass_kind: str =
     return info
 
 
-def _load_shifts(path: Path, layout: str):
+def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
     obs, obs_err = OBSERVABLE_COLUMNS[layout]
     required = (*SHIFT_COLUMNS_COMMON, obs, obs_err)
     if layout == "time-domain":
         required = tuple(c for c in required if not c.startswith("velocity"))
     table = read_table(path, required, "shifts")
+    if table.note and table_notes is not None:
+        table_notes.append(table.note)
     # the time-domain shift does not depend on velocity: its columns are not read at all
     ignored = (
         tuple(c for c in table.columns if c.startswith("velocity"))
@@ -520,7 +530,7 @@ def _load_shifts(path: Path, layout: str):
     groups: dict[str, dict[float, list]] = {}
     problems: dict[str, str] = {}
     for i, row in enumerate(table.rows):
-        name = row.get("compound", "").strip()
+        name = row.get("compound", "").strip(CELL_BLANKS)
         if name in problems:
             continue
         try:
@@ -658,6 +668,7 @@ def load_campaign(path: str | Path) -> Campaign:
     reduction = None
     notes: dict[str, list[str]] = {}
     ignored: tuple[str, ...] = ()
+    table_notes: list[str] = []
     if "scans" in data:
         if "shifts" in data:
             raise InputError(f"{fname} [data]: expected either 'shifts' or 'scans', found both")
@@ -667,14 +678,14 @@ def load_campaign(path: str | Path) -> Campaign:
                 "(talbot-lau or time-domain), found 'beam-profile'"
             )
         shifts_path = data_path(base, doc, "scans", fname)
-        info = _load_compounds(compounds_path, structures, settings.mass)
+        info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
         reduction = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
         series, problems, notes = series_from_reduction(reduction)
     else:
         shifts_path = data_path(base, doc, "shifts", fname, required=not has_recoil)
-        info = _load_compounds(compounds_path, structures, settings.mass)
+        info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
         if shifts_path is not None:
-            series, problems, ignored = _load_shifts(shifts_path, layout)
+            series, problems, ignored = _load_shifts(shifts_path, layout, table_notes)
         else:
             series, problems = {}, {}
 
@@ -754,6 +765,7 @@ def load_campaign(path: str | Path) -> Campaign:
         reduction=reduction,
         ignored_columns=ignored,
         recoil=recoil,
+        table_notes=tuple(table_notes),
     )
 
 
