@@ -62,7 +62,8 @@ from polarbeam.instrument.deflectors import (
 )
 from polarbeam.instrument.layouts import LAYOUTS, BeamProfile, TalbotLau, TimeDomain
 from polarbeam.quantities import Measured, parse_quantity
-from polarbeam.reduction import reduce_file
+from polarbeam.reduction import read_table as read_scans_table
+from polarbeam.reduction import reduce_file, reduce_table, row_problems
 
 __all__ = [
     "Campaign",
@@ -679,8 +680,9 @@ def load_campaign(path: str | Path) -> Campaign:
             )
         shifts_path = data_path(base, doc, "scans", fname)
         info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
-        reduction = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
+        reduction, bad = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
         series, problems, notes = series_from_reduction(reduction)
+        problems.update(bad)
     else:
         shifts_path = data_path(base, doc, "shifts", fname, required=not has_recoil)
         info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
@@ -770,11 +772,30 @@ def load_campaign(path: str | Path) -> Campaign:
 
 
 def reduce_scans_file(path: Path, period_m: float):
-    """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases."""
+    """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases.
+
+    Returns ``(reduction, problems)``: a bad cell fails only its compound (``problems`` maps
+    the compound to the message of its first bad cell), the others are reduced without it.
+    """
     try:
-        return reduce_file(path, period_m)
-    except RowValueError as exc:  # a bad cell in a raw-scan file is reported as structural
+        return reduce_file(path, period_m), {}
+    except RowValueError as exc:
+        first_error = exc
+    df = read_scans_table(path)
+    bad_rows = row_problems(df, path.name)
+    names = df["compound"].astype(str).str.strip(CELL_BLANKS).to_numpy()
+    problems: dict[str, str] = {}
+    for i, msg in sorted(bad_rows.items()):
+        if names[i] and names[i] != "nan":
+            problems.setdefault(names[i], msg)
+    keep = ~np.isin(names, list(problems))
+    if not problems or not keep.any():  # no compound to blame, or none left: structural
+        raise InputError(str(first_error)) from None
+    try:
+        reduction = reduce_table(df[keep].reset_index(drop=True), period_m, source=path.name)
+    except RowValueError as exc:
         raise InputError(str(exc)) from None
+    return reduction, problems
 
 
 def series_from_reduction(reduction):
