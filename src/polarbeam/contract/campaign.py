@@ -331,6 +331,11 @@ def stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, M
         if k not in defl:
             why = f"layout {layout!r}" if k in req_s else f"model {model!r}"
             raise InputError(f"{fname} [deflector] {k}: required for {why}")
+    if not timing and model in ("uniform", "two-wire") and "length" not in defl:
+        raise InputError(
+            f"{fname} [deflector] length: required for model {model!r} (the electrode length "
+            'along the beam, e.g. "0.1 ± 0.0005 m"), found none'
+        )
     if model == "field-map" and timing:
         raise InputError(f"{fname} [deflector] model: 'field-map' is not used by layout {layout!r}")
     if timing and "field_duration" not in defl and "waveform" not in defl:
