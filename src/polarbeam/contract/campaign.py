@@ -35,7 +35,7 @@ import numpy as np
 
 from polarbeam import chemistry as st
 from polarbeam._util.tables import CELL_BLANKS, Table, read_table
-from polarbeam.chemistry import read_sdf
+from polarbeam.chemistry import read_computed, read_sdf
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.numerical import (
     NUMERICAL_KEYS,
@@ -525,6 +525,8 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
     if layout == "time-domain":
         required = tuple(c for c in required if not c.startswith("velocity"))
     table = read_table(path, required, "shifts")
+    if not table.rows:
+        raise InputError(f"{table.name}: expected data rows below the header, found none")
     if table.note and table_notes is not None:
         table_notes.append(table.note)
     # the time-domain shift does not depend on velocity: its columns are not read at all
@@ -747,6 +749,8 @@ def load_campaign(path: str | Path) -> Campaign:
     computed = data_path(base, doc, "computed", fname, required=False)
     if computed is not None and not computed.is_file():
         raise InputError(f"{computed}: computed-values file not found ([data] computed)")
+    if computed is not None:  # an unreadable file is found now, before the analysis starts
+        read_computed(computed, failures=[])
     patterns = doc.get("data", {}).get("computed_outputs", [])
     if isinstance(patterns, str):
         patterns = [patterns]
