@@ -8,7 +8,7 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from polarbeam._util.tables import read_table
+from polarbeam._util.tables import CELL_BLANKS, read_table
 from polarbeam._version import __version__
 from polarbeam.batch.records import RECORD_FORMAT
 from polarbeam.errors import InputError
@@ -110,7 +110,7 @@ def _rows_by_compound(path: Path, what: str) -> dict[str, list]:
     table = read_table(path, ("compound",), what)
     out: dict[str, list] = {}
     for line, row in zip(table.lines, table.rows, strict=True):
-        out.setdefault(row.get("compound", "").strip(), []).append((line, row))
+        out.setdefault(row.get("compound", "").strip(CELL_BLANKS), []).append((line, row))
     return out
 
 

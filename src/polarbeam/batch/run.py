@@ -307,6 +307,8 @@ def run_cli(
     """
     if dashboard and scheduler != "local":
         raise InputError("--dashboard: only with --scheduler local")
+    if Path(out).exists() and not Path(out).is_dir():
+        raise InputError(f"{out}: --out expected a folder, found a file")
     bar = None if quiet else TerminalProgress()
 
     def on_runner(runner):

@@ -58,7 +58,7 @@ import uncertainties
 from scipy import stats
 from uncertainties import UFloat, covariance_matrix, ufloat, umath
 
-from polarbeam._util.tables import Table, read_table
+from polarbeam._util.tables import CELL_BLANKS, Table, read_table
 from polarbeam._util.text import input_label
 from polarbeam.constants import (
     BOLTZMANN,
@@ -191,7 +191,7 @@ def reference_values(c) -> tuple[dict[str, ReferenceValue], dict[str, str]]:
     problems: dict[str, str] = {}
     measured = {cd.name for cd in c.compounds}
     for i, row in enumerate(table.rows):
-        name = row.get("compound", "").strip()
+        name = row.get("compound", "").strip(CELL_BLANKS)
         if name not in measured or "__bad__" in row:
             continue
         line = f"{table.name} line {table.lines[i]}"

@@ -27,6 +27,7 @@ import numpy as np
 import pandas as pd
 
 from polarbeam._util.optional import require
+from polarbeam._util.tables import CELL_BLANKS, csv_records, text_problem
 from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
 from polarbeam.errors import InputError, RowValueError
 
@@ -136,7 +137,7 @@ def _number(text: str, where: str, column: str, *, allow_blank: bool) -> float:
 
 
 def _parse_row(cells: dict[str, str], where: str) -> dict:
-    compound = cells["compound"].strip()
+    compound = cells["compound"].strip(CELL_BLANKS)
     method = cells["method"].strip()
     if not compound:
         raise RowValueError(f"{where}, column compound: expected a name, found an empty cell")
@@ -229,47 +230,48 @@ def read_computed(path, failures: list[str] | None = None) -> pd.DataFrame:
     except OSError as exc:
         raise InputError(f"{path}: cannot read computed-values file ({exc.strerror})") from None
     with handle:
-        reader = csv.reader(handle)
-        header: list[str] | None = None
-        for record in reader:
-            line = reader.line_num
-            if not record or all(not c.strip() for c in record) or record[0].lstrip()[:1] == "#":
-                continue
-            if header is None:
-                header = [c.strip() for c in record]
-                missing = [c for c in _REQUIRED if c not in header]
-                if missing:
-                    raise InputError(
-                        f"{path}: line {line}: expected columns {', '.join(_REQUIRED)}, "
-                        f"missing {', '.join(missing)} (found {', '.join(header)})"
-                    )
-                continue
-            where = f"{path}: line {line}"
-            try:
-                if len(record) != len(header):
-                    raise RowValueError(
-                        f"{where}: expected {len(header)} fields as in the header, "
-                        f"found {len(record)}"
-                    )
-                cells = dict(zip(header, record, strict=True))
-                name = cells["compound"].strip()
-                if name:
-                    where = f"{where} (compound {name!r})"
-                row = _parse_row(cells, where)
-                key = (row["compound"], row["method"])
-                if key in seen:
-                    raise RowValueError(
-                        f"{where}, column method: expected one row per compound and method, "
-                        f"found {row['method']!r} again (first on line {seen[key]})"
-                    )
-            except RowValueError as exc:
-                if failures is None:
-                    raise
-                failures.append(str(exc))
-                continue
-            seen[key] = line
-            row["source"] = f"{path.name}:{line}"
-            rows.append(row)
+        try:
+            records = list(csv_records(handle, []))
+        except UnicodeDecodeError as exc:
+            raise InputError(text_problem(path, "computed-values", exc)) from None
+        except csv.Error as exc:
+            raise InputError(f"{path}: not a valid CSV file ({exc})") from None
+    header: list[str] | None = None
+    for line, record in records:
+        if header is None:
+            header = [c.strip() for c in record]
+            missing = [c for c in _REQUIRED if c not in header]
+            if missing:
+                raise InputError(
+                    f"{path}: line {line}: expected columns {', '.join(_REQUIRED)}, "
+                    f"missing {', '.join(missing)} (found {', '.join(header)})"
+                )
+            continue
+        where = f"{path}: line {line}"
+        try:
+            if len(record) != len(header):
+                raise RowValueError(
+                    f"{where}: expected {len(header)} fields as in the header, found {len(record)}"
+                )
+            cells = dict(zip(header, record, strict=True))
+            name = cells["compound"].strip(CELL_BLANKS)
+            if name:
+                where = f"{where} (compound {name!r})"
+            row = _parse_row(cells, where)
+            key = (row["compound"], row["method"])
+            if key in seen:
+                raise RowValueError(
+                    f"{where}, column method: expected one row per compound and method, "
+                    f"found {row['method']!r} again (first on line {seen[key]})"
+                )
+        except RowValueError as exc:
+            if failures is None:
+                raise
+            failures.append(str(exc))
+            continue
+        seen[key] = line
+        row["source"] = f"{path.name}:{line}"
+        rows.append(row)
     if header is None:
         raise InputError(f"{path}: expected a header row with {', '.join(_REQUIRED)}, found none")
     return pd.DataFrame(rows, columns=COMPUTED_COLUMNS)

@@ -17,6 +17,7 @@ from pathlib import Path
 from rdkit import Chem, rdBase
 
 from polarbeam._util.atomic import atomic_path
+from polarbeam._util.tables import CELL_BLANKS, csv_records, text_problem
 from polarbeam.chemistry.additive import DEFAULT_SCHEME, SCHEMES, fast_estimates
 from polarbeam.chemistry.conformers import (
     DEFAULT_CHARGE_MODEL,
@@ -59,22 +60,25 @@ def _fmt(x: float) -> str:
 def _read_csv_records(path: Path) -> tuple[list[str], list[StructureRecord]]:
     try:
         with path.open(newline="", encoding="utf-8") as fh:
-            lines = [ln for ln in fh if not ln.startswith("#")]
+            records = list(csv_records(fh, []))
     except OSError as exc:
         raise InputError(f"{path}: cannot read the file ({exc.strerror})") from exc
-    reader = csv.DictReader(lines)
-    header = [h.strip() for h in (reader.fieldnames or [])]
+    except UnicodeDecodeError as exc:
+        raise InputError(text_problem(path, "structures", exc)) from exc
+    except csv.Error as exc:
+        raise InputError(f"{path}: not a valid CSV file ({exc})") from exc
+    header = [h.strip() for h in (records[0][1] if records else [])]
     missing = [c for c in ("compound", "smiles") if c not in header]
     if missing:
         raise InputError(
             f"{path}: expected columns 'compound' and 'smiles', missing {missing}; found {header}"
         )
-    reader.fieldnames = header
+    rows = [(n, dict(zip(header, cells, strict=False))) for n, cells in records[1:]]
     extra_cols = [h for h in header if h not in ("compound", "smiles")]
     recs = []
     with rdBase.BlockLogs():
-        for lineno, row in enumerate(reader, start=2):
-            name = (row.get("compound") or "").strip() or f"row {lineno}"
+        for lineno, row in rows:
+            name = (row.get("compound") or "").strip(CELL_BLANKS) or f"row {lineno}"
             smi = (row.get("smiles") or "").strip()
             extra = tuple((c, row.get(c) or "") for c in extra_cols)
             mol = Chem.MolFromSmiles(smi) if smi else None

@@ -80,8 +80,17 @@ def read_sdf(path: str | os.PathLike) -> list[StructureRecord]:
     p = Path(path)
     if not p.is_file():
         raise InputError(f"{p}: SDF file not found")
+    try:
+        empty = not p.read_bytes().strip()
+    except OSError as exc:
+        raise InputError(f"{p}: cannot read SDF file ({exc.strerror})") from None
+    if empty:
+        raise InputError(f"{p}: expected SDF structure records, found an empty file")
     with rdBase.BlockLogs():
-        supplier = Chem.SDMolSupplier(str(p), sanitize=True, removeHs=False)
+        try:
+            supplier = Chem.SDMolSupplier(str(p), sanitize=True, removeHs=False)
+        except OSError as exc:
+            raise InputError(f"{p}: cannot read SDF file ({exc})") from None
         out: list[StructureRecord] = []
         for i in range(len(supplier)):
             mol = supplier[i]

@@ -34,8 +34,8 @@ from typing import Any
 import numpy as np
 
 from polarbeam import chemistry as st
-from polarbeam._util.tables import Table, read_table
-from polarbeam.chemistry import read_sdf
+from polarbeam._util.tables import CELL_BLANKS, Table, read_table
+from polarbeam.chemistry import read_computed, read_sdf
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.numerical import (
     NUMERICAL_KEYS,
@@ -62,7 +62,8 @@ from polarbeam.instrument.deflectors import (
 )
 from polarbeam.instrument.layouts import LAYOUTS, BeamProfile, TalbotLau, TimeDomain
 from polarbeam.quantities import Measured, parse_quantity
-from polarbeam.reduction import reduce_file
+from polarbeam.reduction import read_table as read_scans_table
+from polarbeam.reduction import reduce_file, reduce_table, row_problems
 
 __all__ = [
     "Campaign",
@@ -162,6 +163,7 @@ class Campaign:
     reduction: Any = None  # fringes.ReducedPhases when the campaign starts from raw scans
     ignored_columns: tuple[str, ...] = ()  # shifts.csv columns the layout does not use
     recoil: Any = None  # polarbeam.extraction.recoil.RecoilData when [data] recoil is given
+    table_notes: tuple[str, ...] = ()  # comment lines skipped above the headers of the tables
 
     @property
     def observable(self) -> str:
@@ -329,6 +331,11 @@ def stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, M
         if k not in defl:
             why = f"layout {layout!r}" if k in req_s else f"model {model!r}"
             raise InputError(f"{fname} [deflector] {k}: required for {why}")
+    if not timing and model in ("uniform", "two-wire") and "length" not in defl:
+        raise InputError(
+            f"{fname} [deflector] length: required for model {model!r} (the electrode length "
+            'along the beam, e.g. "0.1 ± 0.0005 m"), found none'
+        )
     if model == "field-map" and timing:
         raise InputError(f"{fname} [deflector] model: 'field-map' is not used by layout {layout!r}")
     if timing and "field_duration" not in defl and "waveform" not in defl:
@@ -457,9 +464,16 @@ def _structure_mass_u(name: str, row: dict, structures: dict, kind: str) -> floa
     return st.mass_monoisotopic_u(mol) if kind == "monoisotopic" else st.mass_average_u(mol)
 
 
-def _load_compounds(path: Path, structures: dict | None = None, mass_kind: str = "average"):
+def _load_compounds(
+    path: Path,
+    structures: dict | None = None,
+    mass_kind: str = "average",
+    table_notes: list[str] | None = None,
+):
     structures = structures or {}
     table = read_table(path, ("compound",), "compounds")
+    if table.note and table_notes is not None:
+        table_notes.append(table.note)
     if "mass_u" not in table.columns and "smiles" not in table.columns and not structures:
         raise InputError(
             f"{table.name}: missing column(s) mass_u; expected compound, mass_u (or a smiles "
@@ -467,7 +481,7 @@ def _load_compounds(path: Path, structures: dict | None = None, mass_kind: str =
         )
     info: dict[str, dict] = {}
     for i, row in enumerate(table.rows):
-        name = row.get("compound", "").strip()
+        name = row.get("compound", "").strip(CELL_BLANKS)
         entry: dict[str, Any] = {"extra": {k: v for k, v in row.items() if k != "__bad__"}}
         try:
             if "__bad__" in row:
@@ -505,12 +519,16 @@ def _load_compounds(path: Path, structures: dict | None = None, mass_kind: str =
     return info
 
 
-def _load_shifts(path: Path, layout: str):
+def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
     obs, obs_err = OBSERVABLE_COLUMNS[layout]
     required = (*SHIFT_COLUMNS_COMMON, obs, obs_err)
     if layout == "time-domain":
         required = tuple(c for c in required if not c.startswith("velocity"))
     table = read_table(path, required, "shifts")
+    if not table.rows:
+        raise InputError(f"{table.name}: expected data rows below the header, found none")
+    if table.note and table_notes is not None:
+        table_notes.append(table.note)
     # the time-domain shift does not depend on velocity: its columns are not read at all
     ignored = (
         tuple(c for c in table.columns if c.startswith("velocity"))
@@ -520,7 +538,7 @@ def _load_shifts(path: Path, layout: str):
     groups: dict[str, dict[float, list]] = {}
     problems: dict[str, str] = {}
     for i, row in enumerate(table.rows):
-        name = row.get("compound", "").strip()
+        name = row.get("compound", "").strip(CELL_BLANKS)
         if name in problems:
             continue
         try:
@@ -658,6 +676,7 @@ def load_campaign(path: str | Path) -> Campaign:
     reduction = None
     notes: dict[str, list[str]] = {}
     ignored: tuple[str, ...] = ()
+    table_notes: list[str] = []
     if "scans" in data:
         if "shifts" in data:
             raise InputError(f"{fname} [data]: expected either 'shifts' or 'scans', found both")
@@ -667,14 +686,15 @@ def load_campaign(path: str | Path) -> Campaign:
                 "(talbot-lau or time-domain), found 'beam-profile'"
             )
         shifts_path = data_path(base, doc, "scans", fname)
-        info = _load_compounds(compounds_path, structures, settings.mass)
-        reduction = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
+        info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
+        reduction, bad = reduce_scans_file(shifts_path, stated["instrument.grating_period"].value)
         series, problems, notes = series_from_reduction(reduction)
+        problems.update(bad)
     else:
         shifts_path = data_path(base, doc, "shifts", fname, required=not has_recoil)
-        info = _load_compounds(compounds_path, structures, settings.mass)
+        info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
         if shifts_path is not None:
-            series, problems, ignored = _load_shifts(shifts_path, layout)
+            series, problems, ignored = _load_shifts(shifts_path, layout, table_notes)
         else:
             series, problems = {}, {}
 
@@ -729,6 +749,8 @@ def load_campaign(path: str | Path) -> Campaign:
     computed = data_path(base, doc, "computed", fname, required=False)
     if computed is not None and not computed.is_file():
         raise InputError(f"{computed}: computed-values file not found ([data] computed)")
+    if computed is not None:  # an unreadable file is found now, before the analysis starts
+        read_computed(computed, failures=[])
     patterns = doc.get("data", {}).get("computed_outputs", [])
     if isinstance(patterns, str):
         patterns = [patterns]
@@ -754,15 +776,35 @@ def load_campaign(path: str | Path) -> Campaign:
         reduction=reduction,
         ignored_columns=ignored,
         recoil=recoil,
+        table_notes=tuple(table_notes),
     )
 
 
 def reduce_scans_file(path: Path, period_m: float):
-    """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases."""
+    """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases.
+
+    Returns ``(reduction, problems)``: a bad cell fails only its compound (``problems`` maps
+    the compound to the message of its first bad cell), the others are reduced without it.
+    """
     try:
-        return reduce_file(path, period_m)
-    except RowValueError as exc:  # a bad cell in a raw-scan file is reported as structural
+        return reduce_file(path, period_m), {}
+    except RowValueError as exc:
+        first_error = exc
+    df = read_scans_table(path)
+    bad_rows = row_problems(df, path.name)
+    names = df["compound"].astype(str).str.strip(CELL_BLANKS).to_numpy()
+    problems: dict[str, str] = {}
+    for i, msg in sorted(bad_rows.items()):
+        if names[i] and names[i] != "nan":
+            problems.setdefault(names[i], msg)
+    keep = ~np.isin(names, list(problems))
+    if not problems or not keep.any():  # no compound to blame, or none left: structural
+        raise InputError(str(first_error)) from None
+    try:
+        reduction = reduce_table(df[keep].reset_index(drop=True), period_m, source=path.name)
+    except RowValueError as exc:
         raise InputError(str(exc)) from None
+    return reduction, problems
 
 
 def series_from_reduction(reduction):

@@ -7,7 +7,7 @@ from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any, Literal
 
-from polarbeam._util.tables import read_table
+from polarbeam._util.tables import CELL_BLANKS, read_table
 from polarbeam.constants import AMU
 from polarbeam.contract import campaign as cm
 from polarbeam.errors import CompoundError, InputError
@@ -441,7 +441,7 @@ def _read_plan_compounds(path: Path) -> list[PlanCompound]:
     out: list[PlanCompound] = []
     seen: set[str] = set()
     for i, row in enumerate(table.rows):
-        name = row.get("compound", "").strip()
+        name = row.get("compound", "").strip(CELL_BLANKS)
         line = table.lines[i]
         try:
             if "__bad__" in row:

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
-from polarbeam._util.tables import read_table
+from polarbeam._util.tables import CELL_BLANKS, read_table
 from polarbeam.beam.photon_recoil import (
     gaussian_effective_area,
 )
@@ -329,7 +329,7 @@ def load_recoil(
     groups: dict[str, dict[tuple[str, float], list]] = {}
     problems: dict[str, str] = {}
     for i, row in enumerate(table.rows):
-        name = (row.get("compound") or "").strip()
+        name = (row.get("compound") or "").strip(CELL_BLANKS)
         laser = (row.get("laser") or "").strip()
         if "__bad__" not in row and laser not in names:
             raise InputError(

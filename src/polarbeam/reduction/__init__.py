@@ -24,6 +24,7 @@ from polarbeam.reduction.columns import (
     CARRIED_COLUMNS,
     INPUT_COLUMNS,
     OUTPUT_COLUMNS,
+    row_problems,
     validate_scans,
 )
 from polarbeam.reduction.drift import corrected_phase_covariance, interpolation_weights
@@ -81,6 +82,7 @@ __all__ = [
     "read_table",
     "reduce_file",
     "reduce_table",
+    "row_problems",
     "validate_scans",
     "write_phases",
 ]

@@ -28,6 +28,8 @@ __all__ = [
     "at_rows",
     "check_range",
     "checked_columns",
+    "is_empty_cell",
+    "row_problems",
     "validate_scans",
     "value_changes",
 ]
@@ -70,12 +72,72 @@ _NON_NEGATIVE = ("temperature_err_K", "velocity_err_m_s", "velocity_spread_m_s",
 
 
 def _row_error(source: str, i: int, col: str, expected: str, found) -> RowValueError:
+    if isinstance(found, np.generic):  # plain numbers in messages, not np.float64(-5.0)
+        found = found.item()
     shown = found if isinstance(found, str) and found == "empty cell" else repr(found)
     if len(shown) > 60:
         shown = shown[:57] + "..."
     return RowValueError(
         f"{source}: row {i + 1} (line {i + 2}), column {col!r}: expected {expected}, found {shown}"
     )
+
+
+def is_empty_cell(value) -> bool:
+    """True for a missing cell (None, pd.NA, NaT), False for a NaN that the file spelled out."""
+    if value is None or value is pd.NA or value is pd.NaT:
+        return True
+    return isinstance(value, str) and not value.strip()
+
+
+def row_problems(df: pd.DataFrame, source: str) -> dict[int, str]:
+    """The first bad cell of every data row that has one (row index → one-line message).
+
+    Used to fail only the compounds whose rows hold a bad cell: the compound column itself is
+    not checked here (a row without a name cannot be given to a compound).
+    """
+    first: dict[int, str] = {}
+    for col in NUMERIC_COLUMNS:
+        if col not in df.columns:
+            continue
+        raw = df[col]
+        if pd.api.types.is_bool_dtype(raw):
+            vals = np.full(len(raw), np.nan)
+        elif pd.api.types.is_numeric_dtype(raw):
+            vals = raw.to_numpy(dtype=float, na_value=np.nan)
+        else:
+            try:
+                num = pd.to_numeric(raw.astype(str).where(raw.notna()), errors="coerce")
+            except (TypeError, ValueError, UnicodeError):
+                num = pd.Series(np.nan, index=raw.index)
+            vals = num.to_numpy(dtype=float, na_value=np.nan)
+        with np.errstate(invalid="ignore"):
+            bad = ~np.isfinite(vals)
+            if col in _POSITIVE:
+                bad |= vals <= 0
+            elif col in _NON_NEGATIVE:
+                bad |= vals < 0
+            elif col == "scan":
+                bad |= vals != np.round(vals)
+        for i in np.flatnonzero(bad):
+            i = int(i)
+            if i in first:
+                continue
+            cell = raw.iloc[i]
+            if is_empty_cell(cell):
+                expected, found = "a number", "empty cell"
+            elif not np.isfinite(vals[i]):
+                text = cell if isinstance(cell, str) else repr(cell)
+                number = pd.to_numeric(pd.Series([text]), errors="coerce").iloc[0]
+                expected = "a finite number" if pd.notna(number) or text == "nan" else "a number"
+                found = cell
+            elif col in _POSITIVE:
+                expected, found = "a value > 0", vals[i]
+            elif col in _NON_NEGATIVE:
+                expected, found = "a value >= 0", vals[i]
+            else:
+                expected, found = "a whole-number scan id", vals[i]
+            first[i] = str(_row_error(source, i, col, expected, found))
+    return first
 
 
 def _first_non_number(raw: pd.Series) -> int:
@@ -225,7 +287,7 @@ def checked_columns(
         # fast paths (one reduction each); the offending row is located only on failure
         if not all_finite(vals):
             i = int(np.flatnonzero(~np.isfinite(vals))[0])
-            found = "empty cell" if pd.isna(raw.iloc[i]) else vals[i]
+            found = "empty cell" if is_empty_cell(raw.iloc[i]) else vals[i]
             raise _row_error(source, i, col, "a finite number", found)
         check_range(source, col, vals)
         if col == "scan":

@@ -37,6 +37,8 @@ def _read_csv(path: Path) -> pd.DataFrame:
     # first; blocks are parsed on all cores.  Scan ids are read as integers, or as numbers when
     # written with a decimal point (validation then checks they are whole).
     read = pacsv.ReadOptions(block_size=1 << 22)
+    # RFC 4180: a quoted cell (a compound name) may hold line breaks
+    parse = pacsv.ParseOptions(newlines_in_values=True)
     table = None
     for scan_type in (pa.int64(), pa.float64()):
         types = {c: pa.float64() for c in NUMERIC_COLUMNS}
@@ -44,7 +46,9 @@ def _read_csv(path: Path) -> pd.DataFrame:
         types["compound"] = pa.dictionary(pa.int32(), pa.string())
         opts = pacsv.ConvertOptions(column_types=types, strings_can_be_null=False)
         try:
-            table = pacsv.read_csv(path, read_options=read, convert_options=opts)
+            table = pacsv.read_csv(
+                path, read_options=read, parse_options=parse, convert_options=opts
+            )
             break
         except pa.ArrowInvalid as exc:
             if "conversion error" not in str(exc).lower():
@@ -53,7 +57,7 @@ def _read_csv(path: Path) -> pd.DataFrame:
         # A cell that is not a number: read everything as text so that validation can name
         # its row and column.
         text = pacsv.ConvertOptions(column_types=dict.fromkeys(INPUT_COLUMNS, pa.string()))
-        table = pacsv.read_csv(path, convert_options=text)
+        table = pacsv.read_csv(path, parse_options=parse, convert_options=text)
         return table.to_pandas(split_blocks=True, self_destruct=True)
     try:
         return _arrow_to_frame(table)
@@ -68,7 +72,10 @@ def _arrow_to_frame(table) -> pd.DataFrame:
     cols = {}
     for name in table.column_names:
         col = table.column(name)
-        if name in PER_SCAN_COLUMNS and col.type == pa.float64() and col.null_count == 0:
+        if col.type == pa.float64() and col.null_count > 0:
+            # kept as Arrow (an empty cell stays missing, told apart from a written "nan")
+            cols[name] = pd.arrays.ArrowExtensionArray(col)
+        elif name in PER_SCAN_COLUMNS and col.type == pa.float64() and col.null_count == 0:
             # kept as Arrow chunks (zero copy): checked per scan, never concatenated
             cols[name] = pd.arrays.ArrowExtensionArray(col)
         elif name == "compound":

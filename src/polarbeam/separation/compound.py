@@ -198,7 +198,7 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         k: {"value": m.value, "error": m.error, "dlnC_dp": ctx.sensitivities.get(k)}
         for k, m in c.stated.items()
     }
-    notes = []
+    notes = list(c.table_notes)
     if c.layout == "time-domain":
         notes.append(
             "time-domain layout: the fringe shift does not depend on velocity; "

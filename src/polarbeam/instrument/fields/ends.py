@@ -18,6 +18,7 @@ from typing import Literal
 import numpy as np
 from scipy.integrate import trapezoid as _trapezoid  # np.trapezoid needs numpy >= 2
 
+from polarbeam._util.tables import csv_records, text_problem
 from polarbeam.errors import InputError
 from polarbeam.instrument.fields.checks import finite, fmt_mm
 from polarbeam.instrument.fields.geometry import CrossSection
@@ -289,10 +290,16 @@ def read_fringe_map_csv(path: str | Path) -> tuple[np.ndarray, np.ndarray]:
     """
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        with p.open(encoding="utf-8", newline="") as handle:
+            records = list(csv_records(handle, []))
     except OSError as exc:
         raise InputError(f"{p}: cannot read fringe map ({exc.strerror})") from None
-    rows = list(csv.reader(line for line in text.splitlines() if not line.startswith("#")))
+    except UnicodeDecodeError as exc:
+        raise InputError(text_problem(p, "fringe map", exc)) from None
+    except csv.Error as exc:
+        raise InputError(f"{p}: not a valid CSV file ({exc})") from None
+    rows = [cells for _, cells in records]
+    numbers = [n for n, _ in records]
     if not rows:
         raise InputError(f"{p}: empty fringe map, expected header 'z_m,g_rel'")
     header = [c.strip() for c in rows[0]]
@@ -302,8 +309,8 @@ def read_fringe_map_csv(path: str | Path) -> tuple[np.ndarray, np.ndarray]:
     scale = 1.0 if zcol == "z_m" else 1e-3
     iz, ig = header.index(zcol), header.index("g_rel")
     z, g = [], []
-    for n, row in enumerate(rows[1:], start=2):
-        if not row or all(not c.strip() for c in row):
+    for n, row in zip(numbers[1:], rows[1:], strict=True):
+        if all(not c.strip() for c in row):
             continue
         try:
             zv, gv = float(row[iz]), float(row[ig])
