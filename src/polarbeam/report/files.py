@@ -163,6 +163,12 @@ def render_markdown(result: CampaignResult) -> str:
             lines += [f"**μ = {value_error_text(r['dipole_D'], r['dipole_err_D'])} D**"]
         elif c.dipole_upper_si is not None:
             lines += [f"**μ < {r['dipole_upper_D']:.2f} D** (no significant dipole)"]
+        if c.dipole_interval_si is not None and c.dipole_cl is not None:
+            lines += [
+                "",
+                f"{c.dipole_cl[0]:.1%} interval for μ: [{r['dipole_lo_D']:.3g}, "
+                f"{r['dipole_hi_D']:.3g}] D (unified intervals, Feldman–Cousins)",
+            ]
         target = c.alpha if c.alpha is not None else (c.series[0].alpha_eff if c.series else None)
         what = "α" if c.alpha is not None else "α_eff (first series)"
         budget = variance_budget(target)
