@@ -73,6 +73,12 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         )
         a_eff, _ = alpha_eff_with_errors(fit, s.label, ctx.coupling_ratio, mass_ratio, vel_u)
         sw = []
+        if a_eff.std_dev > 0 and a_eff.nominal_value < -2.0 * a_eff.std_dev:
+            sw.append(
+                f"{s.label}: α_eff = {alpha_a3_from_si(a_eff.nominal_value):.4g} ± "
+                f"{alpha_a3_from_si(a_eff.std_dev):.2g} Å³ is negative beyond 2σ: check the sign "
+                "convention (x points the way the field magnitude grows) and the geometry"
+            )
         if fit.ndof > 0 and fit.p_value < 0.01:
             sw.append(
                 f"{s.label}: reduced χ² = {fit.reduced_chi2:.2f} (p = {fit.p_value:.1e}); "
@@ -134,7 +140,9 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         elif fit.p_value < 0.01:
             warnings.append(
                 f"Debye fit χ² = {fit.chi2:.1f} for {fit.ndof} dof (p = {fit.p_value:.1e}): "
-                "α_eff does not follow α + ⟨μ²⟩/3kT (conformers, clusters or drifting systematics?)"
+                "α_eff does not follow α + ⟨μ²⟩/3kT; likely causes: conformer populations "
+                "changing with temperature, a rotational temperature different from the source "
+                "temperature, a field too strong for the weak-field limit, or clusters"
             )
     elif cd.alpha_known is not None:
         r = results[0]
@@ -162,16 +170,16 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
             "check the temperature range and the systematics"
         )
     # orientation: the Langevin–Debye (high-T, weak-field) limit needs μE/kT ≪ 1
-    mu_for_check = dipole.nominal_value if dipole is not None else (upper or 0.0)
-    if ctx.field_per_volt and mu_for_check > 0:
+    orientation, note = orientation_ratio(ctx, c.model, results, dipole, upper, statement)
+    if note:
+        messages.append(note)
+    if orientation is not None and orientation > st.orientation_warning:
         vmax = max(float(np.max(np.abs(r.voltages))) for r in results)
         tmin = min(r.temperature_K for r in results)
-        ratio = mu_for_check * ctx.field_per_volt * vmax / (BOLTZMANN * tmin)
-        if ratio > st.orientation_warning:
-            warnings.append(
-                f"μE/kT = {ratio:.2f} at {vmax:g} V and {tmin:g} K: the weak-field "
-                "Langevin–Debye limit is not well satisfied"
-            )
+        warnings.append(
+            f"μE/kT = {orientation:.2f} at {vmax:g} V and {tmin:g} K: the weak-field "
+            "Langevin–Debye limit is not well satisfied"
+        )
     status = "warning" if warnings else "ok"
     message = "; ".join(messages + warnings) or "ok"
     return CompoundResult(
@@ -190,6 +198,7 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         debye_chi2=chi2,
         debye_ndof=ndof,
         warnings=tuple(warnings),
+        extra={"mu_E_over_kT": orientation},
     )
 
 
@@ -227,3 +236,27 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         unmeasured=c.unmeasured,
         notes=tuple(notes),
     )
+
+
+def orientation_ratio(ctx: Context, model: str, results, dipole, upper, statement):
+    """(μE/kT at the largest field and lowest temperature, or None; a note when it is skipped).
+
+    μ is the quoted value, else the upper limit, else the upper edge of the interval; E is
+    ``field_per_volt`` × the largest |V| (known for the two-wire and numerical models, or stated).
+    """
+    if dipole is not None:
+        mu = dipole.nominal_value
+    elif upper is not None:
+        mu = upper
+    elif statement is not None:
+        mu = statement.upper
+    else:
+        return None, None  # nothing known about μ (one temperature, no known α)
+    if not ctx.field_per_volt:
+        return None, (
+            f"μE/kT check skipped: the field magnitude is unknown for the '{model}' deflector "
+            "(state field_per_volt to enable it)"
+        )
+    vmax = max(float(np.max(np.abs(r.voltages))) for r in results)
+    tmin = min(r.temperature_K for r in results)
+    return mu * ctx.field_per_volt * vmax / (BOLTZMANN * tmin), None
