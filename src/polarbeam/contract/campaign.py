@@ -43,6 +43,7 @@ from polarbeam.contract.numerical import (
     numerical_error_inputs,
     numerical_stated_inputs,
 )
+from polarbeam.contract.plausibility import input_warnings
 from polarbeam.contract.recoil import load_recoil
 from polarbeam.contract.schema import (
     OBSERVABLE_COLUMNS,
@@ -162,6 +163,7 @@ class Campaign:
     reduction: Any = None  # fringes.ReducedPhases when the campaign starts from raw scans
     ignored_columns: tuple[str, ...] = ()  # shifts.csv columns the layout does not use
     recoil: Any = None  # polarbeam.extraction.recoil.RecoilData when [data] recoil is given
+    warnings: tuple[str, ...] = ()  # implausible inputs (likely unit slips), one line each
 
     @property
     def observable(self) -> str:
@@ -490,6 +492,7 @@ def _load_compounds(path: Path, structures: dict | None = None, mass_kind: str =
                 entry["mass_source"] = f"{mass_kind} mass of the structure"
             dm = table.number(i, "mass_err_u", nonnegative=True, default=0.0)
             entry["mass"] = Measured(m * AMU, dm * AMU)
+            entry["line"] = table.lines[i]
             entry["alpha_known"] = _optional_measured(
                 table, i, "alpha_known_A3", "alpha_known_err_A3", alpha_si_from_a3
             )
@@ -581,13 +584,15 @@ def _load_shifts(path: Path, layout: str):
     return series, problems, ignored
 
 
-def check_geometry(camp: Campaign) -> None:
-    """Build the nominal set-up once: bad geometry is structural (named with the file)."""
+def check_geometry(camp: Campaign):
+    """Build the nominal set-up once: bad geometry is structural (named with the file).
+
+    Returns the nominal deflector (None without one)."""
     try:
         if camp.model == "none":
             build_layout(camp.layout, camp.nominal())
-        else:
-            camp.build()
+            return None
+        return camp.build()[1]
     except QuantityError:
         raise
     except InputError as exc:
@@ -690,7 +695,7 @@ def load_campaign(path: str | Path) -> Campaign:
         waveform=waveform,
         raw=doc,
     )
-    check_geometry(camp)
+    deflector = check_geometry(camp)
     if model == "numerical":  # the solve's mesh-refinement error becomes a stated input
         stated = {**stated, **numerical_error_inputs(camp)}
     recoil = None
@@ -736,6 +741,17 @@ def load_campaign(path: str | Path) -> Campaign:
         raise InputError(
             f"{fname} [data] computed_outputs: expected a list of glob patterns, found {patterns!r}"
         )
+    warnings = input_warnings(
+        fname,
+        doc,
+        stated,
+        layout,
+        compounds_file=compounds_path.name,
+        masses=[(f"line {e['line']}", e["mass"].value / AMU) for e in info.values() if "line" in e],
+        shifts_file=shifts_path.name if shifts_path is not None else "",
+        rows=table_rows(compounds, layout, "scans" in data),
+        field_per_volt=getattr(deflector, "field_per_volt", None),
+    )
     return Campaign(
         path=path,
         title=title,
@@ -754,7 +770,18 @@ def load_campaign(path: str | Path) -> Campaign:
         reduction=reduction,
         ignored_columns=ignored,
         recoil=recoil,
+        warnings=warnings,
     )
+
+
+def table_rows(compounds, layout: str, scans: bool):
+    """(row label, voltage V, velocity m/s or None) of every measured point, for plausibility."""
+    word = "scan" if scans else "line"
+    for cd in compounds:
+        for s in cd.series:
+            for k, line in enumerate(s.lines):
+                v = None if layout == "time-domain" else float(s.velocities[k])
+                yield f"{word} {line}", float(s.voltages[k]), v
 
 
 def reduce_scans_file(path: Path, period_m: float):

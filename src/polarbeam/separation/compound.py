@@ -193,7 +193,7 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         k: {"value": m.value, "error": m.error, "dlnC_dp": ctx.sensitivities.get(k)}
         for k, m in c.stated.items()
     }
-    notes = []
+    notes = list(c.warnings)  # implausible inputs first: the likely unit slips
     if c.layout == "time-domain":
         notes.append(
             "time-domain layout: the fringe shift does not depend on velocity; "
@@ -221,4 +221,5 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         settings=asdict(c.settings),
         unmeasured=c.unmeasured,
         notes=tuple(notes),
+        input_warnings=c.warnings,
     )
