@@ -21,9 +21,17 @@ from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResu
 from polarbeam.separation.debye import debye_fit, dipole_from_known_alpha, dipole_from_mu2
 
 __all__ = [
+    "DIPOLE_PLAUSIBLE_MAX_D",
+    "PLAUSIBILITY_HINT",
     "make_result",
     "separate",
 ]
+
+#: Above this a dipole is implausible for a molecule in a beam (the largest molecular dipoles
+#: measured are ~10–15 D, e.g. zwitterions; from memory): a unit or geometry slip is likelier.
+DIPOLE_PLAUSIBLE_MAX_D = 20.0
+#: The words every result-plausibility warning carries.
+PLAUSIBILITY_HINT = "check units and geometry"
 
 
 def _failed(cd: CompoundData, message: str, mass_u=None) -> CompoundResult:
@@ -153,6 +161,18 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 f"no significant dipole: μ < {debye_from_si(upper):.2f} D "
                 f"({st.upper_limit_cl:.0%} CL)"
             )
+    for r in results:
+        if r.alpha_eff.nominal_value <= 0:
+            warnings.append(
+                f"{r.compound} @ {r.temperature_K:g} K: α_eff = "
+                f"{alpha_a3_from_si(r.alpha_eff.nominal_value):.4g} Å³ ≤ 0 (a polarizability "
+                f"pulls into the field): {PLAUSIBILITY_HINT}"
+            )
+    if dipole is not None and debye_from_si(dipole.nominal_value) > DIPOLE_PLAUSIBLE_MAX_D:
+        warnings.append(
+            f"μ = {debye_from_si(dipole.nominal_value):.4g} D is above "
+            f"{DIPOLE_PLAUSIBLE_MAX_D:g} D, implausible for a molecule: {PLAUSIBILITY_HINT}"
+        )
     if alpha is not None and alpha.nominal_value < 0:
         warnings.append(
             f"intercept α = {alpha_a3_from_si(alpha.nominal_value):.1f} Å³ is negative: "
