@@ -47,9 +47,12 @@ def _ureg():
     return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 
 
-_PM = re.compile(r"\s*(?:±|\+/-|\+-)\s*")
+# the ± separator alone (surrounding spaces are stripped from the parts): a pattern that also
+# matched the spaces (``\s*±\s*``) retried them at every position, quadratic in their number
+_PM = re.compile(r"±|\+/-|\+-")
 _UNIT_CHARS = re.compile(r"^[A-Za-zµμÅΩ°][A-Za-z0-9µμÅΩ°^*/ .()-]*$")
-_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+# the unit is the rest, stripped afterwards (a lazy ``(.*?)\s*$`` is quadratic in inner spaces)
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)(.*)$")
 
 
 def _split_number(text: str, where: str, original: str) -> tuple[float, str]:
@@ -108,7 +111,7 @@ def parse_quantity(text, expected: str = "", where: str = "value") -> Measured:
         )
     original = text
     s = text.strip()
-    parts = _PM.split(s)
+    parts = [p.strip() for p in _PM.split(s)]
     if len(parts) > 2:
         raise QuantityError(f"{where}: more than one ± in {original!r}")
     if len(parts) == 2:
@@ -123,6 +126,10 @@ def parse_quantity(text, expected: str = "", where: str = "value") -> Measured:
             left = left[1:]
         v, vu = _split_number(left, where, original)
         e, eu = _split_number(right, where, original)
+        if e < 0 or (e == 0 and right.lstrip().startswith("-")):
+            raise QuantityError(
+                f"{where}: expected a non-negative error after ±, found {original!r}"
+            )
         if outer_unit:
             if vu or eu:
                 raise QuantityError(f"{where}: units both inside and outside () in {original!r}")

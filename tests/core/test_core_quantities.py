@@ -76,3 +76,38 @@ def test_format_value_error():
     assert format_value_error(12.3456, 0.123) == "12.35 ± 0.12"
     assert format_value_error(1.0, 0.0) == "1"
     assert format_value_error(float("nan"), 1.0) == "—"
+
+
+@pytest.mark.parametrize(
+    "text", ["0.1 ± -0.0004 m", "0.1 +/- -0.4 mm", "(0.1 ± -0.0004) m", "0.1 m ± -0 m"]
+)
+def test_negative_stated_error_is_an_error_naming_key_and_text(text):
+    with pytest.raises(QuantityError) as info:
+        parse_quantity(text, "m", "campaign.toml [deflector] length")
+    msg = str(info.value)
+    assert "[deflector] length" in msg and repr(text) in msg and "non-negative error" in msg
+
+
+def test_positive_signed_error_still_parses():
+    m = parse_quantity("0.1 ± +0.0004 m", "m")
+    assert (m.value, m.error) == (0.1, 0.0004)
+
+
+@pytest.mark.parametrize(
+    "text",
+    [
+        "1" + " " * 100_000 + "x",  # spaces the ± pattern used to retry at every position
+        "1 m" + " " * 100_000 + "x ± 2",
+        " " * 100_000,
+    ],
+)
+def test_long_runs_of_spaces_are_rejected(text):
+    # the ± split and the unit split are single passes (no backtracking over the spaces):
+    # 10^5 spaces used to take minutes, they now give the ordinary one-line error
+    with pytest.raises(QuantityError, match=r"^k: "):
+        parse_quantity(text, "m", "k")
+
+
+def test_long_run_of_spaces_around_pm_parses():
+    m = parse_quantity("1" + " " * 100_000 + "± 2" + " " * 100_000 + "m", "m")
+    assert (m.value, m.error) == (1.0, 2.0)

@@ -345,6 +345,9 @@ def run_cli(
             echo(f"error: {run.name}: {run.error}", err=True)
             continue
         r = run.result
+        where = f"{run.name}: " if len(outcome.runs) > 1 else ""
+        for w in r.input_warnings:  # implausible inputs: likely unit slips
+            echo(f"warning: {where}{w}", err=True)
         if not quiet:
             if len(r.compounds) <= table_limit:
                 echo(render_terminal(r))

@@ -96,6 +96,8 @@ def reduce(
             )
     except PolarbeamError as exc:
         _fail(exc)
+    for w in camp.warnings:
+        typer.echo(f"warning: {w}", err=True)
     pb.write_phases(camp.reduction, out)
     t = camp.reduction.table
     kept = int(t["phase_rad"].notna().sum())

@@ -14,6 +14,8 @@ from dataclasses import replace
 from polarbeam import chemistry as cc
 from polarbeam._util.text import finite_or_none, join_message
 from polarbeam.comparison.structure_check import (
+    PLAUSIBLE_RATIO,
+    implausible_ratio,
     predict_for_compound,
     stated_mass_check,
     verdict,
@@ -23,6 +25,7 @@ from polarbeam.constants import alpha_a3_from_si
 from polarbeam.contract.campaign import Campaign, CompoundData
 from polarbeam.errors import CompoundError
 from polarbeam.results.objects import CampaignResult, CompoundResult
+from polarbeam.separation.compound import PLAUSIBILITY_HINT
 
 __all__ = [
     "computed_comparison",
@@ -92,7 +95,10 @@ def cross_check(result: CompoundResult, cd: CompoundData, c: Campaign) -> Compou
         da = alpha_a3_from_si(result.alpha.std_dev)
         alpha_z = z_score(a, da, pred.alpha_additive_A3, pred.alpha_additive_err_A3)
     has_dipole = bool(pred.dipole_rms_D and pred.dipole_rms_D > 0.3)
-    words = verdict(alpha_z, eff_z, has_dipole)
+    ratio, note = _implausible(result, series, pred.alpha_additive_A3)
+    if note:
+        warnings.append(note)
+    words = verdict(alpha_z, eff_z, has_dipole, ratio)
     extra = {
         **result.extra,
         **pred.columns(),
@@ -115,6 +121,30 @@ def cross_check(result: CompoundResult, cd: CompoundData, c: Campaign) -> Compou
         message=message,
         status=status,
     )
+
+
+def _implausible(result: CompoundResult, series, alpha_pred_A3: float):
+    """(ratio, warning) when α (or, without α, an α_eff) is far from the structure estimate."""
+    lo, hi = PLAUSIBLE_RATIO
+    if result.alpha is not None:
+        a, p = alpha_a3_from_si(result.alpha.nominal_value), alpha_pred_A3
+        r = implausible_ratio(a, p)
+        if r is not None:
+            return r, (
+                f"α = {a:.4g} Å³ is {r:.3g} × the structure estimate {p:.4g} Å³ (expected "
+                f"{lo:g}–{hi:g} ×): {PLAUSIBILITY_HINT}"
+            )
+        return None, None
+    for s in series:
+        p = s.extra["alpha_eff_pred_A3"]
+        r = implausible_ratio(s.alpha_eff_A3, p)
+        if r is not None:
+            return r, (
+                f"{s.compound} @ {s.temperature_K:g} K: α_eff = {s.alpha_eff_A3:.4g} Å³ is "
+                f"{r:.3g} × the structure estimate {p:.4g} Å³ (expected {lo:g}–{hi:g} ×): "
+                f"{PLAUSIBILITY_HINT}"
+            )
+    return None, None
 
 
 def computed_comparison(c: Campaign, result: CampaignResult) -> CampaignResult:

@@ -20,10 +20,14 @@ from typing import Any
 from polarbeam import chemistry as st
 from polarbeam.constants import AMU, alpha_a3_from_si, langevin_debye_si
 from polarbeam.errors import CompoundError
+from polarbeam.separation.compound import PLAUSIBILITY_HINT
 
 __all__ = [
     "DIPOLE_REL_ERROR",
+    "IMPLAUSIBLE_VERDICT",
+    "PLAUSIBLE_RATIO",
     "StructurePrediction",
+    "implausible_ratio",
     "predict_for_compound",
     "verdict",
 ]
@@ -31,6 +35,10 @@ __all__ = [
 #: 1σ relative error of a force-field (scaled MMFF) dipole; see module docstring.
 DIPOLE_REL_ERROR = 0.25
 Z_LIMIT = 2.0
+#: Measured over structure-estimated α outside this range is no chemistry (additive schemes are
+#: good to ~10–20 %, dipole terms rarely exceed a few times α): a unit or geometry slip.
+PLAUSIBLE_RATIO = (0.05, 20.0)
+IMPLAUSIBLE_VERDICT = f"implausible: {PLAUSIBILITY_HINT}"
 
 
 @dataclass(frozen=True)
@@ -114,13 +122,31 @@ def z_score(measured: float, err_m: float, predicted: float, err_p: float) -> fl
     return (measured - predicted) / den if den > 0 else math.nan
 
 
-def verdict(alpha_z: float | None, eff_z: list[float], dipole_predicted: bool) -> str:
+def implausible_ratio(measured: float | None, predicted: float | None) -> float | None:
+    """``measured / predicted`` when it lies outside :data:`PLAUSIBLE_RATIO` (or is ≤ 0)."""
+    if measured is None or not predicted or not (math.isfinite(measured) and predicted > 0):
+        return None
+    ratio = measured / predicted
+    lo, hi = PLAUSIBLE_RATIO
+    return None if lo <= ratio <= hi else ratio
+
+
+def verdict(
+    alpha_z: float | None,
+    eff_z: list[float],
+    dipole_predicted: bool,
+    ratio: float | None = None,
+) -> str:
     """The cross-check in words.
 
     ``alpha_z`` compares the measured α with α_additive; ``eff_z`` compares each measured α_eff
     with α_additive + predicted ⟨μ²⟩/3kT.  The series of one compound share their systematics,
-    so their z-scores are averaged rather than tested one by one.
+    so their z-scores are averaged rather than tested one by one.  ``ratio`` is the measured
+    over the predicted value: outside :data:`PLAUSIBLE_RATIO` no z-score is explained by
+    chemistry (a 10⁶ excess is not a dipole contribution).
     """
+    if ratio is not None and not PLAUSIBLE_RATIO[0] <= ratio <= PLAUSIBLE_RATIO[1]:
+        return IMPLAUSIBLE_VERDICT
     zs = [z for z in eff_z if math.isfinite(z)]
     mean_eff = sum(zs) / len(zs) if zs else math.nan
     za = alpha_z if alpha_z is not None and math.isfinite(alpha_z) else math.nan

@@ -43,6 +43,7 @@ from polarbeam.contract.numerical import (
     numerical_error_inputs,
     numerical_stated_inputs,
 )
+from polarbeam.contract.plausibility import input_warnings
 from polarbeam.contract.recoil import load_recoil
 from polarbeam.contract.schema import (
     OBSERVABLE_COLUMNS,
@@ -164,6 +165,7 @@ class Campaign:
     ignored_columns: tuple[str, ...] = ()  # shifts.csv columns the layout does not use
     recoil: Any = None  # polarbeam.extraction.recoil.RecoilData when [data] recoil is given
     table_notes: tuple[str, ...] = ()  # comment lines skipped above the headers of the tables
+    warnings: tuple[str, ...] = ()  # implausible inputs (likely unit slips), one line each
 
     @property
     def observable(self) -> str:
@@ -504,6 +506,7 @@ def _load_compounds(
                 entry["mass_source"] = f"{mass_kind} mass of the structure"
             dm = table.number(i, "mass_err_u", nonnegative=True, default=0.0)
             entry["mass"] = Measured(m * AMU, dm * AMU)
+            entry["line"] = table.lines[i]
             entry["alpha_known"] = _optional_measured(
                 table, i, "alpha_known_A3", "alpha_known_err_A3", alpha_si_from_a3
             )
@@ -599,13 +602,15 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
     return series, problems, ignored
 
 
-def check_geometry(camp: Campaign) -> None:
-    """Build the nominal set-up once: bad geometry is structural (named with the file)."""
+def check_geometry(camp: Campaign):
+    """Build the nominal set-up once: bad geometry is structural (named with the file).
+
+    Returns the nominal deflector (None without one)."""
     try:
         if camp.model == "none":
             build_layout(camp.layout, camp.nominal())
-        else:
-            camp.build()
+            return None
+        return camp.build()[1]
     except QuantityError:
         raise
     except InputError as exc:
@@ -710,7 +715,7 @@ def load_campaign(path: str | Path) -> Campaign:
         waveform=waveform,
         raw=doc,
     )
-    check_geometry(camp)
+    deflector = check_geometry(camp)
     if model == "numerical":  # the solve's mesh-refinement error becomes a stated input
         stated = {**stated, **numerical_error_inputs(camp)}
     recoil = None
@@ -758,6 +763,17 @@ def load_campaign(path: str | Path) -> Campaign:
         raise InputError(
             f"{fname} [data] computed_outputs: expected a list of glob patterns, found {patterns!r}"
         )
+    warnings = input_warnings(
+        fname,
+        doc,
+        stated,
+        layout,
+        compounds_file=compounds_path.name,
+        masses=[(f"line {e['line']}", e["mass"].value / AMU) for e in info.values() if "line" in e],
+        shifts_file=shifts_path.name if shifts_path is not None else "",
+        rows=table_rows(compounds, layout, "scans" in data),
+        field_per_volt=getattr(deflector, "field_per_volt", None),
+    )
     return Campaign(
         path=path,
         title=title,
@@ -777,7 +793,18 @@ def load_campaign(path: str | Path) -> Campaign:
         ignored_columns=ignored,
         recoil=recoil,
         table_notes=tuple(table_notes),
+        warnings=warnings,
     )
+
+
+def table_rows(compounds, layout: str, scans: bool):
+    """(row label, voltage V, velocity m/s or None) of every measured point, for plausibility."""
+    word = "scan" if scans else "line"
+    for cd in compounds:
+        for s in cd.series:
+            for k, line in enumerate(s.lines):
+                v = None if layout == "time-domain" else float(s.velocities[k])
+                yield f"{word} {line}", float(s.voltages[k]), v
 
 
 def reduce_scans_file(path: Path, period_m: float):

@@ -183,10 +183,10 @@ def _summary_table(result: CampaignResult, detailed: set[int]) -> str:
             + _td_num(i + 1, str(i + 1))
             + f"<td>{name}</td>"
             + f'<td class="status status-{_e(c.status)}">{_e(c.status)}</td>'
-            + _td_num(a, _fmt(a, da).split(" ± ")[0] if a is not None else "—")
-            + _td_num(da, _fmt(a, da).split(" ± ")[1] if a is not None and da else "")
-            + _td_num(d, _fmt(d, dd).split(" ± ")[0] if d is not None else "—")
-            + _td_num(dd, _fmt(d, dd).split(" ± ")[1] if d is not None and dd else "")
+            + _td_num(a, _fmt(a, da).partition(" ± ")[0] if a is not None else "—")
+            + _td_num(da, _fmt(a, da).partition(" ± ")[2] if a is not None and da else "")
+            + _td_num(d, _fmt(d, dd).partition(" ± ")[0] if d is not None else "—")
+            + _td_num(dd, _fmt(d, dd).partition(" ± ")[2] if d is not None and dd else "")
             + _td_num(up, f"< {up:.2f}" if up is not None else "")
             + _td_num(len(c.series), str(len(c.series)))
             + f"<td>{_e(c.method)}</td><td>{_e(c.message)}</td></tr>"

@@ -297,6 +297,7 @@ class CampaignResult:
     series_comparison: pd.DataFrame | None = None  # computed α + μ²/3kT versus each α_eff
     parity: pd.DataFrame | None = None  # per-method deviation statistics
     calibration: dict[str, Any] | None = None  # reference-compound calibration (calibration.py)
+    input_warnings: tuple[str, ...] = ()  # implausible inputs (also in notes), for stderr
 
     @property
     def series(self) -> pd.DataFrame:

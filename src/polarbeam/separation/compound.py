@@ -22,9 +22,17 @@ from polarbeam.separation.debye import debye_fit, dipole_from_known_alpha
 from polarbeam.separation.dipole import dipole_statement
 
 __all__ = [
+    "DIPOLE_PLAUSIBLE_MAX_D",
+    "PLAUSIBILITY_HINT",
     "make_result",
     "separate",
 ]
+
+#: Above this a dipole is implausible for a molecule in a beam (the largest molecular dipoles
+#: measured are ~10–15 D, e.g. zwitterions; from memory): a unit or geometry slip is likelier.
+DIPOLE_PLAUSIBLE_MAX_D = 20.0
+#: The words every result-plausibility warning carries.
+PLAUSIBILITY_HINT = "check units and geometry"
 
 
 def _failed(cd: CompoundData, message: str, mass_u=None) -> CompoundResult:
@@ -73,12 +81,6 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         )
         a_eff, _ = alpha_eff_with_errors(fit, s.label, ctx.coupling_ratio, mass_ratio, vel_u)
         sw = []
-        if a_eff.std_dev > 0 and a_eff.nominal_value < -2.0 * a_eff.std_dev:
-            sw.append(
-                f"{s.label}: α_eff = {alpha_a3_from_si(a_eff.nominal_value):.4g} ± "
-                f"{alpha_a3_from_si(a_eff.std_dev):.2g} Å³ is negative beyond 2σ: check the sign "
-                "convention (x points the way the field magnitude grows) and the geometry"
-            )
         if fit.ndof > 0 and fit.p_value < 0.01:
             sw.append(
                 f"{s.label}: reduced χ² = {fit.reduced_chi2:.2f} (p = {fit.p_value:.1e}); "
@@ -164,6 +166,21 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 f"no significant dipole: μ < {debye_from_si(upper):.2f} D "
                 f"({st.upper_limit_cl:.0%} CL)"
             )
+    for r in results:
+        a, da = r.alpha_eff.nominal_value, r.alpha_eff.std_dev
+        if a <= 0:
+            beyond = "; negative beyond 2σ" if da > 0 and a < -2.0 * da else ""
+            warnings.append(
+                f"{r.compound} @ {r.temperature_K:g} K: α_eff = "
+                f"{alpha_a3_from_si(a):.4g} ± {alpha_a3_from_si(da):.2g} Å³ ≤ 0 (a "
+                f"polarizability pulls into the field{beyond}; is x the way the field magnitude "
+                f"grows?): {PLAUSIBILITY_HINT}"
+            )
+    if dipole is not None and debye_from_si(dipole.nominal_value) > DIPOLE_PLAUSIBLE_MAX_D:
+        warnings.append(
+            f"μ = {debye_from_si(dipole.nominal_value):.4g} D is above "
+            f"{DIPOLE_PLAUSIBLE_MAX_D:g} D, implausible for a molecule: {PLAUSIBILITY_HINT}"
+        )
     if alpha is not None and alpha.nominal_value < 0:
         warnings.append(
             f"intercept α = {alpha_a3_from_si(alpha.nominal_value):.1f} Å³ is negative: "
@@ -207,7 +224,8 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         k: {"value": m.value, "error": m.error, "dlnC_dp": ctx.sensitivities.get(k)}
         for k, m in c.stated.items()
     }
-    notes = list(c.table_notes)
+    notes = list(c.warnings)  # implausible inputs first: the likely unit slips
+    notes += c.table_notes
     if c.layout == "time-domain":
         notes.append(
             "time-domain layout: the fringe shift does not depend on velocity; "
@@ -235,6 +253,7 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         settings=asdict(c.settings),
         unmeasured=c.unmeasured,
         notes=tuple(notes),
+        input_warnings=c.warnings,
     )
 
 
