@@ -291,4 +291,5 @@ def test_negative_alpha_eff_message(tmp_path):
     args = _scale_column("shifts.csv", "phase_rad", -1.0)(tmp_path)
     assert CliRunner().invoke(app, args).exit_code == 0
     msg = _messages(tmp_path)
-    assert re.search(r"cmp-1 @ 300 K: α_eff = -\S+ Å³ ≤ 0 .*check units and geometry", msg["cmp-1"])
+    pattern = r"cmp-1 @ 300 K: α_eff = -\S+ ± \S+ Å³ ≤ 0 .*check units and geometry"
+    assert re.search(pattern, msg["cmp-1"])

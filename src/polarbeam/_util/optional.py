@@ -14,7 +14,13 @@ from types import ModuleType
 
 from polarbeam.errors import MissingExtraError
 
-__all__ = ["EXTRAS", "MissingExtraError", "extra_for", "has", "missing_reason", "require"]
+__all__ = [
+    "EXTRAS",
+    "extra_for",
+    "has",
+    "missing_reason",
+    "require",
+]
 
 #: import name → (pip package, extra of polarbeam that installs it).
 EXTRAS: dict[str, tuple[str, str]] = {

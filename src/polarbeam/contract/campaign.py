@@ -45,6 +45,7 @@ from polarbeam.contract.numerical import (
 )
 from polarbeam.contract.plausibility import input_warnings
 from polarbeam.contract.recoil import load_recoil
+from polarbeam.contract.scans import reduce_scans_file, series_from_reduction
 from polarbeam.contract.schema import (
     OBSERVABLE_COLUMNS,
     SHIFT_COLUMNS_COMMON,
@@ -52,7 +53,7 @@ from polarbeam.contract.schema import (
     CompoundData,
     SeriesData,
 )
-from polarbeam.errors import CompoundError, InputError, QuantityError, RowValueError
+from polarbeam.errors import CompoundError, InputError, QuantityError
 from polarbeam.instrument.deflectors import (
     DEFLECTOR_MODELS,
     UNCALIBRATED_FIELD_FACTOR,
@@ -63,8 +64,6 @@ from polarbeam.instrument.deflectors import (
 )
 from polarbeam.instrument.layouts import LAYOUTS, BeamProfile, TalbotLau, TimeDomain
 from polarbeam.quantities import Measured, parse_quantity
-from polarbeam.reduction import read_table as read_scans_table
-from polarbeam.reduction import reduce_file, reduce_table, row_problems
 
 __all__ = [
     "Campaign",
@@ -805,85 +804,6 @@ def table_rows(compounds, layout: str, scans: bool):
             for k, line in enumerate(s.lines):
                 v = None if layout == "time-domain" else float(s.velocities[k])
                 yield f"{word} {line}", float(s.voltages[k]), v
-
-
-def reduce_scans_file(path: Path, period_m: float):
-    """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases.
-
-    Returns ``(reduction, problems)``: a bad cell fails only its compound (``problems`` maps
-    the compound to the message of its first bad cell), the others are reduced without it.
-    """
-    try:
-        return reduce_file(path, period_m), {}
-    except RowValueError as exc:
-        first_error = exc
-    df = read_scans_table(path)
-    bad_rows = row_problems(df, path.name)
-    names = df["compound"].astype(str).str.strip(CELL_BLANKS).to_numpy()
-    problems: dict[str, str] = {}
-    for i, msg in sorted(bad_rows.items()):
-        if names[i] and names[i] != "nan":
-            problems.setdefault(names[i], msg)
-    keep = ~np.isin(names, list(problems))
-    if not problems or not keep.any():  # no compound to blame, or none left: structural
-        raise InputError(str(first_error)) from None
-    try:
-        reduction = reduce_table(df[keep].reset_index(drop=True), period_m, source=path.name)
-    except RowValueError as exc:
-        raise InputError(str(exc)) from None
-    return reduction, problems
-
-
-def series_from_reduction(reduction):
-    """Series (with full phase covariance and relative visibility) from reduced phases."""
-    t = reduction.table
-    vis = reduction.relative_visibility()
-    kept = t["phase_rad"].notna().to_numpy()
-    series: dict[str, list[SeriesData]] = {}
-    problems: dict[str, str] = {}
-    notes: dict[str, list[str]] = {}
-    names = list(dict.fromkeys(str(c) for c in t["compound"]))
-    for msg in reduction.messages:
-        for name in names:
-            if f"({name}, " in msg:
-                notes.setdefault(name, []).append(msg)
-    keys = list(dict.fromkeys(zip(t["compound"].astype(str), t["temperature_K"], strict=True)))
-    for name, temp in keys:
-        sel = ((t["compound"].astype(str) == name) & (t["temperature_K"] == temp)).to_numpy()
-        rows = sel & kept
-        if name in problems:
-            continue
-        volts = t["voltage_V"].to_numpy()[rows]
-        if np.unique(np.round(volts**2, 9)).size < 2:
-            problems[name] = (
-                f"{reduction.source}: series {name} @ {temp:g} K expected at least two different "
-                f"voltages with usable scans, found {np.unique(np.abs(volts)).size}"
-            )
-            series.pop(name, None)
-            continue
-        cov = reduction.covariance.get((name, temp))
-        if cov is None:
-            cov = reduction.covariance.get((t["compound"][sel].iloc[0], temp))
-        v = t["velocity_m_s"].to_numpy()[rows]
-        series.setdefault(name, []).append(
-            SeriesData(
-                compound=name,
-                temperature=Measured(float(temp), float(t["temperature_err_K"][rows].mean())),
-                velocity=Measured(float(v.mean()), float(t["velocity_err_m_s"][rows].mean())),
-                velocities=v.astype(float),
-                spreads=t["velocity_spread_m_s"].to_numpy()[rows].astype(float),
-                voltages=volts.astype(float),
-                values=t["phase_rad"].to_numpy()[rows].astype(float),
-                errors=t["phase_err_rad"].to_numpy()[rows].astype(float),
-                lines=tuple(str(x) for x in t["scan"].to_numpy()[rows]),
-                covariance=np.asarray(cov, dtype=float),
-                visibility=vis["relative_visibility"].to_numpy()[rows].astype(float),
-                visibility_err=vis["relative_visibility_err"].to_numpy()[rows].astype(float),
-            )
-        )
-    for name in series:
-        series[name].sort(key=lambda s: s.temperature.value)
-    return series, problems, notes
 
 
 def load_structures(base: Path, doc: dict, fname: str) -> dict[str, Any]:

@@ -37,7 +37,6 @@ from polarbeam.chemistry.qchem.compute import (
 from polarbeam.chemistry.qchem.cost import (
     DEFAULT_COST_MODELS,
     DEFAULT_MAX_SECONDS,
-    CalculationTooBigError,
     CostEstimate,
     CostModel,
     calibrate_cost_model,
@@ -67,6 +66,7 @@ from polarbeam.chemistry.qchem.response import (
 )
 from polarbeam.chemistry.qchem.result import ComputedResult, results_table
 from polarbeam.chemistry.qchem.scf import run_pyscf
+from polarbeam.errors import CalculationTooBigError
 
 __all__ = [
     "AU_DIPOLE_SI",

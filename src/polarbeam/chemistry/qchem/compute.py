@@ -20,7 +20,6 @@ from polarbeam.chemistry.computed import isotropic_average
 from polarbeam.chemistry.qchem.cache import cache_key, default_cache_dir, read_cached, write_cached
 from polarbeam.chemistry.qchem.cost import (
     DEFAULT_MAX_SECONDS,
-    CalculationTooBigError,
     CostModel,
     estimate_cost,
     format_duration,
@@ -30,7 +29,7 @@ from polarbeam.chemistry.qchem.response import AU_DIPOLE_SI, DEFAULT_FIELD_AU, P
 from polarbeam.chemistry.qchem.result import ComputedResult
 from polarbeam.chemistry.qchem.scf import run_pyscf
 from polarbeam.constants import AU_POLARIZABILITY_SI
-from polarbeam.errors import CompoundError, InputError
+from polarbeam.errors import CalculationTooBigError, CompoundError, InputError
 
 __all__ = ["ProgressCallback", "compute_properties", "d4_polarizability"]
 

@@ -14,12 +14,11 @@ from dataclasses import dataclass
 from polarbeam.chemistry.qchem.geometry import Geometry, geometry_from_smiles
 from polarbeam.chemistry.qchem.response import DEFAULT_FIELD_AU, PolarizabilityScheme
 from polarbeam.chemistry.qchem.scf import build_mol, is_hf, run_pyscf
-from polarbeam.errors import CalculationTooBigError, InputError
+from polarbeam.errors import InputError
 
 __all__ = [
     "DEFAULT_COST_MODELS",
     "DEFAULT_MAX_SECONDS",
-    "CalculationTooBigError",
     "CostEstimate",
     "CostModel",
     "calibrate_cost_model",

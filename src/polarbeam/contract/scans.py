@@ -1,0 +1,104 @@
+"""Raw fringe scans in a campaign: reduce the scan file and turn its phases into series.
+
+A bad cell fails only its compound: the file is reduced again without the compounds whose rows
+are bad, and each of those gets the message of its first bad cell.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from polarbeam._util.tables import CELL_BLANKS
+from polarbeam.contract.schema import (
+    SeriesData,
+)
+from polarbeam.errors import InputError, RowValueError
+from polarbeam.quantities import Measured
+from polarbeam.reduction import read_table as read_scans_table
+from polarbeam.reduction import reduce_file, reduce_table, row_problems
+
+__all__ = [
+    "reduce_scans_file",
+    "series_from_reduction",
+]
+
+
+def reduce_scans_file(path: Path, period_m: float):
+    """Read a raw-scan file (CSV or Parquet) and reduce it to drift-corrected phases.
+
+    Returns ``(reduction, problems)``: a bad cell fails only its compound (``problems`` maps
+    the compound to the message of its first bad cell), the others are reduced without it.
+    """
+    try:
+        return reduce_file(path, period_m), {}
+    except RowValueError as exc:
+        first_error = exc
+    df = read_scans_table(path)
+    bad_rows = row_problems(df, path.name)
+    names = df["compound"].astype(str).str.strip(CELL_BLANKS).to_numpy()
+    problems: dict[str, str] = {}
+    for i, msg in sorted(bad_rows.items()):
+        if names[i] and names[i] != "nan":
+            problems.setdefault(names[i], msg)
+    keep = ~np.isin(names, list(problems))
+    if not problems or not keep.any():  # no compound to blame, or none left: structural
+        raise InputError(str(first_error)) from None
+    try:
+        reduction = reduce_table(df[keep].reset_index(drop=True), period_m, source=path.name)
+    except RowValueError as exc:
+        raise InputError(str(exc)) from None
+    return reduction, problems
+
+
+def series_from_reduction(reduction):
+    """Series (with full phase covariance and relative visibility) from reduced phases."""
+    t = reduction.table
+    vis = reduction.relative_visibility()
+    kept = t["phase_rad"].notna().to_numpy()
+    series: dict[str, list[SeriesData]] = {}
+    problems: dict[str, str] = {}
+    notes: dict[str, list[str]] = {}
+    names = list(dict.fromkeys(str(c) for c in t["compound"]))
+    for msg in reduction.messages:
+        for name in names:
+            if f"({name}, " in msg:
+                notes.setdefault(name, []).append(msg)
+    keys = list(dict.fromkeys(zip(t["compound"].astype(str), t["temperature_K"], strict=True)))
+    for name, temp in keys:
+        sel = ((t["compound"].astype(str) == name) & (t["temperature_K"] == temp)).to_numpy()
+        rows = sel & kept
+        if name in problems:
+            continue
+        volts = t["voltage_V"].to_numpy()[rows]
+        if np.unique(np.round(volts**2, 9)).size < 2:
+            problems[name] = (
+                f"{reduction.source}: series {name} @ {temp:g} K expected at least two different "
+                f"voltages with usable scans, found {np.unique(np.abs(volts)).size}"
+            )
+            series.pop(name, None)
+            continue
+        cov = reduction.covariance.get((name, temp))
+        if cov is None:
+            cov = reduction.covariance.get((t["compound"][sel].iloc[0], temp))
+        v = t["velocity_m_s"].to_numpy()[rows]
+        series.setdefault(name, []).append(
+            SeriesData(
+                compound=name,
+                temperature=Measured(float(temp), float(t["temperature_err_K"][rows].mean())),
+                velocity=Measured(float(v.mean()), float(t["velocity_err_m_s"][rows].mean())),
+                velocities=v.astype(float),
+                spreads=t["velocity_spread_m_s"].to_numpy()[rows].astype(float),
+                voltages=volts.astype(float),
+                values=t["phase_rad"].to_numpy()[rows].astype(float),
+                errors=t["phase_err_rad"].to_numpy()[rows].astype(float),
+                lines=tuple(str(x) for x in t["scan"].to_numpy()[rows]),
+                covariance=np.asarray(cov, dtype=float),
+                visibility=vis["relative_visibility"].to_numpy()[rows].astype(float),
+                visibility_err=vis["relative_visibility_err"].to_numpy()[rows].astype(float),
+            )
+        )
+    for name in series:
+        series[name].sort(key=lambda s: s.temperature.value)
+    return series, problems, notes
