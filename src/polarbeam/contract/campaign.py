@@ -444,11 +444,13 @@ def data_path(base: Path, doc: dict, key: str, fname: str, required=True) -> Pat
     return (base / val).resolve()
 
 
-def _optional_measured(table: Table, i: int, col: str, errcol: str, convert) -> Measured | None:
+def _optional_measured(
+    table: Table, i: int, col: str, errcol: str, convert, nonnegative: bool = False
+) -> Measured | None:
     raw = table.rows[i].get(col, "").strip()
     if not raw:
         return None
-    val = table.number(i, col)
+    val = table.number(i, col, nonnegative=nonnegative)
     err = table.number(i, errcol, nonnegative=True, default=0.0)
     return Measured(convert(val), abs(convert(err)))
 
@@ -510,7 +512,7 @@ def _load_compounds(
                 table, i, "alpha_known_A3", "alpha_known_err_A3", alpha_si_from_a3
             )
             entry["dipole_known"] = _optional_measured(
-                table, i, "dipole_known_D", "dipole_known_err_D", si_from_debye
+                table, i, "dipole_known_D", "dipole_known_err_D", si_from_debye, nonnegative=True
             )
         except CompoundError as exc:
             if name in info and "problem" not in info[name]:

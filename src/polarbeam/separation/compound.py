@@ -18,8 +18,12 @@ from polarbeam.errors import CompoundError
 from polarbeam.extraction.context import Context
 from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
 from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResult
-from polarbeam.separation.debye import debye_fit, dipole_from_known_alpha
-from polarbeam.separation.dipole import dipole_statement
+from polarbeam.separation.debye import (
+    alpha_with_known_dipole,
+    debye_fit,
+    dipole_from_known_alpha,
+)
+from polarbeam.separation.dipole import INTERVAL_CL, DipoleStatement, dipole_statement
 
 __all__ = [
     "DIPOLE_PLAUSIBLE_MAX_D",
@@ -158,7 +162,19 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
             "measure at more temperatures or give alpha_known_A3"
         )
     statement = None
-    if mu2 is not None:
+    if cd.dipole_known is not None:  # α from every series with the stated μ
+        alpha, dipole, mu2, method, note, warn = _with_known_dipole(cd, results, temps, mu2)
+        messages.append(note)
+        warnings.extend(warn)
+        statement = DipoleStatement(
+            max(dipole.nominal_value - dipole.std_dev, 0.0),
+            dipole.nominal_value + dipole.std_dev,
+            dipole,
+            None,
+            INTERVAL_CL,
+            st.upper_limit_cl,
+        )
+    elif mu2 is not None:
         statement = dipole_statement(mu2, limit_cl=st.upper_limit_cl)
         dipole, upper = statement.value, statement.limit
         if upper is not None:
@@ -279,3 +295,33 @@ def orientation_ratio(ctx: Context, model: str, results, dipole, upper, statemen
     vmax = max(float(np.max(np.abs(r.voltages))) for r in results)
     tmin = min(r.temperature_K for r in results)
     return mu * ctx.field_per_volt * vmax / (BOLTZMANN * tmin), None
+
+
+def _with_known_dipole(cd, results, temps, mu2_fitted):
+    """(α, μ, ⟨μ²⟩, method, note, warnings) with the stated dipole of compounds.csv.
+
+    The Debye slope, when there is one, is kept as a consistency check against the stated μ.
+    """
+    k = cd.dipole_known
+    mu = ufloat(k.value, k.error, tag=f"known μ: {cd.name}") if k.error > 0 else ufloat(k.value, 0)
+    alpha = alpha_with_known_dipole([r.alpha_eff for r in results], temps, mu)
+    note = (
+        f"α from every series with the stated dipole μ = {debye_from_si(k.value):.4g} "
+        f"± {debye_from_si(k.error):.2g} D (dipole_known_D)"
+    )
+    warnings = []
+    if mu2_fitted is not None and mu2_fitted.std_dev > 0:
+        diff = mu2_fitted - mu**2
+        z = diff.nominal_value / diff.std_dev if diff.std_dev > 0 else math.nan
+        d2 = 1.0 / debye_from_si(1.0) ** 2  # C²m² per D²
+        note += (
+            f"; the Debye slope gives ⟨μ²⟩ = {mu2_fitted.nominal_value / d2:.3g} ± "
+            f"{mu2_fitted.std_dev / d2:.2g} D² (z = {z:+.1f} against the stated value)"
+        )
+        if abs(z) > 3:
+            warnings.append(
+                f"the Debye slope disagrees with the stated dipole_known_D (z = {z:+.1f}): "
+                "a wrong stated value, a rotational temperature different from the source "
+                "temperature, or conformers"
+            )
+    return alpha, mu, mu**2, "known dipole", note, warnings

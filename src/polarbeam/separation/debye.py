@@ -26,7 +26,13 @@ from uncertainties import UFloat
 
 from polarbeam.constants import ANGSTROM3_SI, BOLTZMANN
 
-__all__ = ["DebyeFit", "bounded_upper_limit", "debye_fit", "dipole_from_known_alpha"]
+__all__ = [
+    "DebyeFit",
+    "alpha_with_known_dipole",
+    "bounded_upper_limit",
+    "debye_fit",
+    "dipole_from_known_alpha",
+]
 
 
 @dataclass(frozen=True)
@@ -98,3 +104,21 @@ def bounded_upper_limit(estimate: float, sigma: float, cl: float = 0.95) -> floa
     lo = stats.norm.cdf(-estimate / sigma)  # prior mass cut away below zero
     target = lo + cl * (1.0 - lo)
     return float(estimate + sigma * stats.norm.ppf(target))
+
+
+def alpha_with_known_dipole(alpha_eff: list[UFloat], temperatures: list, mu_known) -> UFloat:
+    """α from every series with a known dipole: the weighted mean of α_eff − μ²/(3kT).
+
+    The weights are those of the Debye fit (each series' specific variance, see
+    :func:`specific_variances`); the estimate is propagated through the full correlated
+    covariance, the known μ's error included (it is common to every series).
+    """
+    unit = ANGSTROM3_SI
+    values = [a / unit for a in alpha_eff]
+    var = specific_variances(values)
+    if np.any(var <= 0):
+        var = np.array([v.std_dev**2 for v in values])
+    w = 1.0 / var
+    orient = [mu_known**2 / (3.0 * BOLTZMANN * t) / unit for t in temperatures]
+    total = sum(wi * (v - o) for wi, v, o in zip(w, values, orient, strict=True))
+    return total / float(np.sum(w)) * unit
