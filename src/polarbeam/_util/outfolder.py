@@ -73,7 +73,7 @@ def _read_manifest(root: Path) -> set[str]:
 def _safe_relative(rel: str) -> bool:
     """A manifest entry names a file inside the folder (never ``..``, never absolute)."""
     p = Path(rel)
-    return bool(rel) and not p.is_absolute() and ".." not in p.parts and rel not in _OWN
+    return bool(rel) and not p.is_absolute() and ".." not in p.parts and p.name not in _OWN
 
 
 class OutputFolder:
@@ -125,6 +125,8 @@ class OutputFolder:
         for rel in sorted(rels):
             p = self.root / rel
             try:
+                if not p.parent.resolve().is_relative_to(self.root):
+                    continue  # a folder on the way is a link out of the results folder
                 if p.is_symlink() or p.is_file():
                     p.unlink()
             except OSError:
@@ -153,7 +155,7 @@ class OutputFolder:
     def note(self, path: Path) -> None:
         """Record ``path`` as polarbeam's before it is written (the atomic writer calls this)."""
         rel = self.relative(path)
-        if rel is None or rel in _OWN or rel == ".":
+        if rel is None or rel == "." or Path(rel).name in _OWN:  # a manifest is no output
             return
         if not self.resume and not self._cleared:
             # a fresh run: the previous run's files go before the first new one is written, so
@@ -176,7 +178,7 @@ class OutputFolder:
 
     def expect(self, paths: Iterable[Path]) -> None:
         """List files this run is about to write, with one manifest update (many records)."""
-        new = {r for r in (self.relative(p) for p in paths) if r is not None and r not in _OWN}
+        new = {r for r in map(self.relative, paths) if r is not None and Path(r).name not in _OWN}
         if new - self.listed:
             self.listed |= new
             self._write_manifest(complete=False)
