@@ -15,6 +15,7 @@ __all__ = [
     "CalculationTooBigError",
     "CompoundError",
     "FitError",
+    "FolderInUseError",
     "InputError",
     "MissingExtraError",
     "PolarbeamError",
@@ -53,3 +54,7 @@ class MissingExtraError(InputError, ImportError):
 
 class CalculationTooBigError(CompoundError):
     """The estimated run time of a quantum-chemistry calculation exceeds the configured limit."""
+
+
+class FolderInUseError(InputError):
+    """Another polarbeam run holds the results folder (exit code 2)."""

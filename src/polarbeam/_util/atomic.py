@@ -9,11 +9,21 @@ from __future__ import annotations
 
 import os
 import tempfile
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
-__all__ = ["atomic_path", "write_bytes_atomic", "write_text_atomic"]
+__all__ = ["add_write_listener", "atomic_path", "write_bytes_atomic", "write_text_atomic"]
+
+#: Called with each target path before it is written (the results-folder manifest,
+#: :mod:`polarbeam._util.outfolder`, records its files this way: every writer goes through here).
+_LISTENERS: list[Callable[[Path], None]] = []
+
+
+def add_write_listener(listener: Callable[[Path], None]) -> None:
+    """Call ``listener(path)`` before each atomic write of ``path`` (once per listener)."""
+    if listener not in _LISTENERS:
+        _LISTENERS.append(listener)
 
 
 def _umask() -> int:
@@ -29,6 +39,8 @@ def atomic_path(path: str | Path) -> Iterator[Path]:
     For writers that want a file name (``DataFrame.to_csv``, ``to_parquet``, streamed CSV).
     """
     path = Path(path)
+    for listener in _LISTENERS:
+        listener(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:

@@ -32,6 +32,7 @@ from pathlib import Path
 from typing import Any
 
 from polarbeam._util.atomic import write_text_atomic
+from polarbeam._util.outfolder import held_folder, output_folder
 from polarbeam._util.text import safe_name
 from polarbeam.batch.inputs import campaign_key, compound_hashes, discover_campaigns
 from polarbeam.batch.progress import ProgressEvent, TerminalProgress
@@ -116,6 +117,10 @@ def _run_campaign(
                     done.pop(n, None)  # unreadable record: analyse again
     reused = len(done)
     todo = [n for n in names if n not in done]
+    held = held_folder(out)  # run_batch holds ``out`` for this run
+    if held is not None:
+        held.keep(files[n] for n in names if n in done)  # reused records stay polarbeam's
+        held.expect(files[n] for n in todo)  # listed before they are written: one update
     total = len(names)
     out.mkdir(parents=True, exist_ok=True)
     write_state(
@@ -168,11 +173,8 @@ def _run_campaign(
     write_outputs(
         result, out, reduction=c.reduction, html=html, details=report_details, rendered=rendered
     )
-    keep = {f.name for f in files.values()}
-    if cdir.is_dir():  # records of compounds no longer in the campaign
-        for f in cdir.glob("*.json"):
-            if f.name not in keep:
-                f.unlink(missing_ok=True)
+    # records of compounds no longer in the campaign go with the other files of the previous run
+    # that were not written again (only files polarbeam listed: polarbeam._util.outfolder)
     write_state(
         out,
         complete=True,
@@ -254,37 +256,39 @@ def run_batch(
     campaigns = discover_campaigns(inputs)
     settings = dict(settings or {})
     t0 = time.perf_counter()
-    runner = make_runner(jobs, scheduler, dashboard)
-    if on_runner:
-        on_runner(runner)
-    runs = []
-    try:
-        single = len(campaigns) == 1
-        for name, path in campaigns:
-            dest = out if single else out / name
-            try:
-                runs.append(
-                    _run_campaign(
-                        name,
-                        path,
-                        dest,
-                        runner,
-                        resume=resume,
-                        progress=progress,
-                        settings=settings,
-                        html=html,
-                        report_details=report_details,
-                    )
-                )
-            except PolarbeamError as exc:
-                if single:
-                    raise
-                runs.append(CampaignRun(name, path, dest, None, one_line(str(exc))))
-    finally:
-        runner.close()
-    outcome = BatchOutcome(tuple(runs), time.perf_counter() - t0)
-    if len(campaigns) > 1:
-        write_index(out, outcome)
+    # one run at a time in ``out`` (FolderInUseError for a second one), before any work starts
+    with output_folder(out, resume=resume):
+        runner = make_runner(jobs, scheduler, dashboard)
+        if on_runner:
+            on_runner(runner)
+        runs = []
+        try:
+            single = len(campaigns) == 1
+            for name, path in campaigns:
+                dest = out if single else out / name
+                try:
+                    with output_folder(dest, resume=resume):
+                        run = _run_campaign(
+                            name,
+                            path,
+                            dest,
+                            runner,
+                            resume=resume,
+                            progress=progress,
+                            settings=settings,
+                            html=html,
+                            report_details=report_details,
+                        )
+                    runs.append(run)
+                except PolarbeamError as exc:
+                    if single:
+                        raise
+                    runs.append(CampaignRun(name, path, dest, None, one_line(str(exc))))
+        finally:
+            runner.close()
+        outcome = BatchOutcome(tuple(runs), time.perf_counter() - t0)
+        if len(campaigns) > 1:
+            write_index(out, outcome)
     return outcome
 
 

@@ -9,9 +9,13 @@ compound's result as a record (:func:`~polarbeam.batch.records.encode_compound`)
 
 from __future__ import annotations
 
+import ctypes
 import os
 import re
 import signal
+import sys
+import threading
+import time
 from collections.abc import Iterator, Mapping, Sequence
 from typing import Any
 
@@ -108,9 +112,40 @@ def render_chunk(items: Sequence[tuple[int, dict]]) -> list[tuple[int, dict]]:
     return out
 
 
-def _worker_init() -> None:  # pragma: no cover - runs in the worker processes
+_PR_SET_PDEATHSIG = 1  # from <linux/prctl.h>
+
+
+def _die_with_parent(parent: int) -> None:  # pragma: no cover - runs in the worker processes
+    """End this worker when ``parent`` (the batch's main process) dies, even by SIGKILL.
+
+    On Linux the kernel sends SIGKILL when the parent goes (``prctl(PR_SET_PDEATHSIG)``); a
+    daemon thread that checks the parent pid once a second covers other systems and the moment
+    before the ``prctl``.  With the workers gone, the multiprocessing resource tracker (kept alive
+    by the pipe its children share) ends too.
+    """
+    if sys.platform.startswith("linux"):
+        try:
+            libc = ctypes.CDLL(None, use_errno=True)
+            libc.prctl(_PR_SET_PDEATHSIG, signal.SIGKILL, 0, 0, 0)
+        except (OSError, AttributeError):
+            pass
+
+    def watch() -> None:
+        while True:
+            if os.getppid() != parent:
+                os._exit(1)
+            time.sleep(1.0)
+
+    if os.getppid() != parent:  # the parent died before the prctl took effect
+        os._exit(1)
+    threading.Thread(target=watch, name="polarbeam-parent-watch", daemon=True).start()
+
+
+def _worker_init(parent: int | None = None) -> None:  # pragma: no cover - in the workers
     # Ctrl-C is the main process's business: it stops handing out work and keeps what is done.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    if parent is not None:
+        _die_with_parent(parent)
 
 
 def prime_worker_cache(path: str, key: str, entry: tuple) -> None:
@@ -151,6 +186,7 @@ class _Processes:
             max_workers=jobs,
             mp_context=multiprocessing.get_context("spawn"),
             initializer=_worker_init,
+            initargs=(os.getpid(),),
         )
         self.pool = self._make()
 

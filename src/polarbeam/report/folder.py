@@ -11,6 +11,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from pathlib import Path
 
+from polarbeam._util.outfolder import output_folder
 from polarbeam.report.files import render_markdown, write_results
 from polarbeam.report.html import write_html
 from polarbeam.results.objects import CampaignResult, register_writer
@@ -29,10 +30,16 @@ def write_report(
     """Write the results folder of ``result``: CSV, JSON, Markdown and (unless ``html=False``)
     ``report.html`` with ``figures/``; ``details`` limits the compounds with figure sections and
     ``rendered`` holds figures already drawn elsewhere (by compound index, as
-    :func:`~polarbeam.report.html.write_html` takes them)."""
-    write_results(result, out)
-    if html:
-        write_html(result, out, details=details, rendered=rendered)
+    :func:`~polarbeam.report.html.write_html` takes them).
+
+    The folder is held for this run (:func:`~polarbeam._util.outfolder.output_folder`): files of
+    the previous run that are not written again are removed, the user's own files are not, and a
+    second run into the same folder at the same time gets
+    :class:`~polarbeam.errors.FolderInUseError`."""
+    with output_folder(out):
+        write_results(result, out)
+        if html:
+            write_html(result, out, details=details, rendered=rendered)
 
 
 register_writer("markdown", render_markdown)

@@ -456,18 +456,11 @@ def write_html(
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
     fdir = out / "figures"
-    written: set[str] = set()
+    # figures of compounds no longer shown are the results folder's business: the manifest of
+    # polarbeam's files (polarbeam._util.outfolder) removes only those it wrote
     text = render_html(
-        result,
-        details=details,
-        figure_dir=fdir if figure_files else None,
-        rendered=rendered,
-        written=written,
+        result, details=details, figure_dir=fdir if figure_files else None, rendered=rendered
     )
-    if figure_files and fdir.is_dir():  # figures of compounds no longer shown
-        for f in fdir.iterdir():
-            if f.suffix in (".svg", ".png") and f.name not in written:
-                f.unlink(missing_ok=True)
     target = out / "report.html"
     write_text_atomic(target, text)
     return target
