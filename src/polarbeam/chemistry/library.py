@@ -26,7 +26,7 @@ from polarbeam.chemistry.conformers import (
     conformer_ensemble,
 )
 from polarbeam.chemistry.molecules import StructureRecord, read_sdf
-from polarbeam.errors import CompoundError, InputError
+from polarbeam.errors import CalculationTooBigError, CompoundError, InputError
 
 __all__ = ["estimate_table"]
 
@@ -101,7 +101,9 @@ def estimate_table(
 
     One output row per input row: the input's other columns are carried through after the
     estimate columns; ``status`` is ``ok`` or ``failed`` and ``message`` says why a row failed
-    (a bad row never stops the others).  The file is written atomically (temporary file in the
+    (a bad row never stops the others) or, on an ``ok`` row, why it has no dipole (the molecule
+    is above the conformer size limit or its embedding ran out of time: the additive estimates
+    stand, ``n_conformers`` is 0).  The file is written atomically (temporary file in the
     output directory, then :func:`os.replace`).
 
     Returns
@@ -167,21 +169,28 @@ def estimate_table(
                 for v, e in zip(vals, errs, strict=True):
                     row += [_fmt(v), _fmt(e)]
                 row.append(";".join(flags))
+                note = ""
                 if dipoles:
-                    ens = conformer_ensemble(
-                        rec.mol,
-                        rec.compound,
-                        n_conformers=conformers,
-                        seed=seed,
-                        charge_model=charge_model,
-                    )
-                    row += [
-                        _fmt(ens.rms_dipole_D(temperature_K)),
-                        str(len(ens.energies_kcal_mol)),
-                        ens.charge_model,
-                        _fmt(float(temperature_K)),
-                    ]
-                rows.append([*row, "ok", "", *tail])
+                    try:
+                        ens = conformer_ensemble(
+                            rec.mol,
+                            rec.compound,
+                            n_conformers=conformers,
+                            seed=seed,
+                            charge_model=charge_model,
+                        )
+                    except CalculationTooBigError as exc:
+                        # bounded work: the additive estimates stand, the row says why no dipole
+                        note = str(exc)
+                        row += ["", "0", "", _fmt(float(temperature_K))]
+                    else:
+                        row += [
+                            _fmt(ens.rms_dipole_D(temperature_K)),
+                            str(len(ens.energies_kcal_mol)),
+                            ens.charge_model,
+                            _fmt(float(temperature_K)),
+                        ]
+                rows.append([*row, "ok", note, *tail])
                 n_ok += 1
             except (CompoundError, ValueError, RuntimeError) as exc:
                 msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
