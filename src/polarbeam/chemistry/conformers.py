@@ -58,9 +58,9 @@ DEFAULT_CHARGE_MODEL: ChargeModel = "mmff"
 #: :class:`~polarbeam.errors.CalculationTooBigError` and callers keep the additive estimates.
 MAX_CONFORMER_HEAVY_ATOMS = 60
 
-#: Time budget (s) of one compound's conformer search: the ETKDG embedding gets a per-conformer
-#: timeout from it, and the search is abandoned (CalculationTooBigError) when embedding alone
-#: used it up.  MMFF94 minimisation is capped by ``max_iters`` per conformer.
+#: Time budget (s) of one compound's conformer search: it is the ETKDG embedding's timeout, and
+#: the search is abandoned (CalculationTooBigError) when the embedding used it up.  MMFF94
+#: minimisation is capped by ``max_iters`` per conformer (and by the size limit above).
 CONFORMER_TIME_BUDGET_S = 60.0
 
 
@@ -215,8 +215,8 @@ def conformer_ensemble(
     max_heavy_atoms
         Size limit (:data:`MAX_CONFORMER_HEAVY_ATOMS`): larger molecules are refused.
     time_budget_s
-        Time budget of the search (:data:`CONFORMER_TIME_BUDGET_S`): each ETKDG embedding times
-        out after its share, and the search is refused when the embedding used it all.
+        Time budget of the search (:data:`CONFORMER_TIME_BUDGET_S`): the ETKDG embedding times
+        out after it, and the search is refused when the embedding used it all.
 
     Raises
     ------
@@ -239,13 +239,18 @@ def conformer_ensemble(
     params = AllChem.ETKDGv3()
     params.randomSeed = int(seed)
     params.numThreads = 1
-    params.timeout = max(1, math.ceil(time_budget_s / n_conformers))
+    params.timeout = max(1, math.ceil(time_budget_s))
     with rdBase.BlockLogs():
-        cids = list(AllChem.EmbedMultipleConfs(mh, numConfs=n_conformers, params=params))
-        if not cids and time.monotonic() - start < time_budget_s:
+        # a timed-out embedding returns [-1]: only ids >= 0 are conformers
+        cids = [c for c in AllChem.EmbedMultipleConfs(mh, n_conformers, params=params) if c >= 0]
+        left = time_budget_s - (time.monotonic() - start)
+        if not cids and left >= 1.0:
             params.useRandomCoords = True
-            cids = list(AllChem.EmbedMultipleConfs(mh, numConfs=n_conformers, params=params))
-    if time.monotonic() - start >= time_budget_s:
+            params.timeout = math.ceil(left)
+            cids = [
+                c for c in AllChem.EmbedMultipleConfs(mh, n_conformers, params=params) if c >= 0
+            ]
+    if time.monotonic() - start >= 0.95 * time_budget_s:
         raise CalculationTooBigError(
             f"compound {compound!r}: the conformer embedding used the whole time budget of "
             f"{time_budget_s:g} s; no conformer dipole, additive estimates only"
