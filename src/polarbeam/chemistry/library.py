@@ -17,6 +17,7 @@ from pathlib import Path
 from rdkit import Chem, rdBase
 
 from polarbeam._util.atomic import atomic_path
+from polarbeam._util.text import NOT_A_TABLE, looks_like_header
 from polarbeam.chemistry.additive import DEFAULT_SCHEME, SCHEMES, fast_estimates
 from polarbeam.chemistry.conformers import (
     DEFAULT_CHARGE_MODEL,
@@ -67,7 +68,8 @@ def _read_csv_records(path: Path) -> tuple[list[str], list[StructureRecord]]:
     missing = [c for c in ("compound", "smiles") if c not in header]
     if missing:
         raise InputError(
-            f"{path}: expected columns 'compound' and 'smiles', missing {missing}; found {header}"
+            f"{path}: expected columns 'compound' and 'smiles', missing {missing}; found "
+            + (str(header) if looks_like_header(header, ("compound", "smiles")) else NOT_A_TABLE)
         )
     reader.fieldnames = header
     extra_cols = [h for h in header if h not in ("compound", "smiles")]
