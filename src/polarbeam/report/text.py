@@ -1,11 +1,100 @@
-"""Text helpers of the renderers: Markdown escaping of user strings."""
+"""Text helpers of the renderers: user strings made safe for Markdown, terminals and spreadsheets.
+
+Compound names, titles, sources and messages come from the user's files. In ``report.md`` they
+must stay text (no link, image, HTML or table cell of their own); on a terminal they must not
+move the cursor, recolour or retitle it; in a CSV opened by a spreadsheet they must not become a
+formula. ``results.json`` keeps every string exactly as it was read.
+"""
 
 from __future__ import annotations
 
-__all__ = ["md_escape"]
+import re
+
+__all__ = [
+    "FORMULA_CHARS",
+    "formula_guard",
+    "guarded_frame",
+    "md_code",
+    "md_escape",
+    "terminal_safe",
+]
+
+#: Markdown punctuation escaped with a backslash: ``\`` and ``|`` (table cells), the link and
+#: image syntax ``[ ] ( ) !`` and code spans `````.  (Emphasis is harmless and left alone.)
+_MD_BACKSLASH = "\\|[]()!`"
+_MD_TABLE = str.maketrans(
+    {
+        **{c: "\\" + c for c in _MD_BACKSLASH},
+        "<": "&lt;",
+        ">": "&gt;",
+        "\n": " ",
+        "\r": " ",
+        "\t": " ",
+        "\v": " ",
+        "\f": " ",
+        "\x85": " ",
+        "\u2028": " ",
+        "\u2029": " ",
+    }
+)
 
 
 def md_escape(s: str) -> str:
-    """Escape a user string for Markdown table cells and text."""
-    out = str(s).replace("\\", "\\\\").replace("|", "\\|").replace("<", "&lt;").replace(">", "&gt;")
-    return out.replace("\n", " ")
+    """Escape a user string for Markdown table cells and text.
+
+    Links ``[x](u)``, images ``![x](u)``, code spans, table pipes and HTML ``<…>`` are escaped,
+    control characters are dropped (:func:`terminal_safe`), line breaks become spaces, and
+    ``://`` is written ``:&#47;/`` so a bare URL is not turned into a link.
+    """
+    return terminal_safe(s).translate(_MD_TABLE).replace("://", ":&#47;/")
+
+
+def md_code(s: str) -> str:
+    """A user string as one Markdown code span (a fence longer than any backtick run inside)."""
+    text = " ".join(terminal_safe(str(s)).splitlines())
+    runs = [len(m) for m in re.findall(r"`+", text)]
+    fence = "`" * (max(runs, default=0) + 1)
+    pad = " " if text.startswith("`") or text.endswith("`") else ""
+    return f"{fence}{pad}{text}{pad}{fence}"
+
+
+# ESC sequences (CSI … final byte, OSC … BEL/ST, any other two-byte ESC x), then the remaining
+# C0 controls, DEL, C1 controls and the Unicode bidirectional overrides/isolates.
+_ANSI = re.compile(
+    r"\x1b\[[0-?]*[ -/]*[@-~]?"
+    r"|\x1b\][^\x07\x1b]*(?:\x07|\x1b\\)?"
+    r"|\x1b[PX^_][^\x1b]*(?:\x1b\\)?"
+    r"|\x1b[\x20-\x7e]?"
+    r"|\x9b[0-?]*[ -/]*[@-~]?"
+    r"|\x9d[^\x07\x1b\x9c]*(?:\x07|\x9c|\x1b\\)?"
+)
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+_BREAKS = re.compile(r"[\t\n\r\u2028\u2029]")
+
+
+def terminal_safe(s: str) -> str:
+    """``s`` without escape sequences and control characters (tabs and line breaks → space)."""
+    text = _ANSI.sub("", str(s))
+    return _CONTROL.sub("", _BREAKS.sub(" ", text))
+
+
+#: First characters that make a spreadsheet read a CSV cell as a formula.
+FORMULA_CHARS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def formula_guard(value):
+    """A text cell starting with ``= + - @``, tab or CR gets a leading ``'`` (spreadsheets then
+    show it as text); anything else, numbers included, is returned unchanged."""
+    if isinstance(value, str) and value.startswith(FORMULA_CHARS):
+        return "'" + value
+    return value
+
+
+def guarded_frame(df):
+    """A copy of a DataFrame whose text cells get :func:`formula_guard` (for CSV output); numeric
+    cells, negative numbers included, are left exactly as they are."""
+    out = df.copy()
+    for c in out.columns:
+        if out[c].dtype == object:
+            out[c] = out[c].map(formula_guard)
+    return out
