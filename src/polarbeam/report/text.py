@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import re
 
+from pandas.api.types import is_bool_dtype, is_numeric_dtype
+
 __all__ = [
     "FORMULA_CHARS",
     "formula_guard",
@@ -95,6 +97,6 @@ def guarded_frame(df):
     cells, negative numbers included, are left exactly as they are."""
     out = df.copy()
     for c in out.columns:
-        if out[c].dtype == object:
+        if not (is_numeric_dtype(out[c]) or is_bool_dtype(out[c])):  # object or str columns
             out[c] = out[c].map(formula_guard)
     return out
