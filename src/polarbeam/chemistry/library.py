@@ -57,6 +57,22 @@ def _fmt(x: float) -> str:
     return "" if x is None or (isinstance(x, float) and not math.isfinite(x)) else f"{x:.6g}"
 
 
+_SCHEME_KEYS = ("ahp", "ahc", "bs", "llmr")
+#: When the default scheme has no value (llmr above CRIPPEN_MAX_ATOMS), the first of these that
+#: has one is the row's default (its name is in ``default_scheme``).
+_FALLBACK_ORDER = ("ahc", "ahp", "bs")
+
+
+def _default_index(vals, default_idx: int) -> int:
+    if math.isfinite(vals[default_idx]):
+        return default_idx
+    for key in _FALLBACK_ORDER:
+        i = _SCHEME_KEYS.index(key)
+        if math.isfinite(vals[i]):
+            return i
+    return default_idx
+
+
 def _read_csv_records(path: Path) -> tuple[list[str], list[StructureRecord]]:
     try:
         with path.open(newline="", encoding="utf-8") as fh:
@@ -158,15 +174,16 @@ def estimate_table(
                     s.error_A3(v) if math.isfinite(v) else math.nan
                     for s, v in zip(scheme_acc, vals, strict=True)
                 ]
+                used = _default_index(vals, default_idx)
                 row = [
                     rec.compound,
                     rec.smiles,
                     _fmt(m_avg),
                     _fmt(m_mono),
                     str(n_el),
-                    _fmt(vals[default_idx]),
-                    _fmt(errs[default_idx]),
-                    DEFAULT_SCHEME,
+                    _fmt(vals[used]),
+                    _fmt(errs[used]),
+                    _SCHEME_KEYS[used],
                 ]
                 for v, e in zip(vals, errs, strict=True):
                     row += [_fmt(v), _fmt(e)]
