@@ -14,6 +14,7 @@ __all__ = [
     "join_message",
     "looks_like_header",
     "safe_name",
+    "terminal_safe",
 ]
 
 _UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
@@ -69,3 +70,23 @@ def finite_or_none(x) -> float | None:
 def join_message(message: str, note: str) -> str:
     """Append ``note`` to a compound message (``"ok"`` or empty is replaced)."""
     return note if message in ("", "ok") else f"{message}; {note}"
+
+
+# ESC sequences (CSI … final byte, OSC … BEL/ST, any other two-byte ESC x), then the remaining
+# C0 controls, DEL, C1 controls and the Unicode bidirectional overrides/isolates.
+_ANSI = re.compile(
+    r"\x1b\[[0-?]*[ -/]*[@-~]?"
+    r"|\x1b\][^\x07\x1b]*(?:\x07|\x1b\\)?"
+    r"|\x1b[PX^_][^\x1b]*(?:\x1b\\)?"
+    r"|\x1b[\x20-\x7e]?"
+    r"|\x9b[0-?]*[ -/]*[@-~]?"
+    r"|\x9d[^\x07\x1b\x9c]*(?:\x07|\x9c|\x1b\\)?"
+)
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+_BREAKS = re.compile(r"[\t\n\r\u2028\u2029]")
+
+
+def terminal_safe(s: str) -> str:
+    """``s`` without escape sequences and control characters (tabs and line breaks → space)."""
+    text = _ANSI.sub("", str(s))
+    return _CONTROL.sub("", _BREAKS.sub(" ", text))

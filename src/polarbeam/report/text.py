@@ -12,6 +12,8 @@ import re
 
 from pandas.api.types import is_bool_dtype, is_numeric_dtype
 
+from polarbeam._util.text import terminal_safe
+
 __all__ = [
     "FORMULA_CHARS",
     "formula_guard",
@@ -58,26 +60,6 @@ def md_code(s: str) -> str:
     fence = "`" * (max(runs, default=0) + 1)
     pad = " " if text.startswith("`") or text.endswith("`") else ""
     return f"{fence}{pad}{text}{pad}{fence}"
-
-
-# ESC sequences (CSI … final byte, OSC … BEL/ST, any other two-byte ESC x), then the remaining
-# C0 controls, DEL, C1 controls and the Unicode bidirectional overrides/isolates.
-_ANSI = re.compile(
-    r"\x1b\[[0-?]*[ -/]*[@-~]?"
-    r"|\x1b\][^\x07\x1b]*(?:\x07|\x1b\\)?"
-    r"|\x1b[PX^_][^\x1b]*(?:\x1b\\)?"
-    r"|\x1b[\x20-\x7e]?"
-    r"|\x9b[0-?]*[ -/]*[@-~]?"
-    r"|\x9d[^\x07\x1b\x9c]*(?:\x07|\x9c|\x1b\\)?"
-)
-_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
-_BREAKS = re.compile(r"[\t\n\r\u2028\u2029]")
-
-
-def terminal_safe(s: str) -> str:
-    """``s`` without escape sequences and control characters (tabs and line breaks → space)."""
-    text = _ANSI.sub("", str(s))
-    return _CONTROL.sub("", _BREAKS.sub(" ", text))
 
 
 #: First characters that make a spreadsheet read a CSV cell as a formula.
