@@ -23,9 +23,11 @@ __all__ = [
     "terminal_safe",
 ]
 
-#: Markdown punctuation escaped with a backslash: ``\`` and ``|`` (table cells), the link and
-#: image syntax ``[ ] ( ) !`` and code spans `````.  (Emphasis is harmless and left alone.)
-_MD_BACKSLASH = "\\|[]()!`"
+#: Markdown punctuation escaped with a backslash: ``\`` and ``|`` (table cells), the brackets
+#: ``[ ]`` without which no link, image (``![x](u)``) or reference definition can form, and code
+#: spans `````.  Parentheses, ``!`` and emphasis are harmless once the brackets are escaped and
+#: are left as typed (so messages read the same in the raw file).
+_MD_BACKSLASH = "\\|[]`"
 _MD_TABLE = str.maketrans(
     {
         **{c: "\\" + c for c in _MD_BACKSLASH},
@@ -46,7 +48,8 @@ _MD_TABLE = str.maketrans(
 def md_escape(s: str) -> str:
     """Escape a user string for Markdown table cells and text.
 
-    Links ``[x](u)``, images ``![x](u)``, code spans, table pipes and HTML ``<…>`` are escaped,
+    Links ``[x](u)`` and images ``![x](u)`` (their brackets), code spans, table pipes and HTML
+    ``<…>`` are escaped,
     control characters are dropped (:func:`terminal_safe`), line breaks become spaces, and
     ``://`` is written ``:&#47;/`` so a bare URL is not turned into a link.
     """
