@@ -54,6 +54,18 @@ def _point(key: str, target):
     return build
 
 
+def _field_map(target):
+    """The clean campaign with a field-map deflector whose map is ``target(folder)``."""
+
+    def build(folder: Path) -> list[str]:
+        camp = small_campaign(folder)
+        edit(camp, 'model = "uniform"', 'model = "field-map"')
+        edit(camp, 'field_factor = "150000000 ± 7.5e+05 m^-3"', f'field_map = "{target(folder)}"')
+        return _analyze(folder, camp)
+
+    return build
+
+
 def _directory(folder: Path) -> Path:
     (folder / "adir").mkdir()
     return folder / "adir"
@@ -217,6 +229,21 @@ CASES = [
         2,
         r"\[data\] computed: .* is a symlink loop",
         _no_outputs,
+    ),
+    Case(
+        "field map is a directory",
+        _field_map(_directory),
+        2,
+        r"campaign\.toml \[deflector\] field_map: expected a regular file, found a directory",
+        _no_outputs,
+    ),
+    Case(
+        "field map outside the folder, not a table: content never echoed",
+        _field_map(_secret),
+        2,
+        rf"notes\.txt: {NOT_OURS}; expected columns z_m, field_factor_m3",
+        _no_outputs,
+        tags=("no-echo",),
     ),
     Case(
         "shifts outside the folder, a regular table: allowed",
