@@ -8,6 +8,7 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
+from polarbeam._util.text import NOT_A_TABLE, looks_like_header
 from polarbeam.errors import InputError, RowValueError
 
 __all__ = ["CELL_BLANKS", "Table", "csv_records", "read_table", "text_problem"]
@@ -143,6 +144,9 @@ def read_table(path: Path, required: tuple[str, ...], what: str = "table") -> Ta
         raise InputError(f"{path}: expected a header line with columns, found an empty file")
     header = tuple(h.strip() for h in parsed[0][1])
     missing = [c for c in required if c not in header]
+    if missing and not looks_like_header(header, required):
+        # a path in campaign.toml may name any file: never echo a line that is not ours
+        raise InputError(f"{path.name}: {NOT_A_TABLE}; expected columns {', '.join(required)}")
     if missing:
         raise InputError(
             f"{path.name}: missing column(s) {', '.join(missing)}; expected {', '.join(required)}, "

@@ -6,9 +6,42 @@ import hashlib
 import math
 import re
 
-__all__ = ["finite_or_none", "input_label", "join_message", "safe_name"]
+__all__ = [
+    "NOT_A_TABLE",
+    "finite_or_none",
+    "header_for_message",
+    "input_label",
+    "join_message",
+    "looks_like_header",
+    "safe_name",
+    "terminal_safe",
+]
 
 _UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
+
+#: What an error message says instead of the first line of a file that is not a table of ours
+#: (a path in campaign.toml may name any file: its content is never echoed).
+NOT_A_TABLE = "not a polarbeam table (first line not shown)"
+
+_HEADER_CELL = re.compile(r"[A-Za-z_][A-Za-z0-9_.]{0,63}")
+
+
+def looks_like_header(cells, known=()) -> bool:
+    """True when ``cells`` look like a CSV header of ours: every cell empty or a column-like name
+    (a letter or ``_``, then letters, digits, ``_`` or ``.``; at most 64 characters), and two or
+    more cells or one of the ``known`` column names."""
+    cells = [str(c).strip() for c in cells]
+    if not cells or not all(c == "" or _HEADER_CELL.fullmatch(c) for c in cells):
+        return False
+    return len(cells) >= 2 or any(c in known for c in cells)
+
+
+def header_for_message(cells, known=()) -> str:
+    """The header cells joined by ``", "`` for an error message when they look like a header
+    of ours (:func:`looks_like_header`), else :data:`NOT_A_TABLE`."""
+    if looks_like_header(cells, known):
+        return ", ".join(str(c).strip() for c in cells)
+    return NOT_A_TABLE
 
 
 def input_label(key: str) -> str:
@@ -37,3 +70,23 @@ def finite_or_none(x) -> float | None:
 def join_message(message: str, note: str) -> str:
     """Append ``note`` to a compound message (``"ok"`` or empty is replaced)."""
     return note if message in ("", "ok") else f"{message}; {note}"
+
+
+# ESC sequences (CSI … final byte, OSC … BEL/ST, any other two-byte ESC x), then the remaining
+# C0 controls, DEL, C1 controls and the Unicode bidirectional overrides/isolates.
+_ANSI = re.compile(
+    r"\x1b\[[0-?]*[ -/]*[@-~]?"
+    r"|\x1b\][^\x07\x1b]*(?:\x07|\x1b\\)?"
+    r"|\x1b[PX^_][^\x1b]*(?:\x1b\\)?"
+    r"|\x1b[\x20-\x7e]?"
+    r"|\x9b[0-?]*[ -/]*[@-~]?"
+    r"|\x9d[^\x07\x1b\x9c]*(?:\x07|\x9c|\x1b\\)?"
+)
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+_BREAKS = re.compile(r"[\t\n\r\u2028\u2029]")
+
+
+def terminal_safe(s: str) -> str:
+    """``s`` without escape sequences and control characters (tabs and line breaks → space)."""
+    text = _ANSI.sub("", str(s))
+    return _CONTROL.sub("", _BREAKS.sub(" ", text))

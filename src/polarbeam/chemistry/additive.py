@@ -36,6 +36,7 @@ from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
 from polarbeam.errors import InputError
 
 __all__ = [
+    "CRIPPEN_MAX_ATOMS",
     "DEFAULT_SCHEME",
     "LL_MR_FACTOR_A3",
     "MILLER_KEYS",
@@ -76,6 +77,12 @@ def lorentz_lorenz_factor_A3() -> float:
 
 #: 0.3964245 Å³ per cm³/mol (see :func:`lorentz_lorenz_factor_A3`).
 LL_MR_FACTOR_A3 = lorentz_lorenz_factor_A3()
+
+#: Largest molecule (atoms as parsed) for the llmr scheme.  RDKit's Wildman–Crippen typing stops
+#: after 1000 matches of one SMARTS pattern, so from 1000 atoms on the molar refractivity misses
+#: atoms (a 5,000-carbon chain gets the MR of about 1,000 carbons).  Above the limit llmr is NaN
+#: with the flag ``llmr:too-large``; the other schemes count atoms and stay linear in size.
+CRIPPEN_MAX_ATOMS = 999
 
 
 @dataclass(frozen=True)
@@ -430,6 +437,8 @@ def alpha_bs_A3(structure: str | Chem.Mol, compound: str = "?") -> float:
 def alpha_llmr_A3(structure: str | Chem.Mol, compound: str = "?") -> float:
     """Lorentz–Lorenz polarizability volume from RDKit's Wildman–Crippen MR, Å³: 3 MR/(4π N_A)."""
     mol = as_mol(structure, compound)
+    if mol.GetNumAtoms() > CRIPPEN_MAX_ATOMS:
+        return math.nan
     return LL_MR_FACTOR_A3 * float(Crippen.MolMR(mol))
 
 
@@ -468,6 +477,8 @@ def _flags(
         Chem.GetPeriodicTable().GetElementSymbol(z) for z in elements if z not in _CRIPPEN_ELEMENTS
     )
     flags.extend(f"llmr:outside-domain:{s}" for s in outside)
+    if mol.GetNumAtoms() > CRIPPEN_MAX_ATOMS:
+        flags.append("llmr:too-large")
     return tuple(flags)
 
 
@@ -528,7 +539,11 @@ def fast_estimates(
     ahp = _ahp(counts, mflags)
     ahc = _ahc(counts, n_el, mflags)
     bs, _ = _bs(elements)
-    llmr = LL_MR_FACTOR_A3 * rdMolDescriptors.CalcCrippenDescriptors(mol)[1]
+    llmr = (
+        LL_MR_FACTOR_A3 * rdMolDescriptors.CalcCrippenDescriptors(mol)[1]
+        if mol.GetNumAtoms() <= CRIPPEN_MAX_ATOMS
+        else math.nan
+    )
     return (
         float(Descriptors.MolWt(mol)),
         float(rdMolDescriptors.CalcExactMolWt(mol)),

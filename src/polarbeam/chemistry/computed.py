@@ -28,6 +28,7 @@ import pandas as pd
 
 from polarbeam._util.optional import require
 from polarbeam._util.tables import CELL_BLANKS, csv_records, text_problem
+from polarbeam._util.text import header_for_message
 from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
 from polarbeam.errors import InputError, RowValueError
 
@@ -244,7 +245,8 @@ def read_computed(path, failures: list[str] | None = None) -> pd.DataFrame:
             if missing:
                 raise InputError(
                     f"{path}: line {line}: expected columns {', '.join(_REQUIRED)}, "
-                    f"missing {', '.join(missing)} (found {', '.join(header)})"
+                    f"missing {', '.join(missing)} "
+                    f"(found {header_for_message(header, _REQUIRED)})"
                 )
             continue
         where = f"{path}: line {line}"

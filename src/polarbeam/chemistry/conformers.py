@@ -9,6 +9,7 @@ parameters), force-field partial charges, one dipole per distinct minimum, the B
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -19,15 +20,18 @@ from scipy import constants as _sc
 
 from polarbeam.chemistry.molecules import as_mol
 from polarbeam.constants import BOLTZMANN, DEBYE_SI
-from polarbeam.errors import CompoundError, InputError
+from polarbeam.errors import CalculationTooBigError, CompoundError, InputError
 
 __all__ = [
     "CHARGE_MODELS",
+    "CONFORMER_TIME_BUDGET_S",
     "DEFAULT_CHARGE_MODEL",
     "DEFAULT_SEED",
     "DIPOLE_SCALE",
+    "MAX_CONFORMER_HEAVY_ATOMS",
     "ChargeModel",
     "ConformerEnsemble",
+    "check_conformer_size",
     "check_temperature",
     "conformer_ensemble",
     "embed_one",
@@ -48,12 +52,30 @@ DIPOLE_SCALE: dict[str, float] = {"mmff": 0.766, "gasteiger": 1.0}
 #: Charge model used by default for the conformer dipoles; see docs/structure.md for why.
 DEFAULT_CHARGE_MODEL: ChargeModel = "mmff"
 
+#: Largest molecule (heavy atoms) whose conformers are searched.  ETKDG embedding and MMFF94
+#: minimisation grow steeply with size (10 conformers of a 60-carbon chain take about 20 s, a
+#: 100-carbon chain minutes); beyond this the dipole ensemble is refused with a one-line
+#: :class:`~polarbeam.errors.CalculationTooBigError` and callers keep the additive estimates.
+MAX_CONFORMER_HEAVY_ATOMS = 60
+
+#: Time budget (s) of one compound's conformer search: it is the ETKDG embedding's timeout, and
+#: the search is abandoned (CalculationTooBigError) when the embedding used it up.  MMFF94
+#: minimisation is capped by ``max_iters`` per conformer (and by the size limit above).
+CONFORMER_TIME_BUDGET_S = 60.0
+
 
 def embed_one(mol: Chem.Mol, seed: int, compound: str) -> Chem.Mol:
-    """One ETKDG (v3) conformer with hydrogens, MMFF94-optimised (UFF when MMFF94 lacks them)."""
+    """One ETKDG (v3) conformer with hydrogens, MMFF94-optimised (UFF when MMFF94 lacks them).
+
+    Bounded like :func:`conformer_ensemble`: molecules above :data:`MAX_CONFORMER_HEAVY_ATOMS`
+    are refused (:class:`CalculationTooBigError`) and the embedding times out after
+    :data:`CONFORMER_TIME_BUDGET_S`.
+    """
+    check_conformer_size(mol, compound)
     mh = Chem.AddHs(mol)
     params = AllChem.ETKDGv3()
     params.randomSeed = int(seed)
+    params.timeout = math.ceil(CONFORMER_TIME_BUDGET_S)
     if AllChem.EmbedMolecule(mh, params) != 0:
         raise CompoundError(f"compound {compound!r}: RDKit could not embed a 3-D conformer")
     if AllChem.MMFFHasAllMoleculeParams(mh):
@@ -130,6 +152,18 @@ class ConformerEnsemble:
         }
 
 
+def check_conformer_size(
+    mol: Chem.Mol, compound: str = "?", max_heavy_atoms: int = MAX_CONFORMER_HEAVY_ATOMS
+) -> None:
+    """Raise :class:`CalculationTooBigError` when ``mol`` has more heavy atoms than the limit."""
+    n_heavy = mol.GetNumHeavyAtoms()
+    if n_heavy > max_heavy_atoms:
+        raise CalculationTooBigError(
+            f"compound {compound!r}: {n_heavy} heavy atoms, above the conformer limit of "
+            f"{max_heavy_atoms}; no conformer dipole, additive estimates only"
+        )
+
+
 def check_temperature(temperature_K: float) -> None:
     """Raise :class:`InputError` unless ``temperature_K`` is a finite number > 0."""
     if not (isinstance(temperature_K, int | float) and math.isfinite(temperature_K)):
@@ -156,6 +190,8 @@ def conformer_ensemble(
     dipole_scale: float | None = None,
     max_iters: int = 2000,
     dedupe_rms_A: float = 0.1,
+    max_heavy_atoms: int = MAX_CONFORMER_HEAVY_ATOMS,
+    time_budget_s: float = CONFORMER_TIME_BUDGET_S,
 ) -> ConformerEnsemble:
     """Embed, optimise and take the dipole of every conformer.
 
@@ -176,11 +212,18 @@ def conformer_ensemble(
         Conformers whose heavy-atom RMSD after symmetry-aware alignment is below this, whose
         energies agree within 0.01 kcal/mol and whose aligned dipole vectors agree within 0.05 D
         are the same minimum and are counted once.
+    max_heavy_atoms
+        Size limit (:data:`MAX_CONFORMER_HEAVY_ATOMS`): larger molecules are refused.
+    time_budget_s
+        Time budget of the search (:data:`CONFORMER_TIME_BUDGET_S`): the ETKDG embedding times
+        out after it, and the search is refused when the embedding used it all.
 
     Raises
     ------
     CompoundError
         Unparsable SMILES, or no conformer could be embedded.
+    CalculationTooBigError
+        The molecule is above the size limit, or the embedding used the whole time budget.
     """
     if charge_model not in CHARGE_MODELS:
         raise InputError(
@@ -189,16 +232,29 @@ def conformer_ensemble(
     if not (isinstance(n_conformers, int) and n_conformers >= 1):
         raise InputError(f"n_conformers must be an integer >= 1, found {n_conformers!r}")
     mol = as_mol(structure, compound)
+    check_conformer_size(mol, compound, max_heavy_atoms)
+    start = time.monotonic()
     smiles = Chem.MolToSmiles(Chem.RemoveHs(mol))
     mh = Chem.AddHs(mol)
     params = AllChem.ETKDGv3()
     params.randomSeed = int(seed)
     params.numThreads = 1
+    params.timeout = max(1, math.ceil(time_budget_s))
     with rdBase.BlockLogs():
-        cids = list(AllChem.EmbedMultipleConfs(mh, numConfs=n_conformers, params=params))
-        if not cids:
+        # a timed-out embedding returns [-1]: only ids >= 0 are conformers
+        cids = [c for c in AllChem.EmbedMultipleConfs(mh, n_conformers, params=params) if c >= 0]
+        left = time_budget_s - (time.monotonic() - start)
+        if not cids and left >= 1.0:
             params.useRandomCoords = True
-            cids = list(AllChem.EmbedMultipleConfs(mh, numConfs=n_conformers, params=params))
+            params.timeout = math.ceil(left)
+            cids = [
+                c for c in AllChem.EmbedMultipleConfs(mh, n_conformers, params=params) if c >= 0
+            ]
+    if time.monotonic() - start >= 0.95 * time_budget_s:
+        raise CalculationTooBigError(
+            f"compound {compound!r}: the conformer embedding used the whole time budget of "
+            f"{time_budget_s:g} s; no conformer dipole, additive estimates only"
+        )
     if not cids:
         raise CompoundError(f"compound {compound!r}: RDKit could not embed a 3-D conformer")
     flags: list[str] = []

@@ -32,7 +32,7 @@ from polarbeam.chemistry.conformers import (
 )
 from polarbeam.chemistry.molecules import as_mol
 from polarbeam.constants import ANGSTROM3_SI, DEBYE_SI
-from polarbeam.errors import InputError
+from polarbeam.errors import CalculationTooBigError, InputError
 
 __all__ = ["StructureEstimate", "estimate"]
 
@@ -172,7 +172,9 @@ def estimate(
     compound
         Name used in messages.
     dipoles
-        Also build the conformer ensemble (slow: seconds per molecule).
+        Also build the conformer ensemble (slow: seconds per molecule).  Above
+        :data:`~polarbeam.chemistry.conformers.MAX_CONFORMER_HEAVY_ATOMS` heavy atoms, or when
+        the embedding exceeds its time budget, no ensemble is built and ``flags`` says why.
     conformers, seed, charge_model
         Passed to :func:`conformer_ensemble`.
     temperature_K
@@ -196,9 +198,13 @@ def estimate(
     ens = None
     if dipoles:
         check_temperature(temperature_K)
-        ens = conformer_ensemble(
-            mol, compound, n_conformers=conformers, seed=seed, charge_model=charge_model
-        )
+        try:
+            ens = conformer_ensemble(
+                mol, compound, n_conformers=conformers, seed=seed, charge_model=charge_model
+            )
+        except CalculationTooBigError as exc:
+            # bounded work (size or time): keep the additive estimates and say why
+            flags = (*flags, str(exc))
     return StructureEstimate(
         compound=compound,
         smiles=smiles,

@@ -18,6 +18,7 @@ from rdkit import Chem, rdBase
 
 from polarbeam._util.atomic import atomic_path
 from polarbeam._util.tables import CELL_BLANKS, csv_records, text_problem
+from polarbeam._util.text import NOT_A_TABLE, looks_like_header
 from polarbeam.chemistry.additive import DEFAULT_SCHEME, SCHEMES, fast_estimates
 from polarbeam.chemistry.conformers import (
     DEFAULT_CHARGE_MODEL,
@@ -27,7 +28,7 @@ from polarbeam.chemistry.conformers import (
     conformer_ensemble,
 )
 from polarbeam.chemistry.molecules import StructureRecord, read_sdf
-from polarbeam.errors import CompoundError, InputError
+from polarbeam.errors import CalculationTooBigError, CompoundError, InputError
 
 __all__ = ["estimate_table"]
 
@@ -57,6 +58,22 @@ def _fmt(x: float) -> str:
     return "" if x is None or (isinstance(x, float) and not math.isfinite(x)) else f"{x:.6g}"
 
 
+_SCHEME_KEYS = ("ahp", "ahc", "bs", "llmr")
+#: When the default scheme has no value (llmr above CRIPPEN_MAX_ATOMS), the first of these that
+#: has one is the row's default (its name is in ``default_scheme``).
+_FALLBACK_ORDER = ("ahc", "ahp", "bs")
+
+
+def _default_index(vals, default_idx: int) -> int:
+    if math.isfinite(vals[default_idx]):
+        return default_idx
+    for key in _FALLBACK_ORDER:
+        i = _SCHEME_KEYS.index(key)
+        if math.isfinite(vals[i]):
+            return i
+    return default_idx
+
+
 def _read_csv_records(path: Path) -> tuple[list[str], list[StructureRecord]]:
     try:
         with path.open(newline="", encoding="utf-8") as fh:
@@ -71,7 +88,8 @@ def _read_csv_records(path: Path) -> tuple[list[str], list[StructureRecord]]:
     missing = [c for c in ("compound", "smiles") if c not in header]
     if missing:
         raise InputError(
-            f"{path}: expected columns 'compound' and 'smiles', missing {missing}; found {header}"
+            f"{path}: expected columns 'compound' and 'smiles', missing {missing}; found "
+            + (str(header) if looks_like_header(header, ("compound", "smiles")) else NOT_A_TABLE)
         )
     rows = [(n, dict(zip(header, cells, strict=False))) for n, cells in records[1:]]
     extra_cols = [h for h in header if h not in ("compound", "smiles")]
@@ -105,7 +123,9 @@ def estimate_table(
 
     One output row per input row: the input's other columns are carried through after the
     estimate columns; ``status`` is ``ok`` or ``failed`` and ``message`` says why a row failed
-    (a bad row never stops the others).  The file is written atomically (temporary file in the
+    (a bad row never stops the others) or, on an ``ok`` row, why it has no dipole (the molecule
+    is above the conformer size limit or its embedding ran out of time: the additive estimates
+    stand, ``n_conformers`` is 0).  The file is written atomically (temporary file in the
     output directory, then :func:`os.replace`).
 
     Returns
@@ -158,34 +178,42 @@ def estimate_table(
                     s.error_A3(v) if math.isfinite(v) else math.nan
                     for s, v in zip(scheme_acc, vals, strict=True)
                 ]
+                used = _default_index(vals, default_idx)
                 row = [
                     rec.compound,
                     rec.smiles,
                     _fmt(m_avg),
                     _fmt(m_mono),
                     str(n_el),
-                    _fmt(vals[default_idx]),
-                    _fmt(errs[default_idx]),
-                    DEFAULT_SCHEME,
+                    _fmt(vals[used]),
+                    _fmt(errs[used]),
+                    _SCHEME_KEYS[used],
                 ]
                 for v, e in zip(vals, errs, strict=True):
                     row += [_fmt(v), _fmt(e)]
                 row.append(";".join(flags))
+                note = ""
                 if dipoles:
-                    ens = conformer_ensemble(
-                        rec.mol,
-                        rec.compound,
-                        n_conformers=conformers,
-                        seed=seed,
-                        charge_model=charge_model,
-                    )
-                    row += [
-                        _fmt(ens.rms_dipole_D(temperature_K)),
-                        str(len(ens.energies_kcal_mol)),
-                        ens.charge_model,
-                        _fmt(float(temperature_K)),
-                    ]
-                rows.append([*row, "ok", "", *tail])
+                    try:
+                        ens = conformer_ensemble(
+                            rec.mol,
+                            rec.compound,
+                            n_conformers=conformers,
+                            seed=seed,
+                            charge_model=charge_model,
+                        )
+                    except CalculationTooBigError as exc:
+                        # bounded work: the additive estimates stand, the row says why no dipole
+                        note = str(exc)
+                        row += ["", "0", "", _fmt(float(temperature_K))]
+                    else:
+                        row += [
+                            _fmt(ens.rms_dipole_D(temperature_K)),
+                            str(len(ens.energies_kcal_mol)),
+                            ens.charge_model,
+                            _fmt(float(temperature_K)),
+                        ]
+                rows.append([*row, "ok", note, *tail])
                 n_ok += 1
             except (CompoundError, ValueError, RuntimeError) as exc:
                 msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__

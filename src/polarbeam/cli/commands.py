@@ -15,6 +15,7 @@ from pathlib import Path
 import typer
 
 import polarbeam as pb  # the public API, loaded on first use (a fast `--help`)
+from polarbeam._util.text import terminal_safe
 from polarbeam.errors import PolarbeamError
 
 __all__ = ["app", "main"]
@@ -134,7 +135,7 @@ def plan(
     typer.echo(f"plan written to {out}/ (plan.csv, plan.json, plan.md, plots, rehearsal/)")
     for c in result.compounds:
         if c.status == "failed":
-            typer.echo(f"failed: {c.compound}: {c.message}", err=True)
+            typer.echo(f"failed: {terminal_safe(c.compound)}: {terminal_safe(c.message)}", err=True)
     raise typer.Exit(result.exit_code)
 
 
@@ -197,7 +198,9 @@ def compute(
         d4=d4,
         progress=progress,
         on_start=lambda name: typer.echo(f"{name}: {method}/{basis}", err=True),
-        on_failure=lambda name, message: typer.echo(f"failed: {name}: {message}", err=True),
+        on_failure=lambda name, message: typer.echo(
+            f"failed: {terminal_safe(name)}: {terminal_safe(message)}", err=True
+        ),
     )
     if results:
         pb.qchem.write_computed(results, out)

@@ -43,6 +43,7 @@ from polarbeam.contract.numerical import (
     numerical_error_inputs,
     numerical_stated_inputs,
 )
+from polarbeam.contract.paths import resolve_data_file
 from polarbeam.contract.plausibility import input_warnings
 from polarbeam.contract.recoil import load_recoil
 from polarbeam.contract.scans import reduce_scans_file, series_from_reduction
@@ -441,7 +442,7 @@ def data_path(base: Path, doc: dict, key: str, fname: str, required=True) -> Pat
     val = data[key]
     if not isinstance(val, str):
         raise InputError(f"{fname} [data] {key}: expected a file path string, found {val!r}")
-    return (base / val).resolve()
+    return resolve_data_file(base, val, f"{fname} [data] {key}")
 
 
 def _optional_measured(
@@ -625,12 +626,13 @@ def deflector_files(defl: dict, base: Path, fname: str, layout: str, model: str)
         fm = defl["field_map"]
         if not isinstance(fm, str):
             raise InputError(f"{fname} [deflector] field_map: expected a file path, found {fm!r}")
-        field_map = _read_profile((base / fm).resolve(), ("z_m", "field_factor_m3"), "field map")
+        fm_path = resolve_data_file(base, fm, f"{fname} [deflector] field_map")
+        field_map = _read_profile(fm_path, ("z_m", "field_factor_m3"), "field map")
     if "waveform" in defl:
         wf = defl["waveform"]
         if not isinstance(wf, str):
             raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
-        waveform = _read_waveform((base / wf).resolve())
+        waveform = _read_waveform(resolve_data_file(base, wf, f"{fname} [deflector] waveform"))
     return field_map, waveform
 
 

@@ -15,6 +15,7 @@ from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
+from polarbeam.contract.paths import resolve_data_file
 from polarbeam.errors import InputError, QuantityError
 from polarbeam.instrument import fields as fs
 from polarbeam.instrument.numerical import (
@@ -219,7 +220,7 @@ def _parse_electrodes(raw, fname: str, stated: dict[str, Measured]) -> tuple[Ele
 def _fringe_map(raw, fname: str, base: Path | None):
     if not isinstance(raw, str):
         raise InputError(f"{_where(fname, 'fringe_map')}: expected a file path, found {raw!r}")
-    path = (Path(base or ".") / raw).resolve()
+    path = resolve_data_file(Path(base or "."), raw, _where(fname, "fringe_map"))
     if not path.is_file():
         raise InputError(f"[deflector] fringe_map: file not found: {path}")
     z, g = fs.read_fringe_map_csv(path)

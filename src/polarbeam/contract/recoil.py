@@ -17,6 +17,7 @@ from polarbeam._util.tables import CELL_BLANKS, read_table
 from polarbeam.beam.photon_recoil import (
     gaussian_effective_area,
 )
+from polarbeam.contract.paths import resolve_data_file
 from polarbeam.errors import CompoundError, InputError
 from polarbeam.quantities import Measured, parse_quantity
 
@@ -321,7 +322,7 @@ def load_recoil(
     rel = data["recoil"]
     if not isinstance(rel, str):
         raise InputError(f"{fname} [data] recoil: expected a file path string, found {rel!r}")
-    path = (campaign_path.parent / rel).resolve()
+    path = resolve_data_file(campaign_path.parent, rel, f"{fname} [data] recoil")
     timing = layout == "time-domain"
     required = tuple(c for c in RECOIL_COLUMNS if not (timing and c in _VELOCITY_COLUMNS))
     table = read_table(path, required, "recoil")

@@ -13,6 +13,7 @@ from polarbeam._version import __version__
 from polarbeam.contract.plan import PlanSettings
 from polarbeam.planning.model import SeriesModel
 from polarbeam.planning.precision import DebyePrecision, LadderPrecision
+from polarbeam.report.text import md_code, md_escape
 
 #: What a plan adds to the one caution text.
 PLAN_CAUTION = (
@@ -219,9 +220,9 @@ def _fmt(x, spec: str = ".3g") -> str:
 def render_markdown(p: CampaignPlan) -> str:
     st = p.settings
     lines = [
-        f"# Plan: {p.campaign.title}",
+        f"# Plan: {md_escape(p.campaign.title)}",
         "",
-        f"Campaign `{p.campaign.path.name}`, layout {p.campaign.layout}, deflector "
+        f"Campaign {md_code(p.campaign.path.name)}, layout {p.campaign.layout}, deflector "
         f"{p.campaign.model}.  Coupling C = {p.coupling:.6g} (stated-input scale error "
         f"σ_C/C = {p.coupling_rel_err:.3%}).  Scan {st.scan_time:g} s + {st.scan_dead_time:g} s "
         f"dead time, {st.bins} bins, zero-field visibility {st.visibility:g}, floor "
@@ -239,7 +240,7 @@ def render_markdown(p: CampaignPlan) -> str:
             )
             tt = s.beam_time_target_s
             lines.append(
-                f"| {c.compound} | {s.temperature_K:g} | {s.alpha_eff_pred_A3:.2f} ± "
+                f"| {md_escape(c.compound)} | {s.temperature_K:g} | {s.alpha_eff_pred_A3:.2f} ± "
                 f"{s.alpha_eff_pred_err_A3:.2f} | {s.sigma_total_A3:.3g} | "
                 f"{s.sigma_stat_A3:.3g} | {even_tot:.3g} | {s.voltage_max_V:.4g} | "
                 f"{s.voltage_max_reason} | {', '.join(f'{v:.4g}' for v in s.ladder.levels_V)} | "
@@ -254,10 +255,14 @@ def render_markdown(p: CampaignPlan) -> str:
     ]
     for c in p.compounds:
         if c.status == "failed":
-            lines.append(f"| {c.compound} | — | — | — | — | — | — | — | — | failed: {c.message} |")
+            lines.append(
+                f"| {md_escape(c.compound)} | — | — | — | — | — | — | — | — "
+                f"| failed: {md_escape(c.message)} |"
+            )
             continue
         lines.append(
-            f"| {c.compound} | {c.source} | {c.mass_u:.3f} | {_fmt(c.alpha_pred_A3, '.2f')} | "
+            f"| {md_escape(c.compound)} | {md_escape(c.source)} | {c.mass_u:.3f} | "
+            f"{_fmt(c.alpha_pred_A3, '.2f')} | "
             f"{_fmt(c.dipole_pred_D, '.2f')} | "
             f"{_fmt(c.debye.sigma_alpha_A3 if c.debye else None)} | {_fmt(c.sigma_dipole_D)} | "
             f"{_fmt(c.dipole_limit_D)} | {', '.join(f'{s.temperature_K:g}' for s in c.series)} "
@@ -274,7 +279,8 @@ def render_markdown(p: CampaignPlan) -> str:
         ]
         for name, r in sets:
             lines.append(
-                f"| {name} | {r['label']} | {', '.join(f'{t:.0f}' for t in r['temperatures_K'])} "
+                f"| {md_escape(name)} | {md_escape(r['label'])} | "
+                f"{', '.join(f'{t:.0f}' for t in r['temperatures_K'])} "
                 f"| {_fmt(r['sigma_alpha_A3'])} | {_fmt(r['sigma_mu2_D2'])} | "
                 f"{_fmt(r['corr'], '.2f')} |"
             )
@@ -284,6 +290,6 @@ def render_markdown(p: CampaignPlan) -> str:
         for w in c.warnings
     ]
     if notes or p.notes:
-        lines += ["", "Notes:", ""] + [f"* {n}" for n in (*p.notes, *notes)]
+        lines += ["", "Notes:", ""] + [f"* {md_escape(n)}" for n in (*p.notes, *notes)]
     lines += ["", "## Safety", "", *[f"- {c}" for c in (*CAUTIONS, PLAN_CAUTION)], ""]
     return "\n".join(lines)

@@ -22,7 +22,7 @@ from polarbeam.report.recoil import (
     render_recoil_only,
     write_recoil_results,
 )
-from polarbeam.report.text import md_escape
+from polarbeam.report.text import guarded_frame, md_code, md_escape, terminal_safe
 from polarbeam.results.objects import CampaignResult
 from polarbeam.uncertain import variance_budget
 
@@ -67,7 +67,7 @@ def _csv(df, first: tuple[str, ...]) -> str:
         if c not in df.columns:
             df[c] = None
     buf = io.StringIO()
-    df[cols].to_csv(buf, index=False, float_format="%.10g", lineterminator="\n")
+    guarded_frame(df[cols]).to_csv(buf, index=False, float_format="%.10g", lineterminator="\n")
     return buf.getvalue()
 
 
@@ -101,7 +101,7 @@ def render_markdown(result: CampaignResult) -> str:
         f"# {md_escape(result.title)}",
         "",
         f"polarbeam {result.version} · layout `{result.layout}` · deflector `{result.model}` · "
-        f"source `{md_escape(result.source)}`",
+        f"source {md_code(result.source)}",
         "",
         "## Summary",
         "",
@@ -280,10 +280,11 @@ def _crosscheck_lines(c) -> list[str]:
 def render_terminal(result: CampaignResult) -> str:
     """A compact fixed-width table for the terminal."""
     recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
+    title = terminal_safe(result.title)
     if recoil is not None and not result.compounds:
-        return "\n".join([result.title, *recoil_terminal_lines(recoil)])
+        return "\n".join([title, *recoil_terminal_lines(recoil)])
     head = f"{'compound':<24} {'α (Å³)':>18} {'μ (D)':>16}  status"
-    out = [result.title, head, "-" * len(head)]
+    out = [title, head, "-" * len(head)]
     for c in result.compounds:
         r = c.row()
         a = value_error_text(r["alpha_A3"], r["alpha_err_A3"])
@@ -293,8 +294,9 @@ def render_terminal(result: CampaignResult) -> str:
             d = f"< {r['dipole_upper_D']:.2f}"
         else:
             d = "—"
-        name = c.compound if len(c.compound) <= 24 else c.compound[:23] + "…"
-        out.append(f"{name:<24} {a:>18} {d:>16}  {c.status}")
+        name = terminal_safe(c.compound)
+        name = name if len(name) <= 24 else name[:23] + "…"
+        out.append(f"{name:<24} {a:>18} {d:>16}  {terminal_safe(c.status)}")
     if recoil is not None:
         out += ["", *recoil_terminal_lines(recoil)]
     return "\n".join(out)

@@ -9,7 +9,7 @@ from polarbeam._util.atomic import write_bytes_atomic, write_text_atomic
 from polarbeam._util.cautions import CAUTIONS
 from polarbeam._util.optional import has
 from polarbeam.quantities import value_error_text
-from polarbeam.report.text import md_escape
+from polarbeam.report.text import guarded_frame, md_code, md_escape, terminal_safe
 from polarbeam.results.recoil import (
     RecoilCampaignResult,
     RecoilResult,
@@ -33,8 +33,7 @@ def render_recoil_only(result: RecoilCampaignResult) -> str:
     lines = [
         f"# {md_escape(result.title)}",
         "",
-        f"polarbeam {result.version} · layout `{result.layout}` · "
-        f"source `{md_escape(result.source)}`",
+        f"polarbeam {result.version} · layout `{result.layout}` · source {md_code(result.source)}",
         "",
     ]
     for note in result.notes:
@@ -53,7 +52,7 @@ def write_recoil_results(recoil: RecoilResult, out: str | Path) -> list[str]:
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
     buf = io.StringIO()
-    recoil.table.to_csv(buf, index=False, float_format="%.10g", lineterminator="\n")
+    guarded_frame(recoil.table).to_csv(buf, index=False, float_format="%.10g", lineterminator="\n")
     write_text_atomic(out / "recoil.csv", buf.getvalue())
     written = ["recoil.csv"]
     if len(recoil.lasers) >= 2 and any(len(c.fits) >= 1 for c in recoil.compounds):
@@ -105,7 +104,7 @@ def recoil_markdown_lines(recoil: RecoilResult) -> list[str]:
     out = [
         "## Photon-recoil absorption cross-sections",
         "",
-        f"source `{md_escape(recoil.source)}` · lasers: "
+        f"source {md_code(recoil.source)} · lasers: "
         + ", ".join(
             f"{md_escape(la.name)} ({la.wavelength.value * 1e9:g} nm)" for la in recoil.lasers
         ),
@@ -193,12 +192,14 @@ def recoil_terminal_lines(recoil: RecoilResult) -> list[str]:
     head = f"{'compound':<20} {'laser':<10} {'λ (nm)':>8} {'σ (1e-16 cm²)':>18}  status"
     out = ["photon-recoil cross-sections", head, "-" * len(head)]
     for c in recoil.compounds:
-        name = c.compound if len(c.compound) <= 20 else c.compound[:19] + "…"
+        name = terminal_safe(c.compound)
+        name = name if len(name) <= 20 else name[:19] + "…"
         if not c.fits:
             out.append(f"{name:<20} {'—':<10} {'—':>8} {'—':>18}  {c.status}")
         for f in c.fits:
             s = value_error_text(f.cross_section_cm2 / 1e-16, f.cross_section_err_cm2 / 1e-16)
-            lname = f.laser if len(f.laser) <= 10 else f.laser[:9] + "…"
+            lname = terminal_safe(f.laser)
+            lname = lname if len(lname) <= 10 else lname[:9] + "…"
             out.append(f"{name:<20} {lname:<10} {f.wavelength_m * 1e9:>8g} {s:>18}  {c.status}")
     return out
 

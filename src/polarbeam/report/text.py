@@ -1,11 +1,87 @@
-"""Text helpers of the renderers: Markdown escaping of user strings."""
+"""Text helpers of the renderers: user strings made safe for Markdown, terminals and spreadsheets.
+
+Compound names, titles, sources and messages come from the user's files. In ``report.md`` they
+must stay text (no link, image, HTML or table cell of their own); on a terminal they must not
+move the cursor, recolour or retitle it; in a CSV opened by a spreadsheet they must not become a
+formula. ``results.json`` keeps every string exactly as it was read.
+"""
 
 from __future__ import annotations
 
-__all__ = ["md_escape"]
+import re
+
+from pandas.api.types import is_bool_dtype, is_numeric_dtype
+
+from polarbeam._util.text import terminal_safe
+
+__all__ = [
+    "FORMULA_CHARS",
+    "formula_guard",
+    "guarded_frame",
+    "md_code",
+    "md_escape",
+    "terminal_safe",
+]
+
+#: Markdown punctuation escaped with a backslash: ``\`` and ``|`` (table cells), the brackets
+#: ``[ ]`` without which no link, image (``![x](u)``) or reference definition can form, and code
+#: spans `````.  Parentheses, ``!`` and emphasis are harmless once the brackets are escaped and
+#: are left as typed (so messages read the same in the raw file).
+_MD_BACKSLASH = "\\|[]`"
+_MD_TABLE = str.maketrans(
+    {
+        **{c: "\\" + c for c in _MD_BACKSLASH},
+        "<": "&lt;",
+        ">": "&gt;",
+        "\n": " ",
+        "\r": " ",
+        "\t": " ",
+        "\v": " ",
+        "\f": " ",
+        "\x85": " ",
+        "\u2028": " ",
+        "\u2029": " ",
+    }
+)
 
 
 def md_escape(s: str) -> str:
-    """Escape a user string for Markdown table cells and text."""
-    out = str(s).replace("\\", "\\\\").replace("|", "\\|").replace("<", "&lt;").replace(">", "&gt;")
-    return out.replace("\n", " ")
+    """Escape a user string for Markdown table cells and text.
+
+    Links ``[x](u)`` and images ``![x](u)`` (their brackets), code spans, table pipes and HTML
+    ``<…>`` are escaped,
+    control characters are dropped (:func:`terminal_safe`), line breaks become spaces, and
+    ``://`` is written ``:&#47;/`` so a bare URL is not turned into a link.
+    """
+    return terminal_safe(s).translate(_MD_TABLE).replace("://", ":&#47;/")
+
+
+def md_code(s: str) -> str:
+    """A user string as one Markdown code span (a fence longer than any backtick run inside)."""
+    text = " ".join(terminal_safe(str(s)).splitlines())
+    runs = [len(m) for m in re.findall(r"`+", text)]
+    fence = "`" * (max(runs, default=0) + 1)
+    pad = " " if text.startswith("`") or text.endswith("`") else ""
+    return f"{fence}{pad}{text}{pad}{fence}"
+
+
+#: First characters that make a spreadsheet read a CSV cell as a formula.
+FORMULA_CHARS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def formula_guard(value):
+    """A text cell starting with ``= + - @``, tab or CR gets a leading ``'`` (spreadsheets then
+    show it as text); anything else, numbers included, is returned unchanged."""
+    if isinstance(value, str) and value.startswith(FORMULA_CHARS):
+        return "'" + value
+    return value
+
+
+def guarded_frame(df):
+    """A copy of a DataFrame whose text cells get :func:`formula_guard` (for CSV output); numeric
+    cells, negative numbers included, are left exactly as they are."""
+    out = df.copy()
+    for c in out.columns:
+        if not (is_numeric_dtype(out[c]) or is_bool_dtype(out[c])):  # object or str columns
+            out[c] = out[c].map(formula_guard)
+    return out

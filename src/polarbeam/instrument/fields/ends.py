@@ -19,6 +19,7 @@ import numpy as np
 from scipy.integrate import trapezoid as _trapezoid  # np.trapezoid needs numpy >= 2
 
 from polarbeam._util.tables import csv_records, text_problem
+from polarbeam._util.text import NOT_A_TABLE, looks_like_header
 from polarbeam.errors import InputError
 from polarbeam.instrument.fields.checks import finite, fmt_mm
 from polarbeam.instrument.fields.geometry import CrossSection
@@ -304,7 +305,8 @@ def read_fringe_map_csv(path: str | Path) -> tuple[np.ndarray, np.ndarray]:
         raise InputError(f"{p}: empty fringe map, expected header 'z_m,g_rel'")
     header = [c.strip() for c in rows[0]]
     if "g_rel" not in header or not ({"z_m", "z_mm"} & set(header)):
-        raise InputError(f"{p}: expected columns 'z_m' (or 'z_mm') and 'g_rel', found {header}")
+        found = header if looks_like_header(header, ("z_m", "z_mm", "g_rel")) else NOT_A_TABLE
+        raise InputError(f"{p}: expected columns 'z_m' (or 'z_mm') and 'g_rel', found {found}")
     zcol = "z_m" if "z_m" in header else "z_mm"
     scale = 1.0 if zcol == "z_m" else 1e-3
     iz, ig = header.index(zcol), header.index("g_rel")
