@@ -6,9 +6,14 @@ import hashlib
 import math
 import re
 
+from pandas.api.types import is_bool_dtype, is_numeric_dtype
+
 __all__ = [
+    "FORMULA_CHARS",
     "NOT_A_TABLE",
     "finite_or_none",
+    "formula_guard",
+    "guarded_frame",
     "header_for_message",
     "input_label",
     "join_message",
@@ -90,3 +95,25 @@ def terminal_safe(s: str) -> str:
     """``s`` without escape sequences and control characters (tabs and line breaks → space)."""
     text = _ANSI.sub("", str(s))
     return _CONTROL.sub("", _BREAKS.sub(" ", text))
+
+
+#: First characters that make a spreadsheet read a CSV cell as a formula.
+FORMULA_CHARS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def formula_guard(value):
+    """A text cell starting with ``= + - @``, tab or CR gets a leading ``'`` (spreadsheets then
+    show it as text); anything else, numbers included, is returned unchanged."""
+    if isinstance(value, str) and value.startswith(FORMULA_CHARS):
+        return "'" + value
+    return value
+
+
+def guarded_frame(df):
+    """A copy of a DataFrame whose text cells get :func:`formula_guard` (for CSV output); numeric
+    cells, negative numbers included, are left exactly as they are."""
+    out = df.copy()
+    for c in out.columns:
+        if not (is_numeric_dtype(out[c]) or is_bool_dtype(out[c])):  # object or str columns
+            out[c] = out[c].map(formula_guard)
+    return out

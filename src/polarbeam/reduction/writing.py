@@ -12,6 +12,7 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam._util.atomic import atomic_path
+from polarbeam._util.text import guarded_frame
 from polarbeam.errors import InputError
 from polarbeam.reduction.result import ReducedPhases
 
@@ -40,7 +41,7 @@ def write_phases(
     suffix = path.suffix.lower()
     if suffix == ".csv":
         with atomic_path(path) as tmp:
-            reduced.table.to_csv(tmp, index=False)
+            guarded_frame(reduced.table).to_csv(tmp, index=False)  # spreadsheet-safe names
     elif suffix in (".parquet", ".pq"):
         with atomic_path(path) as tmp:
             reduced.table.to_parquet(tmp, index=False)

@@ -10,9 +10,7 @@ from __future__ import annotations
 
 import re
 
-from pandas.api.types import is_bool_dtype, is_numeric_dtype
-
-from polarbeam._util.text import terminal_safe
+from polarbeam._util.text import FORMULA_CHARS, formula_guard, guarded_frame, terminal_safe
 
 __all__ = [
     "FORMULA_CHARS",
@@ -63,25 +61,3 @@ def md_code(s: str) -> str:
     fence = "`" * (max(runs, default=0) + 1)
     pad = " " if text.startswith("`") or text.endswith("`") else ""
     return f"{fence}{pad}{text}{pad}{fence}"
-
-
-#: First characters that make a spreadsheet read a CSV cell as a formula.
-FORMULA_CHARS = ("=", "+", "-", "@", "\t", "\r")
-
-
-def formula_guard(value):
-    """A text cell starting with ``= + - @``, tab or CR gets a leading ``'`` (spreadsheets then
-    show it as text); anything else, numbers included, is returned unchanged."""
-    if isinstance(value, str) and value.startswith(FORMULA_CHARS):
-        return "'" + value
-    return value
-
-
-def guarded_frame(df):
-    """A copy of a DataFrame whose text cells get :func:`formula_guard` (for CSV output); numeric
-    cells, negative numbers included, are left exactly as they are."""
-    out = df.copy()
-    for c in out.columns:
-        if not (is_numeric_dtype(out[c]) or is_bool_dtype(out[c])):  # object or str columns
-            out[c] = out[c].map(formula_guard)
-    return out
