@@ -87,9 +87,11 @@ class OutputFolder:
         self.written: set[str] = set()  # what this run wrote or kept
         self._fh = None
         self._cleared = False
+        self.created = False  # the run made the folder (removed again if it writes nothing)
 
     # -- the lock ------------------------------------------------------------------------------
     def _lock(self) -> None:
+        self.created = not self.root.exists()  # a run that writes nothing leaves no folder
         self.root.mkdir(parents=True, exist_ok=True)
         if fcntl is None:  # pragma: no cover - depends on the platform
             return
@@ -203,6 +205,13 @@ class OutputFolder:
                 self._write_manifest(complete=True)
             elif self.listed != self.previous or self.written:
                 self._write_manifest(complete=False)
+            elif self.created:  # stopped before writing: leave nothing behind
+                (self.root / LOCK_FILE).unlink(missing_ok=True)
+                self._unlock()
+                try:
+                    self.root.rmdir()
+                except OSError:  # not empty (another process wrote there): keep it
+                    pass
         finally:
             self._unlock()
 

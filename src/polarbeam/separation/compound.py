@@ -182,14 +182,6 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 f"no significant dipole: μ < {debye_from_si(upper):.2f} D "
                 f"({st.upper_limit_cl:.0%} CL)"
             )
-            if method == "temperature series":  # α under the bound ⟨μ²⟩ ≥ 0: the data allow 0
-                free = alpha
-                alpha = alpha_with_known_dipole([r.alpha_eff for r in results], temps, 0.0)
-                messages.append(
-                    f"α from the fit with ⟨μ²⟩ = 0, which the data allow (free intercept "
-                    f"{alpha_a3_from_si(free.nominal_value):.4g} ± "
-                    f"{alpha_a3_from_si(free.std_dev):.2g} Å³)"
-                )
     for r in results:
         a, da = r.alpha_eff.nominal_value, r.alpha_eff.std_dev
         if a <= 0:
