@@ -755,15 +755,17 @@ CASES = [
         marks=pytest.mark.xfail(
             strict=True,
             reason=MISBEHAVES + "ValueError \"invalid address 'garbage:::'; maybe: ipv6 needs "
-            'brackets like [::1]" escapes (exit 1) instead of a one-line --scheduler error',
+            "brackets like [::1]\" escapes; the command line prints 'error: internal error "
+            "(ValueError: ...); please report it' instead of a one-line --scheduler error",
         ),
     ),
     pytest.param(
         Case("demo --out pointing at a file", _demo_file, 2, r"^error: --out", _file_kept),
         marks=pytest.mark.xfail(
             strict=True,
-            reason=MISBEHAVES + "FileExistsError [Errno 17] escapes (exit 1) instead of a "
-            "one-line error like analyze's '--out expected a folder'",
+            reason=MISBEHAVES + "FileExistsError [Errno 17] escapes; the command line prints "
+            "'error: internal error (FileExistsError: [Errno 17] File exists: ...); please report "
+            "it' instead of a one-line error like analyze's '--out expected a folder'",
         ),
     ),
 ]
