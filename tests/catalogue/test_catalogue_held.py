@@ -714,59 +714,34 @@ CASES = [
         None,
         _names("cmp-1", UNICODE),
     ),
-    # -- misbehaving today: strict xfail until fixed ----------------------------------------------
-    pytest.param(
-        Case(
-            "BOM at the start of campaign.toml",
-            _rewrite(_bom("campaign.toml")),
-            0,
-            None,
-            _ok,
-        ),
-        marks=pytest.mark.xfail(
-            strict=True,
-            reason=MISBEHAVES + "a UTF-8 BOM (as written by common Windows editors) gives "
-            "'invalid TOML (Invalid statement (at line 1, column 1))' although shifts.csv with a "
-            "BOM is read; expected the BOM skipped (or an error naming the BOM)",
-        ),
+    # -- fixed after the catalogue found them ---------------------------------------------------
+    Case(
+        "BOM at the start of campaign.toml",
+        _rewrite(_bom("campaign.toml")),
+        0,
+        None,
+        _ok,
     ),
-    pytest.param(
-        Case(
-            "--report-details -5",
-            _with(more=("--report-details", "-5")),
-            2,
-            r"^error: --report-details: expected",
-            _no_outputs,
-        ),
-        marks=pytest.mark.xfail(
-            strict=True,
-            reason=MISBEHAVES + "a negative count other than the documented -1 is accepted "
-            "silently (exit 0)",
-        ),
+    Case(
+        "--report-details -5",
+        _with(more=("--report-details", "-5")),
+        2,
+        r"^error: --report-details: expected",
+        _no_outputs,
     ),
-    pytest.param(
-        Case(
-            "--scheduler with a malformed tcp address",
-            _with(more=("--scheduler", "tcp://garbage:::")),
-            2,
-            r"^error: --scheduler: expected",
-            _no_outputs,
-        ),
-        marks=pytest.mark.xfail(
-            strict=True,
-            reason=MISBEHAVES + "ValueError \"invalid address 'garbage:::'; maybe: ipv6 needs "
-            "brackets like [::1]\" escapes; the command line prints 'error: internal error "
-            "(ValueError: ...); please report it' instead of a one-line --scheduler error",
-        ),
+    Case(
+        "--scheduler with a malformed tcp address",
+        _with(more=("--scheduler", "tcp://garbage:::")),
+        2,
+        r"^error: --scheduler: expected",
+        _no_outputs,
     ),
-    pytest.param(
-        Case("demo --out pointing at a file", _demo_file, 2, r"^error: --out", _file_kept),
-        marks=pytest.mark.xfail(
-            strict=True,
-            reason=MISBEHAVES + "FileExistsError [Errno 17] escapes; the command line prints "
-            "'error: internal error (FileExistsError: [Errno 17] File exists: ...); please report "
-            "it' instead of a one-line error like analyze's '--out expected a folder'",
-        ),
+    Case(
+        "demo --out pointing at a file",
+        _demo_file,
+        2,
+        r"--out expected a folder, found a file",
+        _file_kept,
     ),
 ]
 

@@ -13,6 +13,8 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
+from polarbeam.errors import InputError
+
 __all__ = ["add_write_listener", "atomic_path", "write_bytes_atomic", "write_text_atomic"]
 
 #: Called with each target path before it is written (the results-folder manifest,
@@ -64,3 +66,12 @@ def write_bytes_atomic(path: str | Path, data: bytes) -> None:
 def write_text_atomic(path: str | Path, text: str) -> None:
     """:func:`write_bytes_atomic` of UTF-8 text."""
     write_bytes_atomic(path, text.encode("utf-8"))
+
+
+def make_folder(path: str | Path) -> Path:
+    """Create the output folder ``path`` (and its parents); a one-line error when it is a file."""
+    path = Path(path)
+    if path.exists() and not path.is_dir():
+        raise InputError(f"{path}: --out expected a folder, found a file")
+    path.mkdir(parents=True, exist_ok=True)
+    return path

@@ -313,6 +313,11 @@ def run_cli(
         raise InputError("--dashboard: only with --scheduler local")
     if Path(out).exists() and not Path(out).is_dir():
         raise InputError(f"{out}: --out expected a folder, found a file")
+    if report_details is not None and report_details < -1:
+        raise InputError(
+            "--report-details: expected -1 (every compound) or a count >= 0, "
+            f"found {report_details}"
+        )
     bar = None if quiet else TerminalProgress()
 
     def on_runner(runner):

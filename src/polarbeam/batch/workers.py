@@ -258,6 +258,11 @@ class _Dask:
                 self.client = Client(scheduler, timeout=30)
             except OSError as exc:
                 raise InputError(f"--scheduler: cannot reach {scheduler} ({exc})") from None
+            except ValueError as exc:  # a malformed address
+                raise InputError(
+                    f"--scheduler: expected 'local' or an address like tcp://host:8786, "
+                    f"found {scheduler!r} ({exc})"
+                ) from None
         self.workers = max(1, sum(self.client.nthreads().values()))
         self.dashboard_link = self.client.dashboard_link if dashboard else None
 

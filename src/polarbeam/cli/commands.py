@@ -259,7 +259,10 @@ def demo(
     scans: bool = typer.Option(False, "--scans", help="the raw-scan variant instead"),
 ):
     """Rewrite the invented demo campaign (deterministic)."""
-    (pb.write_demo_scans if scans else pb.write_demo)(out)
+    try:
+        (pb.write_demo_scans if scans else pb.write_demo)(out)
+    except PolarbeamError as exc:
+        _fail(exc)
     typer.echo(f"demo campaign written to {out}/campaign.toml")
 
 

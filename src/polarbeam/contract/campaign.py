@@ -641,7 +641,7 @@ def read_toml(path: Path) -> dict:
     if not path.is_file():
         raise InputError(f"{path}: campaign file not found")
     try:
-        return tomllib.loads(path.read_text(encoding="utf-8"))
+        return tomllib.loads(path.read_text(encoding="utf-8-sig"))  # a BOM is not TOML: skip it
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path.name}: invalid TOML ({exc})") from None
     except (OSError, UnicodeDecodeError) as exc:

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from polarbeam._util.atomic import write_text_atomic
+from polarbeam._util.atomic import make_folder, write_text_atomic
 from polarbeam.beam.response import LangevinDebye, ParticleResponse
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.campaign import build_layout
@@ -221,7 +221,7 @@ def simulate_campaign(
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     spec = spec or InstrumentSpec.talbot_lau()
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    make_folder(out)
     nominal = {k: v for k, (v, e, u) in spec.inputs.items()}
     true = {k: v + e * rng.standard_normal() for k, (v, e, u) in spec.inputs.items()}
     lay_n, defl_n = _setup(spec, nominal)
@@ -454,7 +454,7 @@ def simulate_scan_campaign(
     if spec.layout == "beam-profile":
         raise ValueError("raw fringe scans need a fringe layout")
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    make_folder(out)
     nominal = {k: v for k, (v, e, u) in spec.inputs.items()}
     true = {k: v + e * rng.standard_normal() for k, (v, e, u) in spec.inputs.items()}
     lay_n, defl_n = _setup(spec, nominal)

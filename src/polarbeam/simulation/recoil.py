@@ -11,6 +11,7 @@ from pathlib import Path
 
 import numpy as np
 
+from polarbeam._util.atomic import make_folder
 from polarbeam.beam.photon_recoil import (
     gaussian_effective_area,
     photon_energy,
@@ -118,7 +119,7 @@ def simulate_recoil_campaign(
     """
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    make_folder(out)
     inst = _instrument_inputs(layout)
     true_inst = {k: v + e * rng.standard_normal() for k, (v, e, _) in inst.items()}
     layout_t = build_layout(layout, true_inst)
