@@ -66,10 +66,7 @@ def _specific_std_devs(values: list) -> np.ndarray:
     comps = [v.error_components() if hasattr(v, "error_components") else {} for v in values]
     counts = Counter(var for c in comps for var in c)
     return np.array(
-        [
-            float(math.sqrt(sum(s**2 for var, s in c.items() if counts[var] == 1)))
-            for c in comps
-        ]
+        [float(math.sqrt(sum(s**2 for var, s in c.items() if counts[var] == 1))) for c in comps]
     )
 
 
