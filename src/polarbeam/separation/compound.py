@@ -143,6 +143,13 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
     chi2 = ndof = None
     method = "none"
     messages: list[str] = []
+    distinct = {float(getattr(t, "nominal_value", t)) for t in temps}
+    if len(results) >= 2 and len(distinct) < 2:
+        raise CompoundError(
+            f"compound {cd.name!r}: every series states the same rotational temperature "
+            f"({distinct.pop():g} K); expected at least two different temperatures to separate "
+            "α and μ"
+        )
     if len(results) >= 2:
         fit = debye_fit([r.alpha_eff for r in results], temps)
         alpha, mu2, chi2, ndof = fit.alpha, fit.mu2, fit.chi2, fit.ndof
