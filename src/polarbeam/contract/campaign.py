@@ -49,11 +49,13 @@ from polarbeam.contract.recoil import load_recoil
 from polarbeam.contract.scans import reduce_scans_file, series_from_reduction
 from polarbeam.contract.schema import (
     OBSERVABLE_COLUMNS,
+    ROTATIONAL_COLUMNS,
     SHIFT_COLUMNS_COMMON,
     AnalysisSettings,
     CompoundData,
     SeriesData,
 )
+from polarbeam.contract.temperatures import row_rotational, series_rotational, thermometer_offset
 from polarbeam.errors import CompoundError, InputError, QuantityError
 from polarbeam.instrument.deflectors import (
     DEFLECTOR_MODELS,
@@ -119,6 +121,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "calibration": None,
         "mass": None,
     },
+    "source": {"thermometer_offset": "K"},
 }
 # the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
 _SCHEMA["deflector"].update(
@@ -166,6 +169,7 @@ class Campaign:
     recoil: Any = None  # polarbeam.extraction.recoil.RecoilData when [data] recoil is given
     table_notes: tuple[str, ...] = ()  # comment lines skipped above the headers of the tables
     warnings: tuple[str, ...] = ()  # implausible inputs (likely unit slips), one line each
+    thermometer_offset: Measured | None = None  # [source]: one error common to every series' T
 
     @property
     def observable(self) -> str:
@@ -542,6 +546,7 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
     )
     groups: dict[str, dict[float, list]] = {}
     problems: dict[str, str] = {}
+    rotational = ROTATIONAL_COLUMNS[0] in table.columns
     for i, row in enumerate(table.rows):
         name = row.get("compound", "").strip(CELL_BLANKS)
         if name in problems:
@@ -567,6 +572,7 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
                 sv,
                 num(i, "temperature_err_K", nonnegative=True),
                 table.lines[i],
+                row_rotational(table, i) if rotational else ("", None, 0.0),
             )
             temp = num(i, "temperature_K", positive=True)
         except CompoundError as exc:
@@ -586,6 +592,13 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
                     f"voltages (|V|), found {np.unique(np.abs(volts)).size}"
                 )
                 break
+            try:
+                rot = series_rotational(
+                    table.name, name, temp, [r[8] for r in recs], [r[7] for r in recs]
+                )
+            except CompoundError as exc:
+                problems[name] = str(exc)
+                break
             out.append(
                 SeriesData(
                     compound=name,
@@ -597,6 +610,7 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
                     values=arr[:, 1],
                     errors=arr[:, 2],
                     lines=tuple(r[7] for r in recs),
+                    rotational=rot,
                 )
             )
         else:
@@ -676,6 +690,7 @@ def load_campaign(path: str | Path) -> Campaign:
         raise InputError(f"{fname} [campaign] title: expected a string, found {title!r}")
     stated = stated_inputs(doc, fname, layout, model)
     settings = analysis_settings(doc, fname)
+    offset = thermometer_offset(doc, fname)
     base = path.parent
     field_map, waveform = deflector_files(defl, base, fname, layout, model)
     data = doc.get("data", {})
@@ -797,6 +812,7 @@ def load_campaign(path: str | Path) -> Campaign:
         recoil=recoil,
         table_notes=tuple(table_notes),
         warnings=warnings,
+        thermometer_offset=offset,
     )
 
 

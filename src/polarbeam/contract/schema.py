@@ -12,6 +12,7 @@ from polarbeam.quantities import Measured
 
 __all__ = [
     "OBSERVABLE_COLUMNS",
+    "ROTATIONAL_COLUMNS",
     "SHIFT_COLUMNS_COMMON",
     "AnalysisSettings",
     "CompoundData",
@@ -27,6 +28,11 @@ SHIFT_COLUMNS_COMMON = (
     "velocity_spread_m_s",
     "voltage_V",
 )
+
+#: Optional columns of shifts.csv and the raw-scan tables: the rotational temperature of the
+#: molecules in the deflector (and its 1σ error). When given for a series it replaces the source
+#: temperature in the orientational term ⟨μ²⟩/(3kT) of the separation.
+ROTATIONAL_COLUMNS = ("rotational_temperature_K", "rotational_temperature_err_K")
 
 
 OBSERVABLE_COLUMNS = {
@@ -102,6 +108,7 @@ class SeriesData:
     covariance: np.ndarray | None = None
     visibility: np.ndarray | None = None
     visibility_err: np.ndarray | None = None
+    rotational: Measured | None = None  # rotational temperature in the deflector, when stated
 
     @property
     def label(self) -> str:

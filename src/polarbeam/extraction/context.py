@@ -25,6 +25,7 @@ __all__ = [
     "build_context",
     "field_factor_sensitivities",
     "log_sensitivities",
+    "temperature_offset",
 ]
 
 
@@ -38,6 +39,9 @@ class Context:
     coupling_ratio: object  # C_nominal / C as an uncertain number
     sensitivities: dict[str, float]  # ∂ln C/∂p per stated input
     field_per_volt: float | None
+    #: ``[source] thermometer_offset`` as one uncertain number tagged "source: thermometer
+    #: offset", shared by every compound (0.0 when not stated)
+    temperature_offset: object = 0.0
 
 
 def build_context(c: Campaign) -> Context:
@@ -66,7 +70,18 @@ def build_context(c: Campaign) -> Context:
         shift = shift + s_key * (u - m.value)
     ratio = 1.0 / (1.0 + shift)
     fpv = deflector.field_per_volt
-    return Context(layout, deflector, c0, ratio, sens, fpv)
+    return Context(layout, deflector, c0, ratio, sens, fpv, temperature_offset(c))
+
+
+def temperature_offset(c: Campaign):
+    """The campaign's shared thermometer offset δ (every source temperature becomes T + δ) as
+    one uncertain number tagged ``"source: thermometer offset"``, or 0.0 when not stated."""
+    m = c.thermometer_offset
+    if m is None:
+        return 0.0
+    if m.error <= 0:
+        return m.value
+    return ufloat(m.value, m.error, tag=input_label("source.thermometer offset"))
 
 
 def field_factor_sensitivities(c) -> tuple[float, dict[str, float]]:

@@ -29,7 +29,9 @@ __all__ = [
     "DIPOLE_PLAUSIBLE_MAX_D",
     "PLAUSIBILITY_HINT",
     "make_result",
+    "orientation_temperature_K",
     "separate",
+    "series_temperature",
 ]
 
 #: Above this a dipole is implausible for a molecule in a beam (the largest molecular dipoles
@@ -96,6 +98,7 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 f"{s.label}: the velocity spread washes the fringe out to {cmin:.0%} contrast at "
                 "the largest voltage; the phase there is poorly defined"
             )
+        temps.append(series_temperature(s, ctx.temperature_offset, sw))
         warnings.extend(sw)
         results.append(
             SeriesResult(
@@ -123,12 +126,15 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 warnings=tuple(sw),
                 visibility=s.visibility,
                 visibility_err=s.visibility_err,
+                extra=(
+                    {
+                        "rotational_temperature_K": s.rotational.value,
+                        "rotational_temperature_err_K": s.rotational.error,
+                    }
+                    if s.rotational is not None
+                    else {}
+                ),
             )
-        )
-        temps.append(
-            ufloat(s.temperature.value, s.temperature.error, tag=f"temperature: {s.label}")
-            if s.temperature.error > 0
-            else s.temperature.value
         )
     if not results:
         raise CompoundError(f"compound {cd.name!r}: no series to analyse")
@@ -137,6 +143,13 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
     chi2 = ndof = None
     method = "none"
     messages: list[str] = []
+    distinct = {float(getattr(t, "nominal_value", t)) for t in temps}
+    if len(results) >= 2 and len(distinct) < 2:
+        raise CompoundError(
+            f"compound {cd.name!r}: every series states the same rotational temperature "
+            f"({distinct.pop():g} K); expected at least two different temperatures to separate "
+            "α and μ"
+        )
     if len(results) >= 2:
         fit = debye_fit([r.alpha_eff for r in results], temps)
         alpha, mu2, chi2, ndof = fit.alpha, fit.mu2, fit.chi2, fit.ndof
@@ -208,7 +221,7 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         messages.append(note)
     if orientation is not None and orientation > st.orientation_warning:
         vmax = max(float(np.max(np.abs(r.voltages))) for r in results)
-        tmin = min(r.temperature_K for r in results)
+        tmin = min(orientation_temperature_K(r) for r in results)
         warnings.append(
             f"μE/kT = {orientation:.2f} at {vmax:g} V and {tmin:g} K: the weak-field "
             "Langevin–Debye limit is not well satisfied"
@@ -240,6 +253,9 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         k: {"value": m.value, "error": m.error, "dlnC_dp": ctx.sensitivities.get(k)}
         for k, m in c.stated.items()
     }
+    if c.thermometer_offset is not None:  # not an input of the coupling: no dlnC_dp
+        m = c.thermometer_offset
+        stated["source.thermometer_offset"] = {"value": m.value, "error": m.error, "dlnC_dp": None}
     notes = list(c.warnings)  # implausible inputs first: the likely unit slips
     notes += c.table_notes
     if c.layout == "time-domain":
@@ -273,6 +289,42 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
     )
 
 
+def series_temperature(s, offset, warnings: list[str]):
+    """The temperature T of the orientational term ⟨μ²⟩/(3kT) for one series, uncertain.
+
+    The rotational temperature in the deflector when the series states one (its own error,
+    tagged per series), else the source temperature plus the campaign's shared thermometer
+    offset ``offset`` (one uncertain number common to every series, or 0.0). A rotational
+    temperature above the source temperature by more than its error adds a warning: rotational
+    cooling in an expansion cannot heat the molecules.
+    """
+    rot = s.rotational
+    if rot is not None:
+        if rot.value - s.temperature.value > rot.error:
+            warnings.append(
+                f"{s.label}: rotational temperature {rot.value:g} ± {rot.error:g} K is above the "
+                f"source temperature by more than its error (rotational cooling cannot heat); "
+                "check rotational_temperature_K"
+            )
+        if rot.error > 0:
+            return ufloat(rot.value, rot.error, tag=f"rotational temperature: {s.label}")
+        return rot.value
+    t = (
+        ufloat(s.temperature.value, s.temperature.error, tag=f"temperature: {s.label}")
+        if s.temperature.error > 0
+        else s.temperature.value
+    )
+    if isinstance(offset, float) and offset == 0.0:
+        return t
+    return t + offset
+
+
+def orientation_temperature_K(r) -> float:
+    """The temperature of the orientational term for a series result: the rotational one when
+    stated, else the source temperature."""
+    return float(r.extra.get("rotational_temperature_K", r.temperature_K))
+
+
 def orientation_ratio(ctx: Context, model: str, results, dipole, upper, statement):
     """(μE/kT at the largest field and lowest temperature, or None; a note when it is skipped).
 
@@ -293,7 +345,7 @@ def orientation_ratio(ctx: Context, model: str, results, dipole, upper, statemen
             "(state field_per_volt to enable it)"
         )
     vmax = max(float(np.max(np.abs(r.voltages))) for r in results)
-    tmin = min(r.temperature_K for r in results)
+    tmin = min(orientation_temperature_K(r) for r in results)
     return mu * ctx.field_per_volt * vmax / (BOLTZMANN * tmin), None
 
 

@@ -7,7 +7,9 @@ multiplicative scale error biases the fit low (Peelle's pertinent puzzle), so th
 from the errors specific to each series (its fit statistics, velocity and temperature), while the
 estimate — a fixed linear combination of the α_eff — is propagated exactly through the full
 correlated covariance by :mod:`uncertainties`.  Temperature errors enter through x = 1/T both in
-the propagation and, as an effective variance (β·σ_x)², in the weights.
+the propagation and, as an effective variance (β·σ_x)², in the weights; σ_x there is again the
+part specific to each series (a thermometer offset common to every series is propagated, but does
+not weight).
 
 What the slope says about μ (a value or an upper limit, with intervals that keep their coverage)
 is decided in :mod:`polarbeam.separation.dipole`. :func:`bounded_upper_limit` (flat prior on
@@ -58,6 +60,16 @@ def specific_variances(values: list[UFloat]) -> np.ndarray:
     return np.array([sum(s * s for var, s in c.items() if counts[var] == 1) for c in comps])
 
 
+def _specific_std_devs(values: list) -> np.ndarray:
+    """Standard deviation of each value (uncertain or plain) from the variables no other value
+    depends on (a plain number has none)."""
+    comps = [v.error_components() if hasattr(v, "error_components") else {} for v in values]
+    counts = Counter(var for c in comps for var in c)
+    return np.array(
+        [float(math.sqrt(sum(s**2 for var, s in c.items() if counts[var] == 1))) for c in comps]
+    )
+
+
 def debye_fit(alpha_eff: list[UFloat], temperatures: list[UFloat]) -> DebyeFit:
     """Straight line α_eff = α + β/T through ≥ 2 series (see module docstring)."""
     if len(alpha_eff) < 2:
@@ -68,7 +80,7 @@ def debye_fit(alpha_eff: list[UFloat], temperatures: list[UFloat]) -> DebyeFit:
     xn = np.array([getattr(xi, "nominal_value", xi) for xi in x])
     yn = np.array([a.nominal_value for a in alpha_eff])
     var = specific_variances(alpha_eff)
-    sx = np.array([getattr(xi, "std_dev", 0.0) for xi in x])
+    sx = _specific_std_devs(x)
     if np.any(var <= 0):  # nothing series-specific: fall back to the total variances
         var = np.array([a.std_dev**2 for a in alpha_eff])
     beta = 0.0

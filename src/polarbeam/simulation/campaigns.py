@@ -60,6 +60,10 @@ class CompoundTruth:
     temperatures_K: tuple[float, ...]
     smiles: str = ""
     mass_err_u: float = 0.0
+    #: rotational temperature in the deflector per source temperature (same order), when it
+    #: differs from the source temperature (a supersonic expansion): the true α_eff follows it,
+    #: and shifts.csv gets the rotational_temperature_K/_err_K columns
+    rotational_temperatures_K: tuple[float, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -203,6 +207,7 @@ def simulate_campaign(
     offset_scale: float = 0.1,
     velocity_columns: bool = True,
     response: ParticleResponse = LANGEVIN_DEBYE,
+    rotational_err_K: float = 1.0,
 ) -> SimulationTruth:
     """Write ``campaign.toml``, ``shifts.csv`` and ``compounds.csv`` into ``out_dir``.
 
@@ -217,6 +222,9 @@ def simulate_campaign(
         Point error: rad for phases, relative to ``max_signal`` for beam-profile shifts.
     velocity_columns
         Write the velocity columns of ``shifts.csv`` (they may be left out for the time domain).
+    rotational_err_K
+        Stated (and drawn) error of the rotational temperatures of compounds that give
+        ``rotational_temperatures_K``.
     """
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     spec = spec or InstrumentSpec.talbot_lau()
@@ -238,13 +246,16 @@ def simulate_campaign(
         m_stated = (comp.mass_u + comp.mass_err_u * rng.standard_normal()) * AMU
         a_si = alpha_si_from_a3(comp.alpha_A3)
         mu_si = si_from_debye(comp.dipole_D)
-        a_max = response.alpha_eff(a_si, mu_si, min(comp.temperatures_K))
+        rot = dict(zip(comp.temperatures_K, comp.rotational_temperatures_K, strict=False))
+        a_max = response.alpha_eff(a_si, mu_si, min(rot.values() or comp.temperatures_K))
         v_nom = velocity_m_s
         inv_v2 = 1.0 if kind == "time-domain" else (1 + 3 * spread_frac**2) / v_nom**2
         vmax = math.sqrt(signal * m_stated / (a_max * c_nom * inv_v2))
         ladder = np.linspace(-vmax, vmax, n_voltages)
         for t_stated in comp.temperatures_K:
             t_true = t_stated + temperature_err_K * rng.standard_normal()
+            if t_stated in rot:  # the rotation in the deflector sets the orientational term
+                t_true = rot[t_stated] + rotational_err_K * rng.standard_normal()
             a_eff = response.alpha_eff(a_si, mu_si, t_true)
             v_err = velocity_err_frac * v_nom
             v_true = v_nom + v_err * rng.standard_normal()
@@ -263,16 +274,21 @@ def simulate_campaign(
             for V, yy in zip(ladder, y, strict=True):
                 rows.append(
                     (comp.name, t_stated, temperature_err_K, v_nom, v_err, spread, V, yy, err)
+                    + ((rot[t_stated],) if t_stated in rot else ())
                 )
     obs = ("shift_m", "shift_err_m") if is_profile else ("phase_rad", "phase_err_rad")
     if not velocity_columns and kind != "time-domain":
         raise ValueError("velocity columns can only be left out for the time-domain layout")
     vcols = "velocity_m_s,velocity_err_m_s,velocity_spread_m_s," if velocity_columns else ""
     head = f"compound,temperature_K,temperature_err_K,{vcols}voltage_V,{obs[0]},{obs[1]}"
+    with_rot = any(c.rotational_temperatures_K for c in compounds)
+    if with_rot:
+        head += ",rotational_temperature_K,rotational_temperature_err_K"
     lines = [head] + [
         f"{r[0]},{r[1]:g},{r[2]:g},"
         + (f"{r[3]:.6g},{r[4]:.4g},{r[5]:.4g}," if velocity_columns else "")
         + f"{r[6]:.6g},{r[7]:.10g},{r[8]:.6g}"
+        + ((f",{r[9]:g},{rotational_err_K:g}" if len(r) > 9 else ",,") if with_rot else "")
         for r in rows
     ]
     write_text_atomic(out / "shifts.csv", "\n".join(lines) + "\n")
