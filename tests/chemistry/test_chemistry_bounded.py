@@ -28,19 +28,19 @@ def test_limits_are_stated():
 
 def test_conformers_refused_above_the_size_limit():
     with pytest.raises(CalculationTooBigError, match=r"100 heavy atoms, above the conformer limit"):
-        conformer_ensemble(C100, "c100")
+        conformer_ensemble(C100, "chain-100")
     with pytest.raises(CalculationTooBigError, match=r"61 heavy atoms"):
-        conformer_ensemble("C" * 61, "c61")
+        conformer_ensemble("C" * 61, "chain-61")
 
 
 def test_conformers_refused_when_the_embedding_uses_the_budget():
     # a 60-carbon chain needs several seconds to embed 10 conformers; a 1 s budget is not enough
     with pytest.raises(CalculationTooBigError, match=r"whole time budget of 1 s"):
-        conformer_ensemble("C" * 60, "c60", time_budget_s=1.0)
+        conformer_ensemble("C" * 60, "chain-60", time_budget_s=1.0)
 
 
 def test_estimate_with_dipoles_falls_back_to_additive():
-    est = chem.estimate(C100, "c100", dipoles=True)
+    est = chem.estimate(C100, "chain-100", dipoles=True)
     assert est.ensemble is None and est.dipole_rms_D is None
     assert any("above the conformer limit of 60" in f for f in est.flags)
     assert math.isfinite(est.alpha_additive_A3) and est.alpha_additive_A3 > 0
@@ -48,12 +48,12 @@ def test_estimate_with_dipoles_falls_back_to_additive():
 
 def test_estimate_table_c100_row_gets_a_note_and_finishes(tmp_path):
     inp = tmp_path / "lib.csv"
-    inp.write_text(f"compound,smiles\nc100,{C100}\nethanol,CCO\n", encoding="utf-8")
+    inp.write_text(f"compound,smiles\nchain-100,{C100}\nethanol,CCO\n", encoding="utf-8")
     out = tmp_path / "out.csv"
     stats = chem.estimate_table(inp, out, dipoles=True, conformers=2)
     assert stats == {"rows": 2, "ok": 2, "failed": 0}
     rows = {r["compound"]: r for r in csv.DictReader(out.open(encoding="utf-8"))}
-    big = rows["c100"]
+    big = rows["chain-100"]
     assert big["status"] == "ok" and big["dipole_rms_D"] == "" and big["n_conformers"] == "0"
     assert "above the conformer limit of 60" in big["message"]
     assert float(big["alpha_additive_A3"]) > 0
