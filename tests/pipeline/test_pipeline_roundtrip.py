@@ -7,6 +7,7 @@ mass) from its stated error, so a correct propagation gives pulls (estimate − 
 
 from __future__ import annotations
 
+import itertools
 import math
 
 import numpy as np
@@ -27,7 +28,7 @@ N_CAMPAIGNS = 300
 @pytest.fixture(scope="module")
 def pulls(tmp_path_factory):
     rng = np.random.default_rng(20261201)
-    eff, alpha, mu, mu2 = [], [], [], []
+    eff, alpha, mu, mu2, cover, signif = [], [], [], [], [], []
     for i in range(N_CAMPAIGNS):
         d = tmp_path_factory.mktemp(f"rt{i}")
         truth = random_campaign(d, rng)
@@ -47,12 +48,37 @@ def pulls(tmp_path_factory):
             # μ = sqrt(⟨μ²⟩) with a linearised error is only Gaussian when ⟨μ²⟩ is well measured.
             # Select on the *truth* (expected significance > 5σ), never on the estimate, so the
             # selection cannot bias the pulls; such dipoles are always reported as values.
+            # the unified 68.3 % interval [dipole_lo_D, dipole_hi_D] must hold the true μ in
+            # 68.3 % of campaigns whatever the true μ (Feldman–Cousins 1998)
+            lo, hi = c.row()["dipole_lo_D"], c.row()["dipole_hi_D"]
+            cover.append(lo - 1e-12 <= t.dipole_D <= hi + 1e-12)
+            signif.append(true_mu2 / c.mu2.std_dev)
             if true_mu2 / c.mu2.std_dev > 5 and c.dipole is not None:
                 m, dm = (debye_from_si(x) for x in (c.dipole.nominal_value, c.dipole.std_dev))
                 mu.append((m - t.dipole_D) / dm)
-    return {
+    out = {
         k: np.array(v) for k, v in (("alpha_eff", eff), ("alpha", alpha), ("mu", mu), ("mu2", mu2))
     }
+    out["cover"], out["signif"] = np.array(cover), np.array(signif)
+    return out
+
+
+@pytest.mark.slow
+def test_unified_dipole_intervals_cover_on_simulated_campaigns(pulls):
+    """Coverage of the 68.3 % μ interval over all simulated campaigns and in bins of the true
+    ⟨μ²⟩/σ (0 to beyond 6σ): within three binomial standard errors of 68.3 % everywhere."""
+    cover, z = pulls["cover"], pulls["signif"]
+    edges = [0.0, 1.0, 3.0, 6.0, np.inf]
+    print(f"\nμ interval coverage: all {cover.mean():.3f} (n={cover.size})")
+    for a, b in itertools.pairwise(edges):
+        sel = (z >= a) & (z < b)
+        if sel.sum() < 20:
+            continue
+        frac, n = cover[sel].mean(), int(sel.sum())
+        tol = 3 * math.sqrt(0.683 * 0.317 / n)
+        print(f"  true ⟨μ²⟩/σ in [{a:g}, {b:g}): {frac:.3f} (n={n}, ±{tol:.3f})")
+        assert abs(frac - 0.683) < tol
+    assert abs(cover.mean() - 0.683) < 3 * math.sqrt(0.683 * 0.317 / cover.size)
 
 
 @pytest.mark.slow
