@@ -11,13 +11,15 @@ temperature of the campaign (one thermometer, one calibration).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 
 from polarbeam.contract.schema import ROTATIONAL_COLUMNS
-from polarbeam.errors import CompoundError, InputError
+from polarbeam.errors import CompoundError, InputError, RowValueError
 from polarbeam.quantities import Measured, parse_quantity
 
 __all__ = [
+    "cell_rotational",
     "row_rotational",
     "series_rotational",
     "thermometer_offset",
@@ -26,16 +28,36 @@ __all__ = [
 _T, _T_ERR = ROTATIONAL_COLUMNS
 
 
+def cell_rotational(where: str, raw: str, raw_err: str = "") -> tuple[str, float | None, float]:
+    """(raw cell, rotational temperature K or None when the cell is blank, its error K) of one
+    row given as its two cells of text; ``where`` names file and row (``"shifts.csv line 4"``,
+    ``"scans.csv scan 12"``). A bad cell raises a :class:`~polarbeam.errors.RowValueError`
+    naming ``where`` and the column."""
+    raw = (raw or "").strip()
+    if not raw:
+        return "", None, 0.0
+    value = _number(where, _T, raw, "a number > 0", lambda v: v > 0)
+    raw_err = (raw_err or "").strip()
+    err = _number(where, _T_ERR, raw_err, "a number >= 0", lambda v: v >= 0) if raw_err else 0.0
+    return raw, value, err
+
+
+def _number(where: str, column: str, raw: str, want: str, ok) -> float:
+    try:
+        value = float(raw)
+    except ValueError:
+        value = math.nan
+    if not (math.isfinite(value) and ok(value)):
+        raise RowValueError(f"{where}: column '{column}' expected {want}, found {raw!r}")
+    return value
+
+
 def row_rotational(table, i: int) -> tuple[str, float | None, float]:
     """(raw cell, rotational temperature K or None when the cell is blank, its error K) of a row
     of a :class:`~polarbeam._util.tables.Table`; a bad cell raises a
     :class:`~polarbeam.errors.RowValueError` naming file, line and column."""
-    raw = (table.rows[i].get(_T) or "").strip()
-    if not raw:
-        return "", None, 0.0
-    value = table.number(i, _T, positive=True)
-    err = table.number(i, _T_ERR, nonnegative=True, default=0.0)
-    return raw, value, err
+    row = table.rows[i]
+    return cell_rotational(f"{table.name} line {table.lines[i]}", row.get(_T), row.get(_T_ERR))
 
 
 def series_rotational(
