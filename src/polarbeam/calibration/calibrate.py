@@ -71,7 +71,7 @@ from polarbeam.errors import CompoundError, InputError
 from polarbeam.extraction.context import Context, build_context, field_factor_sensitivities
 from polarbeam.quantities import Measured, format_value_error
 from polarbeam.results.objects import CompoundResult
-from polarbeam.separation.compound import separate
+from polarbeam.separation.compound import separate, series_temperature
 from polarbeam.separation.dipole import dipole_statement
 from polarbeam.uncertain import variance_budget
 
@@ -451,8 +451,11 @@ def first_pass(
     ``analyze_one(compound, campaign, context)`` gives a compound's result (the pipeline passes
     its own, which adds the structure cross-check).
 
-    The known α_eff = α_ref + μ_ref²/(3kT) reuse the temperature variables of the compound's own
-    Debye fit (found by tag), so the reference's reported α stays correlated with them.
+    The known α_eff = α_ref + μ_ref²/(3kT) use the temperature the separation uses (the
+    rotational one when stated, else the source temperature with the shared thermometer offset:
+    :func:`~polarbeam.separation.compound.series_temperature`) and reuse the temperature
+    variables of the compound's own Debye fit (found by tag), so the reference's reported α
+    stays correlated with them.
     """
     first, known = {}, {}
     for cd in c.compounds:
@@ -467,11 +470,8 @@ def first_pass(
         a_u = _measured_u(ref.alpha, f"reference α: {cd.name}")
         mu_u = _measured_u(ref.dipole, f"reference μ: {cd.name}")
         ks = []
-        for s in r1.series:
-            tag = f"temperature: {s.compound} @ {s.temperature_K:g} K"
-            t_u = temps.get(tag)
-            if t_u is None:
-                t_u = _measured_u(Measured(s.temperature_K, s.temperature_err_K), tag)
+        for s in cd.series:  # the warnings were given by the separation already
+            t_u = series_temperature(s, ctx.temperature_offset, [], variables=temps)
             ks.append(known_alpha_eff(a_u, mu_u, t_u))  # a float when exactly known
         first[cd.name], known[cd.name] = r1, tuple(ks)
     return first, known

@@ -12,9 +12,11 @@ import numpy as np
 
 from polarbeam._util.tables import CELL_BLANKS
 from polarbeam.contract.schema import (
+    ROTATIONAL_COLUMNS,
     SeriesData,
 )
-from polarbeam.errors import InputError, RowValueError
+from polarbeam.contract.temperatures import cell_rotational, series_rotational
+from polarbeam.errors import CompoundError, InputError, RowValueError
 from polarbeam.quantities import Measured
 from polarbeam.reduction import read_table as read_scans_table
 from polarbeam.reduction import reduce_file, reduce_table, row_problems
@@ -79,6 +81,12 @@ def series_from_reduction(reduction):
             )
             series.pop(name, None)
             continue
+        try:
+            rot = _series_rotational(reduction.source, t, sel, name, temp)
+        except CompoundError as exc:
+            problems[name] = str(exc)
+            series.pop(name, None)
+            continue
         cov = reduction.covariance.get((name, temp))
         if cov is None:
             cov = reduction.covariance.get((t["compound"][sel].iloc[0], temp))
@@ -97,8 +105,33 @@ def series_from_reduction(reduction):
                 covariance=np.asarray(cov, dtype=float),
                 visibility=vis["relative_visibility"].to_numpy()[rows].astype(float),
                 visibility_err=vis["relative_visibility_err"].to_numpy()[rows].astype(float),
+                rotational=rot,
             )
         )
     for name in series:
         series[name].sort(key=lambda s: s.temperature.value)
     return series, problems, notes
+
+
+def _cell_text(value: float) -> str:
+    return "" if np.isnan(value) else f"{value:g}"
+
+
+def _series_rotational(source: str, t, sel: np.ndarray, name: str, temp: float):
+    """The rotational temperature of one series from the signal scans' optional columns, with
+    the checks and messages of shifts.csv (a scan id in place of the file line)."""
+    col, col_err = ROTATIONAL_COLUMNS
+    if col not in t.columns:
+        return None
+    scans = [str(x) for x in t["scan"].to_numpy()[sel]]
+    values = t[col].to_numpy(dtype=float)[sel]
+    errs = (
+        t[col_err].to_numpy(dtype=float)[sel]
+        if col_err in t.columns
+        else np.full(values.size, np.nan)
+    )
+    cells = [
+        cell_rotational(f"{source} scan {scan}", _cell_text(v), _cell_text(e))
+        for scan, v, e in zip(scans, values, errs, strict=True)
+    ]
+    return series_rotational(source, name, temp, cells, scans, line_word="scan")

@@ -23,6 +23,7 @@ from polarbeam.reduction.branches import choose_branches
 from polarbeam.reduction.columns import (
     CARRIED_COLUMNS,
     INPUT_COLUMNS,
+    OPTIONAL_COLUMNS,
     OUTPUT_COLUMNS,
     row_problems,
     validate_scans,
@@ -57,6 +58,7 @@ __all__ = [
     "LOW_VISIBILITY",
     "NO_REFERENCE_AFTER",
     "NO_REFERENCE_BEFORE",
+    "OPTIONAL_COLUMNS",
     "OUTPUT_COLUMNS",
     "PARTIAL_PERIOD",
     "POOR_CHI2",

@@ -22,6 +22,7 @@ __all__ = [
     "CARRIED_COLUMNS",
     "INPUT_COLUMNS",
     "NUMERIC_COLUMNS",
+    "OPTIONAL_COLUMNS",
     "OUTPUT_COLUMNS",
     "PER_SCAN_COLUMNS",
     "all_finite",
@@ -50,7 +51,12 @@ INPUT_COLUMNS = (
 )
 #: Per-series beam columns carried unchanged into the output so that it works as a shifts file.
 CARRIED_COLUMNS = ("temperature_err_K", "velocity_m_s", "velocity_err_m_s", "velocity_spread_m_s")
-#: Columns of :attr:`polarbeam.reduction.result.ReducedPhases.table`, in order.
+#: Optional per-scan columns carried unchanged into the output when the table has them (after
+#: :data:`OUTPUT_COLUMNS`): the rotational temperature in the deflector and its error.  A blank
+#: cell means "not stated"; their values are checked by the caller, series by series.
+OPTIONAL_COLUMNS = ("rotational_temperature_K", "rotational_temperature_err_K")
+#: Columns of :attr:`polarbeam.reduction.result.ReducedPhases.table`, in order (then those of
+#: :data:`OPTIONAL_COLUMNS` that the input has).
 OUTPUT_COLUMNS = (
     "compound",
     "temperature_K",
@@ -137,7 +143,35 @@ def row_problems(df: pd.DataFrame, source: str) -> dict[int, str]:
             else:
                 expected, found = "a whole-number scan id", vals[i]
             first[i] = str(_row_error(source, i, col, expected, found))
+    for col in OPTIONAL_COLUMNS:
+        if col in df.columns:
+            for i in _non_numbers(df[col]):
+                first.setdefault(i, str(_row_error(source, i, col, "a number", df[col].iloc[i])))
     return first
+
+
+def _non_numbers(raw: pd.Series) -> np.ndarray:
+    """Rows of a column whose cell is neither blank nor a number."""
+    if pd.api.types.is_bool_dtype(raw):
+        return np.flatnonzero(raw.notna().to_numpy())
+    if pd.api.types.is_numeric_dtype(raw):
+        return np.zeros(0, dtype=np.int64)
+    isnull = np.array([is_empty_cell(v) for v in raw], dtype=bool) | raw.isna().to_numpy()
+    try:
+        num = pd.to_numeric(raw.astype(str).where(~isnull), errors="coerce")
+        return np.flatnonzero(num.isna().to_numpy() & ~isnull)
+    except (TypeError, ValueError, UnicodeError):
+        return np.array([_first_non_number(raw)])
+
+
+def _optional_values(raw: pd.Series) -> np.ndarray:
+    """An optional column as float64, a blank cell as NaN (the caller has checked
+    :func:`_non_numbers`)."""
+    if pd.api.types.is_numeric_dtype(raw) and not pd.api.types.is_bool_dtype(raw):
+        return raw.to_numpy(dtype=float, na_value=np.nan)
+    isnull = np.array([is_empty_cell(v) for v in raw], dtype=bool) | raw.isna().to_numpy()
+    num = pd.to_numeric(raw.astype(str).where(~isnull), errors="coerce")
+    return num.to_numpy(dtype=float, na_value=np.nan)
 
 
 def _first_non_number(raw: pd.Series) -> int:
@@ -296,6 +330,13 @@ def checked_columns(
                 raise _row_error(source, int(bad[0]), col, "a whole-number scan id", vals[bad[0]])
             vals = vals.astype(np.int64)
         out[col] = vals
+    for col in OPTIONAL_COLUMNS:
+        if col in df.columns:
+            bad = _non_numbers(df[col])
+            if bad.size:
+                i = int(bad[0])
+                raise _row_error(source, i, col, "a number", df[col].iloc[i])
+            out[col] = _optional_values(df[col])
     compound = df["compound"]
     if isinstance(compound.dtype, pd.CategoricalDtype):  # e.g. from Parquet: codes as they are
         codes = compound.cat.codes.to_numpy()

@@ -18,6 +18,7 @@ from polarbeam.errors import InputError, MissingExtraError, RowValueError
 from polarbeam.reduction.columns import (
     INPUT_COLUMNS,
     NUMERIC_COLUMNS,
+    OPTIONAL_COLUMNS,
     PER_SCAN_COLUMNS,
     validate_scans,
 )
@@ -41,7 +42,7 @@ def _read_csv(path: Path) -> pd.DataFrame:
     parse = pacsv.ParseOptions(newlines_in_values=True)
     table = None
     for scan_type in (pa.int64(), pa.float64()):
-        types = {c: pa.float64() for c in NUMERIC_COLUMNS}
+        types = {c: pa.float64() for c in (*NUMERIC_COLUMNS, *OPTIONAL_COLUMNS)}
         types["scan"] = scan_type
         types["compound"] = pa.dictionary(pa.int32(), pa.string())
         opts = pacsv.ConvertOptions(column_types=types, strings_can_be_null=False)
@@ -56,7 +57,9 @@ def _read_csv(path: Path) -> pd.DataFrame:
     if table is None:
         # A cell that is not a number: read everything as text so that validation can name
         # its row and column.
-        text = pacsv.ConvertOptions(column_types=dict.fromkeys(INPUT_COLUMNS, pa.string()))
+        text = pacsv.ConvertOptions(
+            column_types=dict.fromkeys((*INPUT_COLUMNS, *OPTIONAL_COLUMNS), pa.string())
+        )
         table = pacsv.read_csv(path, parse_options=parse, convert_options=text)
         return table.to_pandas(split_blocks=True, self_destruct=True)
     try:

@@ -37,6 +37,7 @@ from polarbeam.reduction.branches import choose_branches, grouped_branches
 from polarbeam.reduction.columns import (
     CARRIED_COLUMNS,
     NUMERIC_COLUMNS,
+    OPTIONAL_COLUMNS,
     PER_SCAN_COLUMNS,
     all_finite,
     at_rows,
@@ -202,7 +203,7 @@ def _rows_by_scan(df: pd.DataFrame, source: str) -> _ScanRows:
     """Check the table (per-scan columns only converted) and sort its rows by scan."""
     cols = checked_columns(df, source, deferred=PER_SCAN_COLUMNS)
     names = cols["compound_names"]
-    row_keys = [*NUMERIC_COLUMNS, "compound_codes"]
+    row_keys = [*NUMERIC_COLUMNS, *OPTIONAL_COLUMNS, "compound_codes"]
     scan = cols["scan"]
     if len(scan) > 1 and np.any(scan[1:] < scan[:-1]):
         order = np.argsort(scan, kind="stable")
@@ -251,6 +252,20 @@ def _per_scan_values(df: pd.DataFrame, source: str, rows: _ScanRows) -> dict[str
                 f"{'compound' if col == 'compound_codes' else col} ({shown[0]!r} and "
                 f"{shown[1]!r}); a scan must have one value"
             )
+    for col in OPTIONAL_COLUMNS:  # blank (NaN) cells count as one value
+        if col not in cols:
+            continue
+        v = cols[col]
+        same = (v[1:] == v[:-1]) | (np.isnan(v[1:]) & np.isnan(v[:-1]))
+        inside = np.flatnonzero(~same) + 1
+        inside = inside[~is_start[inside]]
+        if inside.size:
+            i = int(inside[0])
+            raise InputError(
+                f"{source}: scan {scan[i]} has more than one {col} ({float(v[i - 1])!r} and "
+                f"{float(v[i])!r}); a scan must have one value"
+            )
+        per_scan[col] = v[starts]
     return per_scan
 
 
@@ -614,6 +629,7 @@ def _output_tables(
             "visibility_err": fits.visibility_err[sel],
             "flags": flag_text.take(sel),
             **{c: scans.per_scan[c][sel] for c in CARRIED_COLUMNS},
+            **{c: scans.per_scan[c][sel] for c in OPTIONAL_COLUMNS if c in scans.per_scan},
         }
     )
     references = pd.DataFrame(

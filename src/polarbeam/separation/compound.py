@@ -289,7 +289,7 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
     )
 
 
-def series_temperature(s, offset, warnings: list[str]):
+def series_temperature(s, offset, warnings: list[str], variables: dict | None = None):
     """The temperature T of the orientational term ⟨μ²⟩/(3kT) for one series, uncertain.
 
     The rotational temperature in the deflector when the series states one (its own error,
@@ -297,6 +297,10 @@ def series_temperature(s, offset, warnings: list[str]):
     offset ``offset`` (one uncertain number common to every series, or 0.0). A rotational
     temperature above the source temperature by more than its error adds a warning: rotational
     cooling in an expansion cannot heat the molecules.
+
+    ``variables`` (tag → uncertain variable, e.g. those of a compound's Debye fit) are reused
+    for the temperature variables of the same tag, so that a result built from this temperature
+    stays correlated with that fit.
     """
     rot = s.rotational
     if rot is not None:
@@ -306,17 +310,21 @@ def series_temperature(s, offset, warnings: list[str]):
                 f"source temperature by more than its error (rotational cooling cannot heat); "
                 "check rotational_temperature_K"
             )
-        if rot.error > 0:
-            return ufloat(rot.value, rot.error, tag=f"rotational temperature: {s.label}")
-        return rot.value
-    t = (
-        ufloat(s.temperature.value, s.temperature.error, tag=f"temperature: {s.label}")
-        if s.temperature.error > 0
-        else s.temperature.value
-    )
+        return _variable(rot, f"rotational temperature: {s.label}", variables)
+    t = _variable(s.temperature, f"temperature: {s.label}", variables)
     if isinstance(offset, float) and offset == 0.0:
         return t
     return t + offset
+
+
+def _variable(m, tag: str, variables: dict | None):
+    """``m`` (value ± error) as an uncertain variable tagged ``tag`` (the one in ``variables``
+    when there is one), or its value when the error is 0."""
+    if m.error <= 0:
+        return m.value
+    if variables and tag in variables:
+        return variables[tag]
+    return ufloat(m.value, m.error, tag=tag)
 
 
 def orientation_temperature_K(r) -> float:

@@ -455,8 +455,13 @@ def simulate_scan_campaign(
     title: str = "simulated raw-scan campaign",
     parquet: bool = False,
     response: ParticleResponse = LANGEVIN_DEBYE,
+    rotational_err_K: float = 1.0,
 ) -> SimulationTruth:
     """Like :func:`simulate_campaign` but writes raw fringe scans (``[data] scans``).
+
+    Compounds that give ``rotational_temperatures_K`` have their orientational term set by the
+    rotational temperature (drawn with ``rotational_err_K``), and the scan table gets the
+    ``rotational_temperature_K``/``_err_K`` columns (blank for the other compounds).
 
     Each series is a sequence of grating scans (Poisson counts with dark counts, visibility drawn
     in 10–40 %, linear drift plus a random walk of the interferometer phase) with zero-voltage
@@ -485,12 +490,15 @@ def simulate_scan_campaign(
         m_true = comp.mass_u * AMU
         a_si = alpha_si_from_a3(comp.alpha_A3)
         mu_si = si_from_debye(comp.dipole_D)
-        a_max = response.alpha_eff(a_si, mu_si, min(comp.temperatures_K))
+        rot = dict(zip(comp.temperatures_K, comp.rotational_temperatures_K, strict=False))
+        a_max = response.alpha_eff(a_si, mu_si, min(rot.values() or comp.temperatures_K))
         inv_v2 = 1.0 if kind == "time-domain" else (1 + 3 * spread_frac**2) / velocity_m_s**2
         vmax = math.sqrt(max_signal * m_true / (a_max * c_nom * inv_v2))
         ladder = np.linspace(vmax / n_voltages, vmax, n_voltages)
         for t_stated in comp.temperatures_K:
             t_true = t_stated + temperature_err_K * rng.standard_normal()
+            if t_stated in rot:  # the rotation in the deflector sets the orientational term
+                t_true = rot[t_stated] + rotational_err_K * rng.standard_normal()
             a_eff = response.alpha_eff(a_si, mu_si, t_true)
             v_err = velocity_err_frac * velocity_m_s
             v_true = velocity_m_s + v_err * rng.standard_normal()
@@ -525,6 +533,9 @@ def simulate_scan_campaign(
                 first_scan=first_scan,
                 rng=rng,
             )
+            if t_stated in rot:
+                sim.table["rotational_temperature_K"] = rot[t_stated]
+                sim.table["rotational_temperature_err_K"] = rotational_err_K
             tables.append(sim.table)
             first_scan = int(sim.table["scan"].max()) + 1
             t0 = float(sim.table["time_s"].max()) + 600.0
