@@ -159,6 +159,16 @@ class SimulationTruth:
     path: Path
 
 
+def _draw_instrument(spec: InstrumentSpec, rng: np.random.Generator):
+    """(nominal values, true values drawn from the stated errors, nominal coupling, true coupling):
+    the first draws of every simulated campaign."""
+    nominal = {k: v for k, (v, e, u) in spec.inputs.items()}
+    true = {k: v + e * rng.standard_normal() for k, (v, e, u) in spec.inputs.items()}
+    c_nom = coupling(*_setup(spec, nominal))
+    c_true = coupling(*_setup(spec, true))
+    return nominal, true, c_nom, c_true
+
+
 def _setup(spec: InstrumentSpec, values: dict[str, float]):
     layout = build_layout(spec.layout, values)
     g = values.get
@@ -230,11 +240,7 @@ def simulate_campaign(
     spec = spec or InstrumentSpec.talbot_lau()
     out = Path(out_dir)
     make_folder(out)
-    nominal = {k: v for k, (v, e, u) in spec.inputs.items()}
-    true = {k: v + e * rng.standard_normal() for k, (v, e, u) in spec.inputs.items()}
-    lay_n, defl_n = _setup(spec, nominal)
-    lay_t, defl_t = _setup(spec, true)
-    c_nom, c_true = coupling(lay_n, defl_n), coupling(lay_t, defl_t)
+    _, true, c_nom, c_true = _draw_instrument(spec, rng)
     kind = spec.layout
     is_profile = kind == "beam-profile"
     signal = max_signal * (1e-6 if is_profile else 1.0)
@@ -476,11 +482,7 @@ def simulate_scan_campaign(
         raise ValueError("raw fringe scans need a fringe layout")
     out = Path(out_dir)
     make_folder(out)
-    nominal = {k: v for k, (v, e, u) in spec.inputs.items()}
-    true = {k: v + e * rng.standard_normal() for k, (v, e, u) in spec.inputs.items()}
-    lay_n, defl_n = _setup(spec, nominal)
-    lay_t, defl_t = _setup(spec, true)
-    c_nom, c_true = coupling(lay_n, defl_n), coupling(lay_t, defl_t)
+    nominal, true, c_nom, c_true = _draw_instrument(spec, rng)
     period_true = true.get("instrument.grating_period", nominal["instrument.grating_period"])
     kind = spec.layout
     tables = []
