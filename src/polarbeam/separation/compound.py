@@ -195,6 +195,8 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 f"no significant dipole: μ < {debye_from_si(upper):.2f} D "
                 f"({st.upper_limit_cl:.0%} CL)"
             )
+            if alpha is not None and len(results) >= 2:
+                messages.append(_nonpolar_hint(results, temps, alpha))
     for r in results:
         a, da = r.alpha_eff.nominal_value, r.alpha_eff.std_dev
         if a <= 0:
@@ -355,6 +357,22 @@ def orientation_ratio(ctx: Context, model: str, results, dipole, upper, statemen
     vmax = max(float(np.max(np.abs(r.voltages))) for r in results)
     tmin = min(orientation_temperature_K(r) for r in results)
     return mu * ctx.field_per_volt * vmax / (BOLTZMANN * tmin), None
+
+
+def _nonpolar_hint(results, temps, alpha) -> str:
+    """What α would be if the molecule is nonpolar by symmetry (stated, not inferred).
+
+    The intercept of a free Debye line is an extrapolation to 1/T = 0 and keeps its full error
+    even when the slope is zero: any estimate of α that stays unbiased whatever the true
+    ⟨μ²⟩ ≥ 0 has at least that error (README, "Dipole statements"). Only a
+    dipole known from outside the data (symmetry, microwave spectra) buys the smaller error.
+    """
+    fixed = alpha_with_known_dipole([r.alpha_eff for r in results], temps, 0.0)
+    return (
+        f"if the molecule is nonpolar by symmetry, state dipole_known_D = 0: α would be "
+        f"{alpha_a3_from_si(fixed.nominal_value):.4g} ± {alpha_a3_from_si(fixed.std_dev):.2g} Å³ "
+        f"instead of ± {alpha_a3_from_si(alpha.std_dev):.2g} Å³ from the free Debye line"
+    )
 
 
 def _with_known_dipole(cd, results, temps, mu2_fitted):
