@@ -87,9 +87,7 @@ def series_from_reduction(reduction):
             problems[name] = str(exc)
             series.pop(name, None)
             continue
-        cov = reduction.covariance.get((name, temp))
-        if cov is None:
-            cov = reduction.covariance.get((t["compound"][sel].iloc[0], temp))
+        cov = _series_covariance(reduction.covariance, name, temp, t["compound"][sel].iloc[0])
         v = t["velocity_m_s"].to_numpy()[rows]
         series.setdefault(name, []).append(
             SeriesData(
@@ -102,7 +100,7 @@ def series_from_reduction(reduction):
                 values=t["phase_rad"].to_numpy()[rows].astype(float),
                 errors=t["phase_err_rad"].to_numpy()[rows].astype(float),
                 lines=tuple(str(x) for x in t["scan"].to_numpy()[rows]),
-                covariance=np.asarray(cov, dtype=float),
+                covariance=cov,
                 visibility=vis["relative_visibility"].to_numpy()[rows].astype(float),
                 visibility_err=vis["relative_visibility_err"].to_numpy()[rows].astype(float),
                 rotational=rot,
@@ -111,6 +109,21 @@ def series_from_reduction(reduction):
     for name in series:
         series[name].sort(key=lambda s: s.temperature.value)
     return series, problems, notes
+
+
+#: Series longer than this keep their phase covariance sparse (a dense one would need n² floats).
+DENSE_SERIES_LIMIT = 2000
+
+
+def _series_covariance(covariances, name: str, temp: float, raw_name):
+    """A series' phase covariance: sparse when the reduction keeps it banded (a long series is
+    never made dense here; the fit factorises it in banded storage), else a dense array."""
+    key = (name, temp) if (name, temp) in covariances else (raw_name, temp)
+    if key not in covariances:
+        return None
+    if hasattr(covariances, "sparse") and covariances.sparse(key).shape[0] > DENSE_SERIES_LIMIT:
+        return covariances.sparse(key)
+    return np.asarray(covariances[key], dtype=float)
 
 
 def _cell_text(value: float) -> str:

@@ -4,6 +4,7 @@ series and compound records every later stage works on (plain frozen dataclasses
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -105,7 +106,7 @@ class SeriesData:
     values: np.ndarray
     errors: np.ndarray
     lines: tuple[int, ...]
-    covariance: np.ndarray | None = None
+    covariance: Any = None  # dense ndarray, a scipy.sparse matrix (banded phases) or None
     visibility: np.ndarray | None = None
     visibility_err: np.ndarray | None = None
     rotational: Measured | None = None  # rotational temperature in the deflector, when stated

@@ -22,13 +22,14 @@ from dataclasses import dataclass
 import lmfit
 import numpy as np
 import uncertainties
-from scipy import linalg, stats
+from scipy import stats
 
 from polarbeam.beam.distributions import GaussianVelocity
 from polarbeam.beam.velocity import averaged_phasor_phase, mean_inverse_square
 from polarbeam.constants import ANGSTROM3_SI
 from polarbeam.contract.campaign import SeriesData
 from polarbeam.errors import FitError
+from polarbeam.extraction.whitening import whitener
 from polarbeam.uncertain import FIT_TAG
 
 __all__ = ["SeriesFit", "alpha_eff_with_errors", "fit_series", "observable_model"]
@@ -93,14 +94,6 @@ class SeriesFit:
         return float(stats.chi2.sf(self.chi2, self.ndof)) if self.ndof > 0 else math.nan
 
 
-def _whitener(series: SeriesData):
-    if series.covariance is not None:
-        chol = linalg.cholesky(series.covariance, lower=True)
-        return lambda r: linalg.solve_triangular(chol, r, lower=True)
-    inv = 1.0 / series.errors
-    return lambda r: r * inv
-
-
 def fit_series(
     series: SeriesData,
     coupling: float,
@@ -118,7 +111,7 @@ def fit_series(
     V, y = series.voltages, series.values
     vel, spr = series.velocities, series.spreads
     com = coupling / mass
-    white = _whitener(series)
+    white = whitener(series.covariance, series.errors)
 
     def shape(alpha):
         return observable_model(alpha, V, com, vel, spr, kind, nodes)[0]

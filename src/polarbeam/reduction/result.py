@@ -38,6 +38,9 @@ class DenseOnAccess(Mapping):
             self._dense[key] = self._sparse[key].toarray()
         return self._dense[key]
 
+    def __contains__(self, key) -> bool:  # without making the matrix dense
+        return key in self._sparse
+
     def __iter__(self):
         return iter(self._sparse)
 
