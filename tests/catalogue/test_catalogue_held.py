@@ -348,7 +348,7 @@ CASES = [
         _with(("[campaign]", '[campaign]\ntitel = "x"')),
         2,
         r"^error: campaign\.toml: unknown key\(s\) in \[campaign\]: 'titel'; expected one of "
-        r"title, description$",
+        r"title, description \(did you mean 'title'\?\)$",
         _no_outputs,
     ),
     Case(

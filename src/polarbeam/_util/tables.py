@@ -8,7 +8,7 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
-from polarbeam._util.text import NOT_A_TABLE, looks_like_header
+from polarbeam._util.text import NOT_A_TABLE, column_hints, looks_like_header, other_separator
 from polarbeam.errors import InputError, RowValueError
 
 __all__ = ["CELL_BLANKS", "Table", "csv_records", "read_table", "text_problem"]
@@ -144,13 +144,19 @@ def read_table(path: Path, required: tuple[str, ...], what: str = "table") -> Ta
         raise InputError(f"{path}: expected a header line with columns, found an empty file")
     header = tuple(h.strip() for h in parsed[0][1])
     missing = [c for c in required if c not in header]
+    if missing and (sep := other_separator(header)) is not None:
+        raise InputError(
+            f"{path.name}: the header is {sep}-separated; expected a comma-separated CSV file "
+            f"with columns {', '.join(required)} (export it again with commas)"
+        )
     if missing and not looks_like_header(header, required):
         # a path in campaign.toml may name any file: never echo a line that is not ours
         raise InputError(f"{path.name}: {NOT_A_TABLE}; expected columns {', '.join(required)}")
     if missing:
+        hint = column_hints(missing, header, required)
         raise InputError(
             f"{path.name}: missing column(s) {', '.join(missing)}; expected {', '.join(required)}, "
-            f"found {', '.join(header) or 'none'}"
+            f"found {', '.join(header) or 'none'}" + (f" ({hint})" if hint else "")
         )
     if len(set(header)) != len(header):
         dup = sorted({h for h in header if header.count(h) > 1})

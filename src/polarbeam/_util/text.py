@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import difflib
 import hashlib
 import math
 import re
@@ -11,6 +12,8 @@ from pandas.api.types import is_bool_dtype, is_numeric_dtype
 __all__ = [
     "FORMULA_CHARS",
     "NOT_A_TABLE",
+    "close_name",
+    "column_hints",
     "finite_or_none",
     "formula_guard",
     "guarded_frame",
@@ -18,6 +21,7 @@ __all__ = [
     "input_label",
     "join_message",
     "looks_like_header",
+    "other_separator",
     "safe_name",
     "terminal_safe",
 ]
@@ -39,6 +43,56 @@ def looks_like_header(cells, known=()) -> bool:
     if not cells or not all(c == "" or _HEADER_CELL.fullmatch(c) for c in cells):
         return False
     return len(cells) >= 2 or any(c in known for c in cells)
+
+
+def close_name(name: str, choices) -> str | None:
+    """The one choice ``name`` is most likely a misspelling of (difflib ratio ≥ 0.75), or None."""
+    match = difflib.get_close_matches(str(name), [str(c) for c in choices], n=1, cutoff=0.75)
+    return match[0] if match else None
+
+
+# a column named with a unit other than the SI one polarbeam expects: stem_unit
+_UNIT_SUFFIX = re.compile(r"^(?P<stem>.+)_(?P<unit>[A-Za-z0-9]+)$")
+
+
+def column_hints(missing, header, expected=()) -> str:
+    """What to do about missing columns, from the header found: a unit prefix where polarbeam
+    wants SI (``voltage_kV`` → "columns are in SI: use voltage_V") or a misspelling ("did you
+    mean ..."). Columns found that are ``expected`` themselves are never suggested. Empty when
+    nothing helps. Only column-like names are ever echoed."""
+    found = [
+        str(h).strip()
+        for h in header
+        if _HEADER_CELL.fullmatch(str(h).strip()) and str(h).strip() not in expected
+    ]
+    hints: list[str] = []
+    for col in missing:
+        want = _UNIT_SUFFIX.match(col)
+        units = [
+            h
+            for h in found
+            if want
+            and (m := _UNIT_SUFFIX.match(h))
+            and m["stem"] == want["stem"]
+            and m["unit"] != want["unit"]
+        ]
+        if units:
+            hints.append(f"columns are in SI: use {col}, not {units[0]}")
+        elif (near := close_name(col, found)) is not None:
+            hints.append(f"found {near}: did you mean {col}?")
+    return "; ".join(hints)
+
+
+def other_separator(cells) -> str | None:
+    """ "semicolon" or "tab" when a one-cell header is really a header of ours split by that
+    character (a spreadsheet export in another locale); else None."""
+    if len(cells) != 1:
+        return None
+    for char, name in ((";", "semicolon"), ("\t", "tab")):
+        parts = str(cells[0]).split(char)
+        if len(parts) >= 2 and looks_like_header(parts):
+            return name
+    return None
 
 
 def header_for_message(cells, known=()) -> str:

@@ -35,6 +35,7 @@ import numpy as np
 
 from polarbeam import chemistry as st
 from polarbeam._util.tables import CELL_BLANKS, Table, read_table
+from polarbeam._util.text import close_name
 from polarbeam.chemistry import read_computed, read_sdf
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.numerical import (
@@ -269,8 +270,17 @@ def check_keys(doc: dict, fname: str) -> None:
         if bad:
             raise InputError(
                 f"{fname}: unknown key(s) in [{table}]: {', '.join(repr(k) for k in bad)}; "
-                f"expected one of {', '.join(keys)}"
+                f"expected one of {', '.join(keys)}{key_hint(bad[0], table)}"
             )
+
+
+def key_hint(key: str, table: str) -> str:
+    """ " (did you mean 'x'?)" for a misspelt key, or where a key of another table belongs."""
+    home = [t for t, keys in _SCHEMA.items() if t != table and key in keys]
+    if home:
+        return f" ({key!r} belongs in [{home[0]}])"
+    near = close_name(key, _SCHEMA[table])
+    return f" (did you mean {near!r}?)" if near else ""
 
 
 def require_str(table: dict, key: str, where: str, choices=None) -> str:

@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from polarbeam._util.optional import require
+from polarbeam._util.text import column_hints, other_separator
 from polarbeam.errors import InputError, RowValueError
 
 __all__ = [
@@ -284,10 +285,16 @@ def checked_columns(
     if not isinstance(df, pd.DataFrame):
         raise InputError(f"{source}: expected a table, found {type(df).__name__}")
     missing = [c for c in INPUT_COLUMNS if c not in df.columns]
+    if missing and (sep := other_separator([str(c) for c in df.columns])) is not None:
+        raise InputError(
+            f"{source}: the header is {sep}-separated; expected a comma-separated CSV file "
+            f"with columns {', '.join(INPUT_COLUMNS)} (export it again with commas)"
+        )
     if missing:
+        hint = column_hints(missing, [str(c) for c in df.columns], INPUT_COLUMNS)
         raise InputError(
             f"{source}: missing column(s) {', '.join(missing)} "
-            f"(expected {', '.join(INPUT_COLUMNS)})"
+            f"(expected {', '.join(INPUT_COLUMNS)})" + (f"; {hint}" if hint else "")
         )
     if len(df) == 0:
         raise InputError(f"{source}: no data rows")
