@@ -24,8 +24,29 @@ app = typer.Typer(
     add_completion=False,
     pretty_exceptions_enable=False,
     no_args_is_help=True,
+    # plain help: Rich markup would swallow the bracketed words of the contract ([data], [qc])
+    rich_markup_mode=None,
     help="polarbeam: polarizabilities and dipole moments from beam-deflection campaigns.",
 )
+
+
+def _print_version(value: bool) -> None:
+    if value:
+        typer.echo(f"polarbeam {pb.__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _root(
+    version: bool = typer.Option(
+        False,
+        "--version",
+        help="Print the polarbeam version and exit.",
+        is_eager=True,
+        callback=_print_version,
+    ),
+) -> None:
+    """polarbeam: polarizabilities and dipole moments from beam-deflection campaigns."""
 
 
 def _fail(exc: Exception, code: int = 2):
