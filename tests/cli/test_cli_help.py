@@ -44,3 +44,19 @@ def test_some_help_text_has_bracketed_words():
         getattr(p, "help", None) or "" for c in _COMMANDS.values() for p in c.params
     ]
     assert sum(len(_BRACKETED.findall(t)) for t in texts) >= 2
+
+
+@pytest.mark.parametrize("name", ["analyze", "reduce", "plan", "estimate", "compute", "demo"])
+def test_nothing_is_written_into_the_current_folder_unasked(name, tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    args = {"demo": [], "compute": ["O"]}.get(name, [str(tmp_path / "missing.toml")])
+    out = CliRunner().invoke(app, [name, *args])
+    assert out.exit_code == 2  # click's usage error: --out is required
+    assert "--out" in out.output
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("name", ["analyze", "reduce", "plan", "estimate", "compute", "demo"])
+def test_out_help_says_folder_or_file(name):
+    (opt,) = [p for p in _COMMANDS[name].params if "--out" in getattr(p, "opts", ())]
+    assert opt.help.startswith(("folder to write", "file to write"))

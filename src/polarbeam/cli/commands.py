@@ -59,7 +59,7 @@ def analyze(
     campaigns: list[Path] = typer.Argument(
         ..., help="campaign.toml file(s), or folder(s) of campaigns"
     ),
-    out: Path = typer.Option(Path("results"), "--out", "-o", help="results folder"),
+    out: Path = typer.Option(..., "--out", "-o", help="folder to write the results into"),
     quiet: bool = typer.Option(False, "--quiet", "-q", help="no terminal table or progress"),
     jobs: int = typer.Option(
         None,
@@ -107,7 +107,7 @@ def analyze(
 @app.command()
 def reduce(
     campaign: Path = typer.Argument(..., help="campaign.toml with [data] scans"),
-    out: Path = typer.Option(Path("phases.csv"), "--out", "-o", help="phases CSV to write"),
+    out: Path = typer.Option(..., "--out", "-o", help="file to write the phases to (.csv)"),
 ):
     """Reduce raw fringe scans to drift-corrected phases (one row per non-reference scan)."""
     try:
@@ -133,7 +133,7 @@ def reduce(
 @app.command()
 def plan(
     campaign: Path = typer.Argument(..., help="campaign.toml with a [plan] table and no data"),
-    out: Path = typer.Option(Path("plan"), "--out", "-o", help="plan folder"),
+    out: Path = typer.Option(..., "--out", "-o", help="folder to write the plan into"),
     rehearsal: bool = typer.Option(True, help="write rehearsal/ (simulated raw scans)"),
 ):
     """Plan a campaign: predicted phases, voltage ladders, expected precision, beam time."""
@@ -163,7 +163,7 @@ def plan(
 @app.command()
 def estimate(
     input: Path = typer.Argument(..., help="CSV with compound, smiles (+ any columns) or an SDF"),
-    out: Path = typer.Option(..., "--out", "-o", help="output CSV"),
+    out: Path = typer.Option(..., "--out", "-o", help="file to write the estimates to (.csv)"),
     dipoles: bool = typer.Option(False, "--dipoles", help="conformer dipoles (slower)"),
     conformers: int = typer.Option(10, help="conformers per molecule for --dipoles"),
     seed: int = typer.Option(61453, help="random seed of the conformer embedding"),
@@ -195,7 +195,9 @@ def compute(
     ),
     method: str = typer.Option("b3lyp", help="hf or a DFT functional known to PySCF"),
     basis: str = typer.Option("def2-svpd", help="basis set"),
-    out: Path = typer.Option(Path("computed.csv"), "--out", "-o", help="computed.csv to write"),
+    out: Path = typer.Option(
+        ..., "--out", "-o", help="file to write the results to (computed.csv)"
+    ),
     polarizability: str = typer.Option("analytic", help="analytic (CPHF/CPKS) or finite-field"),
     max_seconds: float = typer.Option(1800.0, help="refuse calculations estimated to take longer"),
     d4: bool = typer.Option(False, "--d4", help="fast D4-model polarizability instead of SCF"),
@@ -258,7 +260,9 @@ def field(
     campaign: Path = typer.Argument(..., help="campaign.toml"),
     voltage: str = typer.Option(..., "--voltage", help='voltage between the electrodes, "10 kV"'),
     as_json: bool = typer.Option(False, "--json", help="print one JSON object (SI units)"),
-    plot: Path | None = typer.Option(None, "--plot", help="save equipotentials and the beam"),
+    plot: Path | None = typer.Option(
+        None, "--plot", help="file to save the equipotentials and the beam to (.png, .svg, .pdf)"
+    ),
 ):
     """Deflector field at the beam: E, ∂E/∂x, E·∂E/∂x, g, its variation and numerical error."""
     import json
@@ -276,7 +280,7 @@ def field(
 
 @app.command()
 def demo(
-    out: Path = typer.Option(Path("examples/demo"), "--out", "-o"),
+    out: Path = typer.Option(..., "--out", "-o", help="folder to write the demo campaign into"),
     scans: bool = typer.Option(False, "--scans", help="the raw-scan variant instead"),
 ):
     """Rewrite the invented demo campaign (deterministic)."""
