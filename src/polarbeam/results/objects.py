@@ -14,6 +14,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import uncertainties
 from uncertainties import UFloat
 
 from polarbeam._util.cautions import CAUTIONS
@@ -28,6 +29,7 @@ __all__ = [
     "CampaignResult",
     "CompoundResult",
     "SeriesResult",
+    "correlation",
     "register_writer",
     "writer",
 ]
@@ -76,6 +78,13 @@ class SeriesResult:
     extra: dict[str, Any] = field(default_factory=dict)
     visibility: np.ndarray | None = None  # relative to the zero-field references (raw scans)
     visibility_err: np.ndarray | None = None
+
+    def __repr__(self) -> str:
+        return (
+            f"SeriesResult({self.compound!r} @ {self.temperature_K:g} K: α_eff = "
+            f"{format_value_error(self.alpha_eff_A3, self.alpha_eff_err_A3)} Å³, "
+            f"{self.n_points} points)"
+        )
 
     @property
     def n_points(self) -> int:
@@ -188,6 +197,75 @@ class CompoundResult:
         if self.status not in STATUS:
             raise ValueError(f"status must be one of {STATUS}, found {self.status!r}")
 
+    # Values in the units people read (the properties.csv columns), for notebooks.
+    @property
+    def alpha_A3(self) -> float | None:
+        return self.row()["alpha_A3"]
+
+    @property
+    def alpha_err_A3(self) -> float | None:
+        return self.row()["alpha_err_A3"]
+
+    @property
+    def dipole_D(self) -> float | None:
+        return self.row()["dipole_D"]
+
+    @property
+    def dipole_err_D(self) -> float | None:
+        return self.row()["dipole_err_D"]
+
+    @property
+    def dipole_upper_D(self) -> float | None:
+        return self.row()["dipole_upper_D"]
+
+    @property
+    def dipole_lo_D(self) -> float | None:
+        return self.row()["dipole_lo_D"]
+
+    @property
+    def dipole_hi_D(self) -> float | None:
+        return self.row()["dipole_hi_D"]
+
+    @property
+    def alpha_mu2_correlation(self) -> float | None:
+        """Correlation coefficient of α and ⟨μ²⟩ (the Debye line's intercept and slope), from
+        their shared error budget; None without both."""
+        return correlation(self.alpha, self.mu2)
+
+    def to_dataframe(self) -> pd.DataFrame:
+        """The compound's series as a table (the series.csv rows)."""
+        return pd.DataFrame([s.row() for s in self.series])
+
+    def __repr__(self) -> str:
+        return f"CompoundResult({self.compound!r}, {self.status}: {self._statement_text()})"
+
+    def _statement_text(self) -> str:
+        r = self.row()
+        parts = []
+        if r["alpha_A3"] is not None:
+            parts.append(f"α = {format_value_error(r['alpha_A3'], r['alpha_err_A3'])} Å³")
+        if r["dipole_D"] is not None:
+            parts.append(f"μ = {format_value_error(r['dipole_D'], r['dipole_err_D'])} D")
+        elif r["dipole_upper_D"] is not None:
+            parts.append(f"μ < {r['dipole_upper_D']:.2f} D")
+        return ", ".join(parts) or "no result"
+
+    def _repr_html_(self) -> str:
+        rows = "".join(
+            f"<tr><td>{s.temperature_K:g}</td><td>{s.n_points}</td>"
+            f"<td>{format_value_error(s.alpha_eff_A3, s.alpha_eff_err_A3)}</td>"
+            f"<td>{s.reduced_chi2:.2f}</td></tr>"
+            for s in self.series
+        )
+        corr = self.alpha_mu2_correlation
+        extra = f"; corr(α, ⟨μ²⟩) = {corr:+.2f}" if corr is not None else ""
+        return (
+            f"<p><b>{html.escape(self.compound)}</b> ({html.escape(self.status)}): "
+            f"{html.escape(self._statement_text())}{extra}</p>"
+            f"<p>{html.escape(self.message)}</p><table><thead><tr><th>T (K)</th><th>points</th>"
+            "<th>α_eff (Å³)</th><th>χ²/ν</th></tr></thead><tbody>" + rows + "</tbody></table>"
+        )
+
     def row(self) -> dict[str, Any]:
         """The ``properties.csv`` row."""
         a = self.alpha
@@ -255,11 +333,19 @@ class CompoundResult:
                 else None
             ),
             "debye_fit": {"chi2": finite_or_none(self.debye_chi2), "ndof": self.debye_ndof},
+            "alpha_mu2_correlation": self.alpha_mu2_correlation,
             "alpha_eff_correlation": _correlation(self.series),
             "series": [s.summary() for s in self.series],
             "warnings": list(self.warnings),
             "extra": {k: v for k, v in self.extra.items()},
         }
+
+
+def correlation(a: UFloat | None, b: UFloat | None) -> float | None:
+    """Correlation coefficient of two uncertain numbers from their shared variables."""
+    if a is None or b is None or not (a.std_dev > 0 and b.std_dev > 0):
+        return None
+    return float(uncertainties.correlation_matrix([a, b])[0, 1])
 
 
 def _records(df) -> list[dict[str, Any]] | None:
@@ -315,6 +401,16 @@ class CampaignResult:
     @property
     def properties(self) -> pd.DataFrame:
         return pd.DataFrame([c.row() for c in self.compounds])
+
+    def to_dataframe(self) -> pd.DataFrame:
+        """The properties table (one row per compound, the properties.csv columns)."""
+        return self.properties
+
+    def __repr__(self) -> str:
+        return (
+            f"CampaignResult({self.title!r}: {len(self.compounds)} compound(s), "
+            f"{self.n_failed} failed, {self.layout}, {self.model} deflector)"
+        )
 
     @property
     def n_failed(self) -> int:
