@@ -15,7 +15,7 @@ from pathlib import Path
 
 from polarbeam.errors import InputError
 
-__all__ = ["resolve_data_file"]
+__all__ = ["input_files", "resolve_data_file"]
 
 
 def _kind(mode: int) -> str:
@@ -61,3 +61,24 @@ def resolve_data_file(base: str | os.PathLike, raw: str, where: str) -> Path:
     if not stat.S_ISREG(mode):
         raise InputError(f"{where}: expected a regular file, found {_kind(mode)}: {path}")
     return path
+
+
+def input_files(campaign_path: str | os.PathLike, doc: dict) -> list[Path]:
+    """campaign.toml and every existing file its ``[data]``, ``[deflector]`` and ``[beam]``
+    tables name (for the provenance of a result; globs and missing files are left out)."""
+    path = Path(campaign_path)
+    out = [path]
+    for table in ("data", "deflector", "beam", "gratings"):
+        values = doc.get(table, {})
+        if not isinstance(values, dict):
+            continue
+        for value in values.values():
+            for item in value if isinstance(value, list) else [value]:
+                if isinstance(item, str) and item and not any(ch in item for ch in "*?["):
+                    candidate = path.parent / item
+                    try:
+                        if candidate.is_file():
+                            out.append(candidate)
+                    except OSError:  # a name too long or otherwise unusable: not a file
+                        continue
+    return out

@@ -16,6 +16,7 @@ from polarbeam._util.atomic import write_text_atomic
 from polarbeam._util.cautions import CAUTIONS
 from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
 from polarbeam.quantities import value_error_text
+from polarbeam.report.latex import latex_table
 from polarbeam.report.recoil import (
     recoil_markdown_lines,
     recoil_terminal_lines,
@@ -86,6 +87,8 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
     if result.series_comparison is not None and len(result.series_comparison):
         write_text_atomic(out / "comparison_series.csv", _csv(result.series_comparison.copy(), ()))
     write_text_atomic(out / "report.md", render_markdown(result))
+    if any(c.status != "failed" for c in result.compounds):
+        write_text_atomic(out / "report.tex", latex_table(result))
     recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
     if recoil is not None:
         write_recoil_results(recoil, out)

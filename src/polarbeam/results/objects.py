@@ -384,6 +384,7 @@ class CampaignResult:
     parity: pd.DataFrame | None = None  # per-method deviation statistics
     calibration: dict[str, Any] | None = None  # reference-compound calibration (calibration.py)
     input_warnings: tuple[str, ...] = ()  # implausible inputs (also in notes), for stderr
+    provenance: dict[str, Any] = field(default_factory=dict)  # date, software, input hashes
 
     @property
     def series(self) -> pd.DataFrame:
@@ -428,6 +429,7 @@ class CampaignResult:
     def summary(self) -> dict[str, Any]:
         return {
             "software": {"name": "polarbeam", "version": self.version},
+            "provenance": self.provenance,
             "campaign": {
                 "title": self.title,
                 "source": self.source,

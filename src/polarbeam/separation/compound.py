@@ -12,8 +12,10 @@ import math
 import numpy as np
 from uncertainties import ufloat
 
+from polarbeam._util.provenance import provenance
 from polarbeam.constants import AMU, BOLTZMANN, alpha_a3_from_si, debye_from_si
 from polarbeam.contract.campaign import Campaign, CompoundData
+from polarbeam.contract.paths import input_files
 from polarbeam.errors import CompoundError
 from polarbeam.extraction.context import Context
 from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
@@ -288,6 +290,7 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         unmeasured=c.unmeasured,
         notes=tuple(notes),
         input_warnings=c.warnings,
+        provenance=provenance(input_files(c.path, c.raw)),
     )
 
 
