@@ -15,6 +15,7 @@ from polarbeam._util.outfolder import (
     held_folder,
     is_stale_temporary,
     output_folder,
+    written_files,
 )
 from polarbeam.errors import FolderInUseError, InputError
 
@@ -123,3 +124,14 @@ def test_stale_temporaries_are_the_atomic_writers_only(tmp_path):
         pass
     assert not (out / "compounds" / ".a.json.abcdefgh.tmp").exists()
     assert (out / "draft.tmp").exists()
+
+
+def test_written_files_lists_what_this_run_wrote(tmp_path):
+    (tmp_path / "notes.txt").write_text("mine", encoding="utf-8")
+    with output_folder(tmp_path):
+        for name in ("report.tex", "properties.csv", "series.csv", "batch-state.json"):
+            write_text_atomic(tmp_path / name, "x")
+        (tmp_path / "figures").mkdir()
+        write_text_atomic(tmp_path / "figures" / "a.png", "x")
+    # main tables first, then the rest sorted; state files, sub-folders and user files left out
+    assert written_files(tmp_path) == ["series.csv", "properties.csv", "report.tex"]

@@ -40,6 +40,7 @@ __all__ = [
     "held_folder",
     "is_stale_temporary",
     "output_folder",
+    "written_files",
 ]
 
 MANIFEST_FILE = ".polarbeam-manifest.json"
@@ -68,6 +69,22 @@ def _read_manifest(root: Path) -> set[str]:
     if not isinstance(files, list):
         return set()
     return {f for f in files if isinstance(f, str) and _safe_relative(f)}
+
+
+_FIRST = ("series.csv", "properties.csv", "results.json", "report.md", "report.html")
+
+
+def written_files(root: str | Path) -> list[str]:
+    """The files polarbeam wrote at the top of a results folder (from its manifest, those that
+    exist), the main tables first; sub-folders such as ``figures/`` and the run's own state
+    files (``*-state.json``) are not listed."""
+    root = Path(root)
+    top = sorted(
+        f
+        for f in _read_manifest(root)
+        if "/" not in f and not f.endswith("-state.json") and (root / f).is_file()
+    )
+    return [f for f in _FIRST if f in top] + [f for f in top if f not in _FIRST]
 
 
 def _safe_relative(rel: str) -> bool:

@@ -32,7 +32,7 @@ from pathlib import Path
 from typing import Any
 
 from polarbeam._util.atomic import write_text_atomic
-from polarbeam._util.outfolder import held_folder, output_folder
+from polarbeam._util.outfolder import held_folder, output_folder, written_files
 from polarbeam._util.text import safe_name
 from polarbeam.batch.inputs import campaign_key, compound_hashes, discover_campaigns
 from polarbeam.batch.progress import ProgressEvent, TerminalProgress
@@ -365,8 +365,8 @@ def run_cli(
             reused = f", {run.reused} reused" if run.reused else ""
             echo(
                 f"{run.name}: {len(r.compounds)} compound(s), {n_fail} failed, {n_warn} with "
-                f"warnings{reused}; written to {run.out}/ (series.csv, properties.csv, "
-                "results.json, report.md, report.html)"
+                f"warnings{reused}; written to {run.out}/ "
+                f"({', '.join(written_files(run.out)) or 'no files'})"
             )
         if quiet or len(r.compounds) > table_limit:
             for c in r.compounds:
