@@ -3,6 +3,8 @@ by the simulator) and the output files a batch is compared by."""
 
 from __future__ import annotations
 
+import json
+
 from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
 OUTPUTS = ("series.csv", "properties.csv", "results.json", "report.md", "report.html")
@@ -17,8 +19,17 @@ def make_campaign(path, n=5, seed=11):
     return path / "campaign.toml"
 
 
+def _without_provenance(raw: bytes) -> bytes:
+    """results.json without its provenance block (date and command differ between runs by
+    design; everything else must be byte-identical)."""
+    doc = json.loads(raw)
+    doc.pop("provenance", None)
+    return json.dumps(doc, sort_keys=True).encode()
+
+
 def output_files(folder):
     out = {name: (folder / name).read_bytes() for name in OUTPUTS}
+    out["results.json"] = _without_provenance(out["results.json"])
     for f in sorted((folder / "compounds").glob("*.json")):
         out[f"compounds/{f.name}"] = f.read_bytes()
     return out

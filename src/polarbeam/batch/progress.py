@@ -67,7 +67,8 @@ class TerminalProgress:
     def __call__(self, ev: ProgressEvent) -> None:
         now = time.perf_counter()
         if ev.compound is None:
-            self._first, self._last = None, now
+            # rates count from the campaign's start, as the closing "N compound(s) in T s" does
+            self._first, self._last = (now, ev.done), now
             if self._bar is not None:
                 if self._task is not None:
                     self._bar.stop_task(self._task)
@@ -85,9 +86,6 @@ class TerminalProgress:
         if self._bar is not None:
             self._bar.update(self._task, completed=ev.done)
             return
-        if self._first is None:  # rates from the first result on (workers take a while to start)
-            self._first = (now, ev.done)
-            self._last = now
         if ev.done == ev.total or now - self._last >= self.every_s:
             self._last = now
             t1, d1 = self._first

@@ -376,5 +376,6 @@ def run_cli(
             if c.status == "failed":
                 echo(f"failed (recoil): {c.compound}: {c.message}", err=True)
     if not quiet:
-        echo(f"{outcome.n_compounds} compound(s) in {outcome.seconds:.1f} s")
+        rate = outcome.n_compounds / outcome.seconds if outcome.seconds > 0 else 0.0
+        echo(f"{outcome.n_compounds} compound(s) in {outcome.seconds:.1f} s ({rate:.1f}/s)")
     return outcome.exit_code
