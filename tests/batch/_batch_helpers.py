@@ -33,3 +33,10 @@ def output_files(folder):
     for f in sorted((folder / "compounds").glob("*.json")):
         out[f"compounds/{f.name}"] = f.read_bytes()
     return out
+
+
+def comparable_summary(result) -> dict:
+    """A campaign result's summary without the provenance block (date and command)."""
+    doc = result.summary()
+    doc.pop("provenance", None)
+    return doc

@@ -345,7 +345,9 @@ def correlation(a: UFloat | None, b: UFloat | None) -> float | None:
     """Correlation coefficient of two uncertain numbers from their shared variables."""
     if a is None or b is None or not (a.std_dev > 0 and b.std_dev > 0):
         return None
-    return float(uncertainties.correlation_matrix([a, b])[0, 1])
+    # rounded: the last bits depend on the order the shared variables are summed in, which
+    # differs between a result made in this process and one rebuilt from a batch record
+    return round(float(uncertainties.correlation_matrix([a, b])[0, 1]), 12)
 
 
 def _records(df) -> list[dict[str, Any]] | None:
