@@ -265,9 +265,9 @@ def test_dipole_error_covers_cccbdb_organics(cccbdb_pairs):
     mare = np.mean([abs(c / e - 1) for _, e, c, _ in org])
     frac = float(np.mean(inside))
     print(f"CCCBDB organics n={len(org)}: fraction inside 1σ {frac:.3f}, MARE {100 * mare:.1f} %")
-    assert len(org) >= 180
+    assert len(org) >= 180  # 191 with chemicals 1.5.2
     assert 0.60 <= frac <= 0.80
-    assert 0.15 <= mare <= 0.35  # measured 24.5 %: the estimate is rough, its error says so
+    assert 0.15 <= mare <= 0.35  # measured 24.3 % (coverage 0.681): rough, and its error says so
 
 
 @pytest.mark.slow

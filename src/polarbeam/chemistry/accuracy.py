@@ -177,11 +177,11 @@ DIPOLE_FLOOR_D = 0.5
 
 #: ``f_class``: 68.3 % quantile of ``|μ_exp − μ_est| / max(μ_est, DIPOLE_FLOOR_D)`` over the NIST
 #: CCCBDB experimental dipoles above 0.5 D of that class (chemicals.dipole, CAS → SMILES by
-#: chemicals.identifiers; 10 conformers, seed 61453, 300 K, scaled MMFF94 charges; n = 12, 18, 60,
+#: chemicals.identifiers; 10 conformers, seed 61453, 300 K, scaled MMFF94 charges; n = 12, 17, 60,
 #: 102 and 48).
 DIPOLE_CLASS_FACTOR: dict[str, float] = {
     "aliphatic": 0.883,
-    "aromatic": 0.458,
+    "aromatic": 0.459,
     "halogenated": 0.231,
     "nos": 0.196,
     "inorganic": 0.602,

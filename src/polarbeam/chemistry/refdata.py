@@ -27,6 +27,7 @@ from rdkit import Chem, rdBase
 from polarbeam._util.optional import require
 
 __all__ = [
+    "CCCBDB_MAX_HEAVY_ATOMS",
     "CCCBDB_SOURCE",
     "LL_SOURCE",
     "CccbdbDipole",
@@ -59,9 +60,16 @@ def _canonical(smiles: str) -> str | None:
     return None if mol is None else Chem.MolToSmiles(mol)
 
 
+#: CCCBDB is a table of small molecules (its largest have 10 heavy atoms); a structure above this
+#: is a wrong CAS → SMILES mapping (``chemicals.identifiers`` maps 14989-30-1, "Monochlorine
+#: monoxide", to a 24-heavy-atom drug) and is left out.
+CCCBDB_MAX_HEAVY_ATOMS = 12
+
+
 @lru_cache(maxsize=1)
 def cccbdb_dipoles() -> tuple[CccbdbDipole, ...]:
-    """Every CCCBDB dipole whose CAS number ``chemicals.identifiers`` maps to a parsable SMILES."""
+    """Every CCCBDB dipole whose CAS number ``chemicals.identifiers`` maps to a parsable SMILES
+    of a small molecule (at most :data:`CCCBDB_MAX_HEAVY_ATOMS` heavy atoms)."""
     dipole = require("chemicals.dipole", _PURPOSE)
     ident = require("chemicals.identifiers", _PURPOSE)
     table = dipole.dipole_data_CCDB
@@ -73,9 +81,14 @@ def cccbdb_dipoles() -> tuple[CccbdbDipole, ...]:
             continue
         canon = _canonical(smiles) if smiles else None
         mu = float(row["dipole_moment"])
-        if canon and math.isfinite(mu):
+        if canon and math.isfinite(mu) and _heavy_atoms(canon) <= CCCBDB_MAX_HEAVY_ATOMS:
             out.append(CccbdbDipole(str(cas), str(row["Chemical"]), canon, mu))
     return tuple(out)
+
+
+def _heavy_atoms(smiles: str) -> int:
+    with rdBase.BlockLogs():
+        return Chem.MolFromSmiles(smiles).GetNumHeavyAtoms()
 
 
 @lru_cache(maxsize=1)
