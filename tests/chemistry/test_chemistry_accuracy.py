@@ -294,3 +294,42 @@ def test_dipole_error_model_holds_out_of_sample(cccbdb_pairs):
         frac = np.mean([abs(e - c) < fit[cls] * max(c, 0.5) for cls, e, c in test])
         print(f"fold {k}: fitted {fit}, coverage on the other half {frac:.3f}")
         assert 0.60 <= frac <= 0.80
+
+
+# ---------------------------------------------------------------------------- estimate table
+
+OLD_COLUMNS = [
+    "compound", "smiles", "mass_u", "mass_mono_u", "n_electrons", "alpha_additive_A3",
+    "alpha_additive_err_A3", "default_scheme", "alpha_ahp_A3", "alpha_ahp_err_A3",
+    "alpha_ahc_A3", "alpha_ahc_err_A3", "alpha_bs_A3", "alpha_bs_err_A3", "alpha_llmr_A3",
+    "alpha_llmr_err_A3", "flags",
+]  # fmt: skip
+OLD_DIPOLE_COLUMNS = ["dipole_rms_D", "n_conformers", "charge_model", "temperature_K"]
+
+
+def test_estimate_table_keeps_its_columns_and_adds_uncertainty_and_method(tmp_path):
+    import csv
+
+    inp = tmp_path / "lib.csv"
+    inp.write_text("compound,smiles\nethanol,CCO\nbenzene,c1ccccc1\n", encoding="utf-8")
+    out = tmp_path / "out.csv"
+    assert chem.estimate_table(inp, out, dipoles=True)["ok"] == 2
+    with out.open(encoding="utf-8") as fh:
+        header = next(csv.reader(fh))
+    assert [c for c in header if c in OLD_COLUMNS + OLD_DIPOLE_COLUMNS] == (
+        OLD_COLUMNS + OLD_DIPOLE_COLUMNS
+    )
+    new = ["structure_class", "alpha_method", "alpha_err_method"]
+    assert {*new, "dipole_rms_err_D", "dipole_method"} <= set(header)
+    rows = {r["compound"]: r for r in csv.DictReader(out.open(encoding="utf-8"))}
+    eth = rows["ethanol"]
+    assert eth["structure_class"] == "nos" and eth["alpha_method"] == "additive:llmr"
+    mu = float(eth["dipole_rms_D"])
+    assert float(eth["dipole_rms_err_D"]) == pytest.approx(
+        DIPOLE_CLASS_FACTOR["nos"] * max(mu, 0.5), rel=1e-5
+    )
+    assert eth["dipole_method"] == "mmff-conformers"
+    assert float(eth["alpha_additive_err_A3"]) == pytest.approx(
+        ALPHA_CLASS_SCATTER["nos"]["llmr"].rms_rel * float(eth["alpha_llmr_A3"]), rel=1e-5
+    )
+    assert rows["benzene"]["default_scheme"] == "bs"
