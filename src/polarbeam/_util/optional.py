@@ -33,6 +33,8 @@ EXTRAS: dict[str, tuple[str, str]] = {
     "distributed": ("dask[distributed]", "batch"),
     "rich": ("rich", "batch"),
     "pyamg": ("pyamg", "fields"),
+    "mendeleev": ("mendeleev", "atoms"),
+    "chemicals": ("chemicals", "test"),
 }
 
 

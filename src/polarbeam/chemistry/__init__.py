@@ -8,6 +8,9 @@ debye and SI that the deflection stages are compared against:
 * :mod:`.additive` -- the published additive polarizability schemes (Miller ahp/ahc,
   Bosque–Sales, Lorentz–Lorenz on the Wildman–Crippen MR, optional D4), each with its documented
   accuracy and domain flags; the scheme tables are package data;
+* :mod:`.accuracy` -- structure classes and the measured per-class scatter of every scheme and
+  of the force-field dipole; the per-class default scheme chosen by measurement;
+* :mod:`.atoms` -- single atoms from the Schwerdtfeger–Nagle table (``mendeleev``, optional);
 * :mod:`.conformers` -- the thermal dipole ensemble (ETKDG conformers, MMFF94 minima, force-field
   charges), the Boltzmann ⟨μ²⟩ and α_eff = α + ⟨μ²⟩/(3kT);
 * :mod:`.estimates` -- :func:`estimate`, everything the structure predicts for one molecule;
@@ -27,6 +30,18 @@ It imports only :mod:`polarbeam.errors`, :mod:`polarbeam.constants` and
 from __future__ import annotations
 
 from polarbeam.chemistry import qchem
+from polarbeam.chemistry.accuracy import (
+    ALPHA_CLASS_SCATTER,
+    CLASS_SCHEME,
+    CLASSES,
+    DIPOLE_CLASS_FACTOR,
+    ClassStats,
+    alpha_class_stats,
+    choose_class_schemes,
+    dipole_error_D,
+    dipole_factor_from_pairs,
+    structure_class,
+)
 from polarbeam.chemistry.additive import (
     DEFAULT_SCHEME,
     LL_MR_FACTOR_A3,
@@ -44,6 +59,7 @@ from polarbeam.chemistry.additive import (
     miller_types,
     n_electrons,
 )
+from polarbeam.chemistry.atoms import atom_polarizability_A3
 from polarbeam.chemistry.computed import (
     ALPHA_UNITS,
     COMPUTED_COLUMNS,
@@ -63,7 +79,12 @@ from polarbeam.chemistry.conformers import (
     mean_square_dipole,
     predicted_alpha_eff_si,
 )
-from polarbeam.chemistry.estimates import StructureEstimate, estimate
+from polarbeam.chemistry.estimates import (
+    DefaultPolarizability,
+    StructureEstimate,
+    default_polarizability,
+    estimate,
+)
 from polarbeam.chemistry.library import estimate_table
 from polarbeam.chemistry.molecules import (
     StructureRecord,
@@ -109,9 +130,12 @@ from polarbeam.chemistry.qchem import (
 )
 
 __all__ = [
+    "ALPHA_CLASS_SCATTER",
     "ALPHA_UNITS",
     "AU_DIPOLE_SI",
     "CHARGE_MODELS",
+    "CLASSES",
+    "CLASS_SCHEME",
     "COMPARISON_COLUMNS",
     "COMPUTED_COLUMNS",
     "DEFAULT_CHARGE_MODEL",
@@ -120,6 +144,7 @@ __all__ = [
     "DEFAULT_MAX_SECONDS",
     "DEFAULT_SCHEME",
     "DEFAULT_SEED",
+    "DIPOLE_CLASS_FACTOR",
     "DIPOLE_SCALE",
     "ELECTRONIC_VS_VIBRATIONAL_NOTE",
     "LL_MR_FACTOR_A3",
@@ -127,10 +152,12 @@ __all__ = [
     "SCHEMES",
     "SERIES_COMPARISON_COLUMNS",
     "CalculationTooBigError",
+    "ClassStats",
     "ComputedResult",
     "ConformerEnsemble",
     "CostEstimate",
     "CostModel",
+    "DefaultPolarizability",
     "Geometry",
     "ProgressCallback",
     "SchemeAccuracy",
@@ -140,11 +167,14 @@ __all__ = [
     "alpha_ahc_A3",
     "alpha_ahp_A3",
     "alpha_bs_A3",
+    "alpha_class_stats",
     "alpha_d4_A3",
     "alpha_llmr_A3",
     "anisotropy",
+    "atom_polarizability_A3",
     "calibrate_cost_model",
     "check_mass",
+    "choose_class_schemes",
     "compare",
     "compare_series",
     "compute_properties",
@@ -152,8 +182,11 @@ __all__ = [
     "cpscf_polarizability",
     "d4_polarizability",
     "default_cache_dir",
+    "default_polarizability",
     "dftd4_available",
     "dipole_au",
+    "dipole_error_D",
+    "dipole_factor_from_pairs",
     "domain_flags",
     "estimate",
     "estimate_cost",
@@ -179,4 +212,5 @@ __all__ = [
     "read_outputs",
     "read_sdf",
     "results_table",
+    "structure_class",
 ]

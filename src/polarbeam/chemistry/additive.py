@@ -169,9 +169,11 @@ SCHEMES: dict[str, SchemeAccuracy] = {
     )
 }
 
-#: Scheme used for ``alpha_additive_A3``: the one with the smallest mean absolute relative error on
-#: the organic rows of ``reference_values/polarizabilities.csv`` (llmr 2.8 %, ahp 3.1 %, ahc 3.1 %,
-#: bs 4.2 %; table in docs/structure.md).  A test re-checks that it is still the best there.
+#: The best *single* scheme: the smallest mean absolute relative error on the organic rows of
+#: ``reference_values/polarizabilities.csv`` (llmr 2.8 %, ahp 3.1 %, ahc 3.1 %, bs 4.2 %; table in
+#: docs/structure.md).  A test re-checks that it is still the best there.  ``alpha_additive_A3``
+#: takes the best scheme *per structure class* instead
+#: (:data:`polarbeam.chemistry.accuracy.CLASS_SCHEME`).
 DEFAULT_SCHEME: Scheme = "llmr"
 
 

@@ -34,6 +34,7 @@ __all__ = [
     "check_conformer_size",
     "check_temperature",
     "conformer_ensemble",
+    "distinct_minima",
     "embed_one",
     "mean_square_dipole",
     "predicted_alpha_eff_si",
@@ -286,7 +287,7 @@ def conformer_ensemble(
         vecs.append(q @ pos)  # e·Å
     vecs_arr = np.array(vecs)
 
-    keep = _dedupe(mh, cids, energies, vecs_arr, dedupe_rms_A)
+    keep = distinct_minima(mh, cids, energies, vecs_arr, dedupe_rms_A)
     e = energies[keep] - energies[keep].min()
     mu_D = np.linalg.norm(vecs_arr[keep], axis=1) * _E_ANGSTROM_SI / DEBYE_SI * scale
     return ConformerEnsemble(
@@ -302,7 +303,7 @@ def conformer_ensemble(
     )
 
 
-def _dedupe(
+def distinct_minima(
     mh: Chem.Mol, cids: list[int], energies: np.ndarray, vecs: np.ndarray, rms_tol: float
 ) -> list[int]:
     """Indices (into ``cids``) of the distinct minima, lowest energy first.

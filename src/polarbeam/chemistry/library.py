@@ -19,7 +19,8 @@ from rdkit import Chem, rdBase
 from polarbeam._util.atomic import atomic_path
 from polarbeam._util.tables import CELL_BLANKS, csv_records, text_problem
 from polarbeam._util.text import NOT_A_TABLE, looks_like_header
-from polarbeam.chemistry.additive import DEFAULT_SCHEME, SCHEMES, fast_estimates
+from polarbeam.chemistry.accuracy import dipole_error_D
+from polarbeam.chemistry.additive import SCHEMES, fast_estimates
 from polarbeam.chemistry.conformers import (
     DEFAULT_CHARGE_MODEL,
     DEFAULT_SEED,
@@ -27,6 +28,7 @@ from polarbeam.chemistry.conformers import (
     check_temperature,
     conformer_ensemble,
 )
+from polarbeam.chemistry.estimates import DIPOLE_METHOD, default_polarizability
 from polarbeam.chemistry.molecules import StructureRecord, read_sdf
 from polarbeam.errors import CalculationTooBigError, CompoundError, InputError
 
@@ -50,8 +52,18 @@ _OUT_COLUMNS = [
     "alpha_llmr_A3",
     "alpha_llmr_err_A3",
     "flags",
+    "structure_class",
+    "alpha_method",
+    "alpha_err_method",
 ]
-_DIPOLE_COLUMNS = ["dipole_rms_D", "n_conformers", "charge_model", "temperature_K"]
+_DIPOLE_COLUMNS = [
+    "dipole_rms_D",
+    "n_conformers",
+    "charge_model",
+    "temperature_K",
+    "dipole_rms_err_D",
+    "dipole_method",
+]
 
 
 def _fmt(x: float) -> str:
@@ -59,19 +71,6 @@ def _fmt(x: float) -> str:
 
 
 _SCHEME_KEYS = ("ahp", "ahc", "bs", "llmr")
-#: When the default scheme has no value (llmr above CRIPPEN_MAX_ATOMS), the first of these that
-#: has one is the row's default (its name is in ``default_scheme``).
-_FALLBACK_ORDER = ("ahc", "ahp", "bs")
-
-
-def _default_index(vals, default_idx: int) -> int:
-    if math.isfinite(vals[default_idx]):
-        return default_idx
-    for key in _FALLBACK_ORDER:
-        i = _SCHEME_KEYS.index(key)
-        if math.isfinite(vals[i]):
-            return i
-    return default_idx
 
 
 def _read_csv_records(path: Path) -> tuple[list[str], list[StructureRecord]]:
@@ -158,8 +157,7 @@ def estimate_table(
     reserved = set(base) | {"status", "message"}
     header = [*base, "status", "message"]
     header += [f"input_{c}" if c in reserved else c for c in extra_cols]
-    scheme_acc = [SCHEMES[k] for k in ("ahp", "ahc", "bs", "llmr")]
-    default_idx = ("ahp", "ahc", "bs", "llmr").index(DEFAULT_SCHEME)
+    scheme_acc = [SCHEMES[k] for k in _SCHEME_KEYS]
 
     rows: list[list[str]] = []
     n_ok = 0
@@ -178,20 +176,22 @@ def estimate_table(
                     s.error_A3(v) if math.isfinite(v) else math.nan
                     for s, v in zip(scheme_acc, vals, strict=True)
                 ]
-                used = _default_index(vals, default_idx)
+                dflt = default_polarizability(
+                    rec.mol, dict(zip(_SCHEME_KEYS, vals, strict=True)), rec.compound
+                )
                 row = [
                     rec.compound,
                     rec.smiles,
                     _fmt(m_avg),
                     _fmt(m_mono),
                     str(n_el),
-                    _fmt(vals[used]),
-                    _fmt(errs[used]),
-                    _SCHEME_KEYS[used],
+                    _fmt(dflt.alpha_A3),
+                    _fmt(dflt.err_A3),
+                    dflt.scheme,
                 ]
                 for v, e in zip(vals, errs, strict=True):
                     row += [_fmt(v), _fmt(e)]
-                row.append(";".join(flags))
+                row += [";".join(flags), dflt.structure_class, dflt.method, dflt.err_method]
                 note = ""
                 if dipoles:
                     try:
@@ -205,13 +205,16 @@ def estimate_table(
                     except CalculationTooBigError as exc:
                         # bounded work: the additive estimates stand, the row says why no dipole
                         note = str(exc)
-                        row += ["", "0", "", _fmt(float(temperature_K))]
+                        row += ["", "0", "", _fmt(float(temperature_K)), "", ""]
                     else:
+                        mu = ens.rms_dipole_D(temperature_K)
                         row += [
-                            _fmt(ens.rms_dipole_D(temperature_K)),
+                            _fmt(mu),
                             str(len(ens.energies_kcal_mol)),
                             ens.charge_model,
                             _fmt(float(temperature_K)),
+                            _fmt(dipole_error_D(mu, dflt.structure_class)),
+                            DIPOLE_METHOD,
                         ]
                 rows.append([*row, "ok", note, *tail])
                 n_ok += 1

@@ -201,9 +201,17 @@ def compute(
     polarizability: str = typer.Option("analytic", help="analytic (CPHF/CPKS) or finite-field"),
     max_seconds: float = typer.Option(1800.0, help="refuse calculations estimated to take longer"),
     d4: bool = typer.Option(False, "--d4", help="fast D4-model polarizability instead of SCF"),
+    conformers: int = typer.Option(
+        0,
+        "--conformers",
+        help="N > 0: dipole sqrt<mu^2>(T) Boltzmann-averaged over the SCF dipoles of the "
+        "distinct low-energy conformers of N embeddings (alpha from the lowest)",
+    ),
+    temperature: float = typer.Option(300.0, help="temperature (K) of the conformer average"),
 ):
     """Compute static polarizabilities and dipoles with PySCF (extra polarbeam[qc]); cached."""
     try:
+        pb.qchem.check_conformer_options(conformers, temperature)
         pb.qchem.check_scheme(polarizability)
         jobs = pb.qchem.compute_jobs(input)
     except PolarbeamError as exc:
@@ -219,6 +227,8 @@ def compute(
         polarizability=polarizability,
         max_seconds=max_seconds,
         d4=d4,
+        conformers=conformers,
+        temperature_K=temperature,
         progress=progress,
         on_start=lambda name: typer.echo(f"{name}: {method}/{basis}", err=True),
         on_failure=lambda name, message: typer.echo(

@@ -8,7 +8,9 @@ measured α against α_additive, as z-scores using both uncertainties.
 
 Force-field charges give rough dipoles: the default charge model (scaled MMFF94 charges) was
 measured at ~23 % mean absolute error on the rigid molecules of ``reference_values/dipoles.csv``
-(docs/structure.md), so the predicted ⟨μ²⟩ carries a 1σ relative error of 2 × 25 % = 50 %.
+and 24.5 % on the NIST CCCBDB organics (docs/structure.md).  The predicted ⟨μ²⟩ carries a 1σ
+relative error of twice the dipole's: the measured scatter of its structure class
+(:func:`polarbeam.chemistry.dipole_error_D`), or 25 % when no ensemble was built.
 """
 
 from __future__ import annotations
@@ -54,12 +56,13 @@ class StructurePrediction:
     mu2_si: dict[float, float] = field(default_factory=dict)  # T → ⟨μ²⟩ (C² m²)
     dipole_rms_D: float | None = None
     notes: tuple[str, ...] = ()
+    dipole_rel_err: float = DIPOLE_REL_ERROR
 
     def alpha_eff_pred_A3(self, temperature_K: float) -> tuple[float, float]:
         """Predicted α_eff and its 1σ at ``temperature_K`` (Å³)."""
         mu2 = self.mu2_si.get(temperature_K, 0.0)
         orient = alpha_a3_from_si(langevin_debye_si(math.sqrt(mu2), temperature_K))
-        err = math.hypot(self.alpha_additive_err_A3, 2 * DIPOLE_REL_ERROR * orient)
+        err = math.hypot(self.alpha_additive_err_A3, 2 * self.dipole_rel_err * orient)
         return self.alpha_additive_A3 + orient, err
 
     def columns(self) -> dict[str, Any]:
@@ -94,6 +97,7 @@ def predict_for_compound(
     schemes = {k: getattr(est, f"alpha_{k}_A3") for k in ("ahp", "ahc", "bs", "llmr")}
     mu2: dict[float, float] = {}
     rms = None
+    rel_err = DIPOLE_REL_ERROR
     notes = []
     if conformers > 0:
         try:
@@ -102,6 +106,8 @@ def predict_for_compound(
                 mu2[t] = ens.mean_square_dipole_si(t)
             if temperatures:
                 rms = ens.rms_dipole_D(min(temperatures))
+                if rms > 0:
+                    rel_err = st.dipole_error_D(rms, est.structure_class) / rms
         except CompoundError as exc:
             notes.append(f"no conformer dipole ({exc})")
     return StructurePrediction(
@@ -114,6 +120,7 @@ def predict_for_compound(
         mu2_si=mu2,
         dipole_rms_D=rms,
         notes=tuple(notes),
+        dipole_rel_err=rel_err,
     )
 
 

@@ -313,6 +313,23 @@ def debye_figure(c: CompoundResult):
         lw=0.9,
         label="α_eff per series (1σ)",
     )
+    pred = [s.extra.get("alpha_eff_pred_A3") for s in c.series]
+    if all(p is not None and np.isfinite(p) for p in pred):
+        # the structure cross-check's α_additive + ⟨μ²⟩(T)/3kT at each measured temperature
+        order = np.argsort(xs)
+        perr = np.array([s.extra.get("alpha_eff_pred_err_A3", np.nan) for s in c.series])
+        ax.errorbar(
+            xs[order] * k,
+            np.asarray(pred, dtype=float)[order],
+            yerr=perr[order],
+            fmt="s--",
+            mfc="none",
+            color=OKABE_ITO["bluish green"],
+            ms=5,
+            capsize=2,
+            lw=0.9,
+            label="structure prediction α_add + ⟨μ²⟩(T)/(3kT) (1σ)",
+        )
     ax.plot(
         [0.0],
         [alpha_a3_from_si(c.alpha.nominal_value)],

@@ -17,6 +17,9 @@ Pipeline of :func:`compute_properties` (:mod:`.compute`):
    (:mod:`.response`);
 6. dipole moment of the field-free SCF density.
 
+:func:`compute_conformer_dipoles` (:mod:`.ensemble`) is the accurate dipole route: one SCF per
+distinct low-energy MMFF94 conformer (cached per conformer) and the Boltzmann average ⟨μ²⟩(T).
+
 :func:`d4_polarizability` gives the D4 model's static polarizability (dftd4) as a fast estimate
 for molecules too big for SCF.  All of this needs the extra ``polarbeam[qc]``; PySCF and dftd4
 are imported only when a calculation runs.
@@ -42,6 +45,12 @@ from polarbeam.chemistry.qchem.cost import (
     calibrate_cost_model,
     estimate_cost,
 )
+from polarbeam.chemistry.qchem.ensemble import (
+    ENERGY_WINDOW_KCAL,
+    ConformerDipoles,
+    compute_conformer_dipoles,
+    conformer_geometries,
+)
 from polarbeam.chemistry.qchem.geometry import (
     DEFAULT_SEED,
     Geometry,
@@ -51,6 +60,7 @@ from polarbeam.chemistry.qchem.geometry import (
 )
 from polarbeam.chemistry.qchem.library import (
     POLARIZABILITY_SCHEMES,
+    check_conformer_options,
     check_scheme,
     compute_jobs,
     compute_library,
@@ -74,19 +84,24 @@ __all__ = [
     "DEFAULT_FIELD_AU",
     "DEFAULT_MAX_SECONDS",
     "DEFAULT_SEED",
+    "ENERGY_WINDOW_KCAL",
     "POLARIZABILITY_SCHEMES",
     "CalculationTooBigError",
     "ComputedResult",
+    "ConformerDipoles",
     "CostEstimate",
     "CostModel",
     "Geometry",
     "PolarizabilityScheme",
     "ProgressCallback",
     "calibrate_cost_model",
+    "check_conformer_options",
     "check_scheme",
+    "compute_conformer_dipoles",
     "compute_jobs",
     "compute_library",
     "compute_properties",
+    "conformer_geometries",
     "cpscf_polarizability",
     "d4_polarizability",
     "default_cache_dir",

@@ -7,7 +7,9 @@ the others. :func:`write_computed` writes the results in the ``[data] computed``
 
 from __future__ import annotations
 
+import dataclasses
 import io
+import math
 from collections.abc import Callable
 from pathlib import Path
 
@@ -18,11 +20,14 @@ from polarbeam.chemistry.qchem.compute import (
     compute_properties,
     d4_polarizability,
 )
+from polarbeam.chemistry.qchem.ensemble import compute_conformer_dipoles
 from polarbeam.chemistry.qchem.result import ComputedResult, results_table
+from polarbeam.constants import DEBYE_SI
 from polarbeam.errors import InputError, PolarbeamError
 
 __all__ = [
     "POLARIZABILITY_SCHEMES",
+    "check_conformer_options",
     "check_scheme",
     "compute_jobs",
     "compute_library",
@@ -44,6 +49,14 @@ _COMPUTED_CSV = (
     "alpha_zz",
     "source",
 )
+
+
+def check_conformer_options(conformers: int, temperature_K: float) -> None:
+    """Raise :class:`~polarbeam.errors.InputError` for a negative count or a bad temperature."""
+    if not isinstance(conformers, int) or conformers < 0:
+        raise InputError(f"--conformers: expected an integer >= 0, found {conformers!r}")
+    if conformers and not (math.isfinite(temperature_K) and temperature_K > 0):
+        raise InputError(f"--temperature: expected a temperature > 0 K, found {temperature_K!r}")
 
 
 def check_scheme(polarizability: str) -> None:
@@ -73,13 +86,19 @@ def compute_library(
     polarizability: str = "analytic",
     max_seconds: float = 1800.0,
     d4: bool = False,
+    conformers: int = 0,
+    temperature_K: float = 300.0,
     progress: ProgressCallback | None = None,
     on_start: Callable[[str], None] | None = None,
     on_failure: Callable[[str, str], None] | None = None,
 ) -> tuple[list[ComputedResult], list[tuple[str, str]]]:
     """Compute every job; returns (results, [(name, one-line error), …] of the failures).
 
-    ``on_start(name)`` and ``on_failure(name, message)`` report each molecule as it goes.
+    ``conformers > 0``: the polarizability of the lowest MMFF94 conformer and the dipole
+    sqrt⟨μ²⟩(``temperature_K``) Boltzmann-averaged over the SCF dipoles of the distinct
+    low-energy conformers of ``conformers`` embeddings (:func:`compute_conformer_dipoles`); the
+    ``source`` of the row says so.  ``on_start(name)`` and ``on_failure(name, message)`` report
+    each molecule as it goes.
     """
     check_scheme(polarizability)
     results: list[ComputedResult] = []
@@ -90,6 +109,11 @@ def compute_library(
         try:
             if d4:
                 r = d4_polarizability(structure, name=name)
+            elif conformers > 0:
+                r = _conformer_result(
+                    structure, name, method, basis, conformers, temperature_K,
+                    polarizability, max_seconds, progress,
+                )  # fmt: skip
             else:
                 r = compute_properties(
                     structure,
@@ -106,6 +130,39 @@ def compute_library(
             if on_failure is not None:
                 on_failure(name, str(exc))
     return results, failures
+
+
+def _conformer_result(
+    structure, name, method, basis, conformers, temperature_K, polarizability, max_seconds, progress
+) -> ComputedResult:
+    ens = compute_conformer_dipoles(
+        structure,
+        method,
+        basis,
+        n_conformers=conformers,
+        name=name,
+        max_seconds=max_seconds,
+        progress=progress,
+    )
+    lowest = compute_properties(
+        ens.geometries[0],
+        method,
+        basis,
+        name=name,
+        polarizability=polarizability,
+        max_seconds=max_seconds,
+        progress=progress,
+    )
+    mu = ens.rms_dipole_D(temperature_K)
+    return dataclasses.replace(
+        lowest,
+        dipole_si=mu * DEBYE_SI,
+        dipole_vector_si=None,
+        polarizability_method=(
+            f"{lowest.polarizability_method} on the lowest conformer; dipole sqrt<mu^2> at "
+            f"{temperature_K:g} K over {len(ens.dipoles_D)} conformers"
+        ),
+    )
 
 
 def write_computed(results: list[ComputedResult], out: str | Path) -> None:

@@ -24,7 +24,7 @@ from polarbeam.chemistry.qchem.response import (
 )
 from polarbeam.errors import CompoundError, InputError
 
-__all__ = ["build_mol", "is_hf", "run_pyscf"]
+__all__ = ["build_mol", "converged_scf", "is_hf", "run_pyscf", "run_scf_dipole"]
 
 _HF_NAMES = frozenset({"hf", "rhf"})
 
@@ -78,6 +78,35 @@ def _make_scf(mol, method: str):
     return mf
 
 
+def converged_scf(mol, method: str, geometry: Geometry, basis: str):
+    """Converged RHF/RKS of ``mol`` (a second-order solver gets one more try)."""
+    mf = _make_scf(mol, method)
+    mf.kernel()
+    if not mf.converged:
+        mf = mf.newton()
+        mf.kernel()
+        if not mf.converged:
+            raise CompoundError(
+                f"{geometry.label or geometry.source}: SCF {method}/{basis} did not converge"
+            )
+    return mf
+
+
+def run_scf_dipole(geometry: Geometry, method: str, basis: str) -> dict:
+    """SCF and dipole only (no response): raw atomic-unit results as a plain dict."""
+    pyscf = require("pyscf", "computing dipoles with PySCF")
+    mol = build_mol(geometry, basis)
+    t0 = time.perf_counter()
+    mf = converged_scf(mol, method, geometry, basis)
+    return {
+        "energy_hartree": float(mf.e_tot),
+        "dipole_au": dipole_au(mf).tolist(),
+        "n_basis": int(mol.nao_nr()),
+        "scf_seconds": time.perf_counter() - t0,
+        "software": f"pyscf {pyscf.__version__}",
+    }
+
+
 def run_pyscf(
     geometry: Geometry,
     method: str,
@@ -92,15 +121,7 @@ def run_pyscf(
     mol = build_mol(geometry, basis)
     t0 = time.perf_counter()
     say(f"SCF ({'RHF' if is_hf(method) else 'RKS ' + method}/{basis}, {mol.nao_nr()} functions)")
-    mf = _make_scf(mol, method)
-    mf.kernel()
-    if not mf.converged:
-        mf = mf.newton()
-        mf.kernel()
-        if not mf.converged:
-            raise CompoundError(
-                f"{geometry.label or geometry.source}: SCF {method}/{basis} did not converge"
-            )
+    mf = converged_scf(mol, method, geometry, basis)
     t1 = time.perf_counter()
     scheme = "CPHF" if is_hf(method) else "CPKS"
     if polarizability == "finite-field":
