@@ -1,0 +1,220 @@
+"""Photon recoil as the experiments are run: beam height, hit fraction, cw lasers, standing
+waves, shared laser-off references and Rician visibility ratios (issue 20).
+
+References used below:
+
+* Gaussian beam intensity 2P/(π w0²)·exp(−2(x² + y²)/w0²) (laser optics, common practice); the
+  fluence a molecule collects crossing it at speed v is ∫ I dx / v, here by scipy.integrate.quad.
+* Poisson statistics: Σ_n P(n; n̄) sⁿ = exp(n̄(s − 1)), summed term by term with
+  scipy.stats.poisson.
+* The mean of a Gaussian factor over a Gaussian height distribution (textbook Gaussian
+  integral), checked by scipy.integrate.quad.
+* The Rician distribution of a modulus |ν + σ(n₁ + i n₂)|: mean and standard deviation from
+  scipy.stats.rice.
+* A standing wave of two counter-propagating beams: intensity ∝ cos²(kx), kicks ±ħk with equal
+  probability (textbook), averaged over x by scipy.integrate.quad.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy import integrate, linalg, stats
+
+from polarbeam.beam.photon_recoil import (
+    gaussian_crossing_length,
+    height_fluence_nodes,
+    mean_fluence_factor,
+    recoil_observables,
+    recoil_phasor,
+)
+from polarbeam.extraction.recoil_noise import common_covariance, rician_mean, rician_sd, whiten
+from polarbeam.pipeline.analysis import analyze
+from polarbeam.simulation.recoil import LaserTruth, RecoilCompoundTruth, simulate_recoil_campaign
+
+# --------------------------------------------------------------------------------------------
+# physics of each effect against an independent computation
+# --------------------------------------------------------------------------------------------
+
+
+def test_mean_fluence_factor_of_a_beam_height():
+    w0 = 0.9e-3
+    h = 0.2 * w0
+    # 1/√(1 + 4h²/w0²) = 1/√1.16 = 0.928 (the number quoted in the issue)
+    assert mean_fluence_factor(w0, h) == pytest.approx(1 / math.sqrt(1.16), rel=1e-12)
+    assert mean_fluence_factor(w0, h) == pytest.approx(0.928, abs=5e-4)
+    for r in (0.0, 0.15e-3, 0.4e-3):
+        pdf = stats.norm(r, h).pdf
+        direct, _ = integrate.quad(
+            lambda y, _p=pdf: _p(y) * math.exp(-2 * y**2 / w0**2), -1e-2, 1e-2
+        )
+        assert mean_fluence_factor(w0, h, r) == pytest.approx(direct, rel=1e-9)
+        # the quadrature nodes used by the model: relative to the fluence at the beam centre
+        u, p = height_fluence_nodes(w0, r, h)
+        assert np.sum(p * u) * math.exp(-2 * r**2 / w0**2) == pytest.approx(direct, rel=1e-9)
+
+
+def test_cw_crossing_fluence_by_quadrature():
+    # fluence collected crossing the beam: ∫ I(x, y) dx / v = P/(v L), L = √(π/2) w0 e^{2y²/w0²}
+    w0, p, v = 0.7e-3, 1.3, 210.0
+    for y in (0.0, 0.2e-3, 0.5e-3):
+
+        def intensity(x, _y=y):
+            return 2 * p / (math.pi * w0**2) * math.exp(-2 * (x**2 + _y**2) / w0**2)
+
+        collected, _ = integrate.quad(intensity, -20 * w0, 20 * w0)
+        assert collected / v == pytest.approx(p / (v * gaussian_crossing_length(w0, y)), rel=1e-9)
+
+
+@pytest.mark.parametrize("nbar,phi,g", [(0.4, 0.7, 1.0), (2.0, 1.9, 1.0), (3.0, 2.6, 0.6)])
+def test_standing_wave_against_direct_average_over_x(nbar, phi, g):
+    # molecules spread over many λ/2: local n̄(x) = 2n̄ cos²(kx) = n̄(1 + cos 2kx); each photon
+    # kicks ±ħk (factor g e^{±iφ1}, mean g cos φ1); average the Poisson sum over one period
+    n = np.arange(0, 120)
+
+    def at(theta):
+        return float(
+            np.sum(stats.poisson.pmf(n, nbar * (1 + math.cos(theta))) * (g * math.cos(phi)) ** n)
+        )
+
+    direct, _ = integrate.quad(at, 0, math.pi, limit=200)
+    direct /= math.pi
+    emission = 0.0 if g == 1.0 else 1.0e9  # φ_e huge: sin φ_e/φ_e → 0, g = 1 − q
+    r = recoil_phasor(
+        np.array([nbar]),
+        phi,
+        velocity_dependent=False,
+        standing=True,
+        emission_coefficient=emission,
+        fluorescence_yield=1.0 - g,
+    )[0]
+    assert r.real == pytest.approx(direct, rel=1e-9, abs=1e-12)
+    assert r.imag == 0.0  # kicks ±ħk: no phase shift, only contrast (and sign)
+
+
+def test_hit_fraction_mixture_against_direct_sum():
+    # (1 − f) of the molecules see no light: Σ_n P_f(n) e^{inφ1} with P_f = (1−f)δ_n0 + f·Poisson
+    nbar, phi, f = 1.7, 1.1, 0.8
+    n = np.arange(0, 100)
+    pmf = f * stats.poisson.pmf(n, nbar)
+    pmf[0] += 1 - f
+    direct = np.sum(pmf * np.exp(1j * phi * n))
+    r = recoil_phasor(np.array([nbar]), phi, velocity_dependent=False, hit_fraction=f)[0]
+    assert r == pytest.approx(direct, rel=1e-12)
+
+
+def test_cw_and_height_average_against_scipy_integration():
+    # cw: n̄(v, y) = n̄0·(v̄/v)·exp(−2(y² − r²)/w0²); velocity ~ N(v̄, s²), height ~ N(r, h²);
+    # double integral by scipy.integrate.dblquad, one real and one imaginary part
+    v0, s, k, n0 = 180.0, 0.12 * 180.0, 1.4 * 180.0, 1.6
+    w0, r, h = 0.8e-3, 0.1e-3, 0.2e-3
+    pv, py = stats.norm(v0, s).pdf, stats.norm(r, h).pdf
+
+    def integrand(y, v, part):
+        nb = n0 * v0 / v * math.exp(-2 * (y**2 - r**2) / w0**2)
+        return pv(v) * py(y) * part(np.exp(nb * (np.exp(1j * k / v) - 1)))
+
+    lim = (v0 - 7 * s, v0 + 7 * s, r - 8 * h, r + 8 * h)
+    re = integrate.dblquad(integrand, *lim, args=(np.real,), epsabs=1e-11)[0]
+    im = integrate.dblquad(integrand, *lim, args=(np.imag,), epsabs=1e-11)[0]
+    model = recoil_phasor(
+        np.array([n0]), k, v0, s, cw=True, fluence_nodes=height_fluence_nodes(w0, r, h), nodes=96
+    )[0]
+    assert model == pytest.approx(re + 1j * im, rel=2e-6)
+
+
+def test_cw_small_signal_phase_carries_the_velocity_factor():
+    # small n̄, small φ1: phase ∝ ⟨1/v²⟩ (cw) instead of ⟨1/v⟩/v̄ (pulse), ratio ≈ 1 + 2(σv/v̄)²
+    v0, s = 200.0, 0.15 * 200.0
+    k = 0.05 * v0
+    ph_cw, _ = recoil_observables(np.array([1e-4]), k, v0, s, cw=True, nodes=96)
+    ph_p, _ = recoil_observables(np.array([1e-4]), k, v0, s, nodes=96)
+    pdf = stats.norm(v0, s).pdf
+    inv1 = integrate.quad(lambda v: pdf(v) / v, v0 - 6.5 * s, v0 + 6.5 * s)[0]
+    inv2 = integrate.quad(lambda v: pdf(v) / v**2, v0 - 6.5 * s, v0 + 6.5 * s)[0]
+    assert ph_cw[0] / ph_p[0] == pytest.approx(v0 * inv2 / inv1, rel=2e-3)
+    # series in a = (σv/v̄)²: ⟨v̄²/v²⟩ = 1 + 3a + 15a² + …, ⟨v̄/v⟩ = 1 + a + 3a² + … (Gaussian
+    # moments 1, 3, 15), so the ratio is 1 + 2a + 10a² + O(a³): 1.0501 at 15 %
+    a = 0.15**2
+    assert ph_cw[0] / ph_p[0] == pytest.approx(1 + 2 * a + 10 * a**2, rel=2e-3)
+
+
+def test_rician_moments_against_scipy():
+    for nu in (0.0, 0.01, 0.05, 0.2, 0.5):
+        for sig in (0.02, 0.03):
+            d = stats.rice(nu / sig, scale=sig)
+            assert rician_mean(nu, sig) == pytest.approx(d.mean(), rel=1e-9)
+            assert rician_sd(nu, sig) == pytest.approx(d.std(), rel=1e-7)
+    # far above the noise the mean tends to √(ν² + σ²) and the sd to σ
+    assert rician_mean(50.0, 0.01) == pytest.approx(math.hypot(50.0, 0.01), rel=1e-12)
+    assert rician_sd(50.0, 0.01) == pytest.approx(0.01, rel=1e-4)
+
+
+def test_whitened_residuals_give_the_generalised_chi2():
+    rng = np.random.default_rng(4)
+    sd = rng.uniform(0.01, 0.05, 7)
+    labels = ["a", "a", "a", "", "b", "b", "a"]
+    common = np.array([0.02, 0.02, 0.02, 0.0, 0.03, 0.03, 0.02])
+    cov = common_covariance(sd, labels, common)
+    assert cov[0, 6] == pytest.approx(0.02**2) and cov[0, 4] == 0.0 and cov[3, 3] == sd[3] ** 2
+    r = rng.standard_normal(7) * 0.03
+    w = whiten(r, cov)
+    assert w @ w == pytest.approx(r @ linalg.solve(cov, r), rel=1e-10)
+
+
+# --------------------------------------------------------------------------------------------
+# inputs: dropped points, the visibility method
+# --------------------------------------------------------------------------------------------
+
+
+def _two_compounds(path: Path, **laser) -> Path:
+    la = LaserTruth("green", 532e-9, 0.03, 0.0002, area=0.8e-6, area_err=0.04e-6, **laser)
+    comps = [
+        RecoilCompoundTruth("mol-one", 1450.0, {"green": 3e-16}),
+        RecoilCompoundTruth("mol-two", 2100.0, {"green": 1e-16}),
+    ]
+    simulate_recoil_campaign(path, comps, [la], seed=5, visibility_noise_model="rician")
+    return path / "campaign.toml"
+
+
+def _set_cell(camp: Path, compound: str, column: str, value: str) -> int:
+    csv = camp.parent / "recoil.csv"
+    lines = csv.read_text().splitlines()
+    col = lines[0].split(",").index(column)
+    for n, line in enumerate(lines[1:], start=2):
+        cells = line.split(",")
+        if cells[0] == compound:
+            cells[col] = value
+            lines[n - 1] = ",".join(cells)
+            csv.write_text("\n".join(lines) + "\n")
+            return n
+    raise AssertionError(compound)
+
+
+def test_negative_rician_ratio_dropped(tmp_path):
+    # moved from test_extraction_recoil.py's bad-row table: a negative ratio used to fail the
+    # compound; a Rician modulus cannot be negative, so the point is dropped and reported
+    camp = _two_compounds(tmp_path / "c")
+    line = _set_cell(camp, "mol-one", "visibility_ratio", "-0.016")
+    res = analyze(camp)
+    by = {c.compound: c for c in res.recoil.compounds}
+    one = by["mol-one"]
+    assert one.status == "warning"
+    assert (
+        f"recoil.csv line {line}: column 'visibility_ratio' expected a number >= 0 (a Rician "
+        f"modulus; laser 'green' visibility_errors = 'rician'), found '-0.016'; point dropped"
+    ) in one.message
+    assert one.fits[0].n_points == 7 and by["mol-two"].fits[0].n_points == 8
+    assert res.exit_code == 0
+
+
+def test_negative_gaussian_ratio_is_fitted(tmp_path):
+    camp = _two_compounds(tmp_path / "c", visibility_errors="gaussian")
+    assert 'visibility_errors = "gaussian"' in camp.read_text()
+    _set_cell(camp, "mol-one", "visibility_ratio", "-0.016")
+    by = {c.compound: c for c in analyze(camp).recoil.compounds}
+    assert by["mol-one"].fits[0].n_points == 8
+    assert "dropped" not in by["mol-one"].message
