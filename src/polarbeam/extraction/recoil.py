@@ -18,6 +18,13 @@ re-emission of quantum yield q, g = (1 − q) + q·sin φ_e/φ_e, φ_e being the
 emitted photon's full recoil along the grating axis (the projection cos θ of an isotropic
 emission is uniform on [−1, 1]).
 
+The ``[[laser]]`` keys of the experiment as run enter the same phasor
+(:mod:`polarbeam.beam.photon_recoil`): ``beam_height_rms`` averages it over the molecular-beam
+height in a Gaussian spot, ``hit_fraction`` mixes in unlit molecules, ``mode = "cw"`` makes n̄
+∝ 1/v inside the velocity average, ``illumination = "standing"`` replaces e^{iφ1} by cos φ1.
+Visibility ratios are Rician moduli by default and shared laser-off references give a block
+covariance (:mod:`polarbeam.extraction.recoil_noise`).
+
 σ (and optionally q) is fitted to the phases and visibility ratios together.  σ enters only as
 σ·E·s/A (s the pulse-energy calibration factor), so the area and the calibration scale the result
 exactly; the laser position, the grating geometry, the mass, the velocity calibration and a stated
