@@ -44,6 +44,7 @@ from polarbeam.simulation.recoil import (
     random_recoil_modes_campaign,
     simulate_recoil_campaign,
 )
+from polarbeam.uncertain import variance_budget
 
 # --------------------------------------------------------------------------------------------
 # physics of each effect against an independent computation
@@ -314,6 +315,42 @@ def test_ignored_standing_wave_fails_the_fit(tmp_path):
     assert abs(f.cross_section_cm2 / 2e-16 - 1) > 5 * f.cross_section_err_cm2 / 2e-16
 
 
+@pytest.mark.slow
+def test_ignored_shared_reference_makes_errors_too_small(tmp_path):
+    # every series referenced to one laser-off scan whose phase error (0.04 rad) dominates the
+    # points' own (0.01 rad): fitted as independent, the σ errors are far too small
+    rng = np.random.default_rng(12)
+    with_refs, without = [], []
+    for i in range(40):
+        la = LaserTruth("g", 532e-9, 0.03, area=0.8e-6)
+        comp = RecoilCompoundTruth("mol", 1450.0, {"g": 2e-16})
+        d = tmp_path / str(i)
+        simulate_recoil_campaign(
+            d,
+            [comp],
+            [la],
+            seed=rng,
+            visibility_noise_model="rician",
+            phase_noise=0.01,
+            visibility_noise=0.01,
+            reference_phase_err=0.04,
+            reference_visibility_err=0.03,
+            max_photons=1.5,
+        )
+        for store in (with_refs, without):
+            (c,) = analyze(d / "campaign.toml").recoil.compounds
+            f = c.fits[0]
+            store.append((f.cross_section_cm2 - 2e-16) / f.cross_section_err_cm2)
+            csv = d / "recoil.csv"  # the second pass: the reference columns removed
+            rows = csv.read_text().splitlines()
+            csv.write_text("\n".join(",".join(r.split(",")[:11]) for r in rows) + "\n")
+    cover = float(np.mean(np.abs(with_refs) < 1))
+    ignored = float(np.mean(np.abs(without) < 1))
+    print(f"|pull| < 1: {cover:.2f} with the reference columns, {ignored:.2f} without")
+    assert cover > 0.5  # 40 series: binomial 1σ of the fraction ≈ 0.07
+    assert ignored < 0.3  # measured 0.10 over 60 series (docs/recoil.md)
+
+
 def test_ignored_rician_bias_at_low_visibility(tmp_path):
     # expected data: visibility ratios at the Rician mean of the true modulus (noise 0.03),
     # phases uninformative (error 1 rad); the Rician fit returns σ, the Gaussian one is low
@@ -460,3 +497,20 @@ def test_cw_example_cross_sections_match_independent_integration():
     assert abs(vertex - sigma) < 0.01 * err
     truth = json.loads((CW_EXAMPLE / "truth.json").read_text())["cross_sections_cm2"]
     assert abs(fit.cross_section_cm2 - truth["chromo-C"]["amber"]) < 3 * fit.cross_section_err_cm2
+
+
+def test_hit_fractions_of_two_lasers_are_refined_and_reported(tmp_path):
+    lasers = [
+        LaserTruth("g.1", 532e-9, 0.03, area=0.8e-6, hit_fraction=0.7, hit_fraction_err=0.05),
+        LaserTruth("red", 660e-9, 0.035, area=1.0e-6, hit_fraction=0.8, hit_fraction_err=0.05),
+    ]
+    comp = RecoilCompoundTruth("mol", 1450.0, {"g.1": 2e-16, "red": 1e-16})
+    simulate_recoil_campaign(tmp_path, [comp], lasers, seed=8, visibility_noise_model="rician")
+    (c,) = analyze(tmp_path / "campaign.toml").recoil.compounds
+    assert c.status == "ok", c.message
+    assert "g.1: hit fraction" in c.message and "red: hit fraction" in c.message
+    assert "refined by the data's saturation" in c.message
+    for f in c.fits:
+        truth = comp.cross_sections_cm2[f.laser]
+        assert abs(f.cross_section_cm2 - truth) < 3 * f.cross_section_err_cm2
+        assert "laser " + f.laser + ": hit_fraction" in variance_budget(f.cross_section)

@@ -205,6 +205,13 @@ class _CompoundModel:
             self.phase_cov = common_covariance(self.phase_err, labels, ref_ph)
         self.vis_shared = any(labels) and bool(np.any(self.ref_vis > 0))
         self.laser_of_row = cat([np.full(x.n_points, self.lasers.index(x.laser)) for x in s])
+        # hit fractions with a stated error: fitted with that error as a Gaussian constraint
+        # (the saturation of the mixture measures f), the stated value its centre
+        self.constrained = [
+            (f"laser.{n}.hit_fraction", ctx.lasers[n].hit_fraction.error)
+            for n in self.lasers
+            if ctx.lasers[n].hit_fraction.error > 0
+        ]
         self.rician = np.array(
             [ctx.lasers[self.lasers[i]].visibility_errors == "rician" for i in self.laser_of_row],
             dtype=bool,
@@ -317,6 +324,13 @@ class _CompoundModel:
     def residual(self, theta: np.ndarray, vals: dict[str, float]) -> np.ndarray:
         nl = len(self.lasers)
         q = theta[nl] if self.rc.fit_yield else vals["fluorescence_yield"]
+        prior = []
+        if self.constrained:
+            k0 = nl + int(self.rc.fit_yield)
+            vals = dict(vals)
+            for j, (key, err) in enumerate(self.constrained):
+                prior.append((theta[k0 + j] - vals[key]) / err)
+                vals[key] = theta[k0 + j]
         ph, vi = self.predict(theta[:nl] * SIGMA_UNIT, q, vals)
         if self.phase_cov is None:
             rp = (ph - self.phase) / self.phase_err
@@ -327,7 +341,7 @@ class _CompoundModel:
             rv = whiten(mean - self.vis, common_covariance(sd, self.labels, self.ref_vis * vi))
         else:
             rv = (mean - self.vis) / sd
-        return np.concatenate([rp, rv])
+        return np.concatenate([rp, rv, prior])
 
 
 def _or_zeros(a, n: int, dtype=float) -> np.ndarray:
@@ -372,8 +386,9 @@ def _start(model: _CompoundModel, vals, q0: float) -> np.ndarray:
     for nmax in np.geomspace(1e-3, 30.0, 22):
         th = nmax / per_sigma
         full = np.concatenate([th, [q0]]) if model.rc.fit_yield else th
+        full = np.concatenate([full, [vals[key] for key, _ in model.constrained]])
         r = model.residual(full, vals) ** 2
-        chi = r[: model.n] + r[model.n :]
+        chi = r[: model.n] + r[model.n : 2 * model.n]
         for i in range(nl):
             c = float(chi[model.laser_of_row == i].sum())
             if c < best[i]:
@@ -406,6 +421,15 @@ def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCom
     q_u = _fluorescence_yield(rc, sol, fit_u, len(model.lasers), warnings)
     warnings.extend(rc.dropped)
     messages = _messages(rc, q_u, sol.error_scale)
+    k0 = len(model.lasers) + int(rc.fit_yield)
+    for j, (key, _) in enumerate(model.constrained):
+        la = ctx.lasers[key[len("laser.") : -len(".hit_fraction")]]
+        f = fit_u[k0 + j]
+        messages.append(
+            f"{la.name}: hit fraction {format_value_error(f.nominal_value, f.std_dev)} "
+            f"(stated {format_value_error(la.hit_fraction.value, la.hit_fraction.error)}, "
+            "refined by the data's saturation)"
+        )
     status = "warning" if warnings else "ok"
     return RecoilCompoundResult(
         compound=rc.name,
@@ -434,6 +458,9 @@ def _solve(rc: RecoilCompound, model: _CompoundModel, vals0: dict, scale_errors:
         params.add(names[i], value=theta0[i])
     if fit_q:
         params.add("q", value=q_start)
+    for j, (key, _) in enumerate(model.constrained):
+        names.append(f"f{j}")
+        params.add(f"f{j}", value=vals0[key])
 
     def res_fun(p):
         return model.residual(np.array([p[k].value for k in names]), vals0)
@@ -453,11 +480,14 @@ def _solve(rc: RecoilCompound, model: _CompoundModel, vals0: dict, scale_errors:
         cov = np.linalg.inv(jtj)
     except np.linalg.LinAlgError:
         raise FitError(f"compound {rc.name!r}: the recoil fit has a singular covariance") from None
+    if model.constrained:  # the data's share only: the constraints enter as stated inputs
+        jd = jac[: 2 * model.n]
+        cov = cov @ (jd.T @ jd) @ cov
     if not (np.all(np.isfinite(cov)) and np.all(np.diag(cov) > 0)):
         raise FitError(f"compound {rc.name!r}: the recoil fit gave no usable errors")
     r0 = r_theta(theta)
     chi2 = float(r0 @ r0)
-    ndof = 2 * model.n - len(names)
+    ndof = 2 * model.n - len(names) + len(model.constrained)
     error_scale = 1.0
     if scale_errors == "birge" and ndof > 0 and chi2 / ndof > 1:
         error_scale = math.sqrt(chi2 / ndof)
@@ -508,7 +538,7 @@ def _uncertain_parameters(rc, model, ctx, vals0, sol: _Solution) -> list:
     dθ/dp = −(JᵀJ)⁻¹ Jᵀ ∂r/∂p.
     """
     nl = len(model.lasers)
-    scales = np.array([SIGMA_UNIT] * nl + ([1.0] if rc.fit_yield else []))
+    scales = np.array([SIGMA_UNIT] * nl + [1.0] * (len(sol.names) - nl))
     fit_u = uncertainties.correlated_values(
         sol.theta * scales,
         sol.cov * np.outer(scales, scales),
@@ -542,7 +572,7 @@ def _laser_fits(rc, model, ctx, vals0, sol: _Solution, fit_u) -> tuple[list, lis
         la = ctx.lasers[name]
         sigma_u = fit_u[i] * ctx.area_ratio[name] / ctx.energy_ratio[name]
         rows = model.laser_of_row == i
-        rr = np.concatenate([r0[: model.n][rows], r0[model.n :][rows]])
+        rr = np.concatenate([r0[: model.n][rows], r0[model.n : 2 * model.n][rows]])
         chi_l = float(rr @ rr)
         nu_l = int(2 * rows.sum()) - 1
         n_at_max = float(theta[i] * SIGMA_UNIT * coef[i][2] * model.peak_dose(vals0, i))
