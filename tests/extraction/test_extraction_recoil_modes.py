@@ -514,3 +514,13 @@ def test_hit_fractions_of_two_lasers_are_refined_and_reported(tmp_path):
         truth = comp.cross_sections_cm2[f.laser]
         assert abs(f.cross_section_cm2 - truth) < 3 * f.cross_section_err_cm2
         assert "laser " + f.laser + ": hit_fraction" in variance_budget(f.cross_section)
+
+
+def test_beam_height_compatible_with_zero_warns(tmp_path):
+    la = LaserTruth("g", 532e-9, 0.03, waist=0.9e-3, beam_height_rms_err=0.05e-3)
+    comp = RecoilCompoundTruth("mol", 1450.0, {"g": 2e-16})
+    simulate_recoil_campaign(tmp_path, [comp], [la], seed=3, visibility_noise_model="rician")
+    assert 'beam_height_rms = "0 ± 0.05 mm"' in (tmp_path / "campaign.toml").read_text()
+    (c,) = analyze(tmp_path / "campaign.toml").recoil.compounds
+    assert c.status == "warning"
+    assert "g: beam_height_rms 0 ± 5e-05 m is compatible with 0" in c.message

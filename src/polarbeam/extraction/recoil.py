@@ -609,6 +609,12 @@ def _laser_fits(rc, model, ctx, vals0, sol: _Solution, fit_u) -> tuple[list, lis
                 f"{name}: the fringe visibility drops to {vmin:.0%} of laser-off at the largest "
                 "pulse energy; the phase there is poorly defined"
             )
+        height = la.beam_height_rms
+        if height.value == 0 and height.error > 0:
+            warnings.append(
+                f"{name}: beam_height_rms 0 ± {height.error:g} m is compatible with 0; its error "
+                "is second order and is not propagated"
+            )
         if la.waist is not None and la.beam_offset.error > abs(la.beam_offset.value):
             warnings.append(
                 f"{name}: beam_offset {la.beam_offset.value:g} ± {la.beam_offset.error:g} m is "
