@@ -524,3 +524,22 @@ def test_beam_height_compatible_with_zero_warns(tmp_path):
     (c,) = analyze(tmp_path / "campaign.toml").recoil.compounds
     assert c.status == "warning"
     assert "g: beam_height_rms 0 ± 5e-05 m is compatible with 0" in c.message
+
+
+def test_cw_example_is_reproducible_and_recovers_the_truth(tmp_path):
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("make_cw", CW_EXAMPLE / "make_example.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    mod.main(tmp_path)
+    for name in ("campaign.toml", "compounds.csv", "recoil.csv"):
+        assert (tmp_path / name).read_text() == (CW_EXAMPLE / name).read_text(), name
+    truth = json.loads((CW_EXAMPLE / "truth.json").read_text())["cross_sections_cm2"]
+    res = analyze(CW_EXAMPLE / "campaign.toml")
+    assert [c.status for c in res.recoil.compounds] == ["ok", "ok"]
+    for c in res.recoil.compounds:
+        for f in c.fits:
+            assert (
+                abs(f.cross_section_cm2 - truth[c.compound][f.laser]) < 3 * f.cross_section_err_cm2
+            )
