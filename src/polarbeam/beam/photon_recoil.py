@@ -9,9 +9,11 @@ isotropic re-emission multiplies each photon's factor by (1 − q) + q·sin φe/
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 
 import numpy as np
 from scipy import constants as _sc
+from scipy import special
 from uncertainties import umath
 
 from polarbeam.beam.distributions import GaussianVelocity
@@ -19,9 +21,13 @@ from polarbeam.beam.distributions import GaussianVelocity
 __all__ = [
     "PLANCK",
     "SPEED_OF_LIGHT",
+    "cw_mean_photons",
     "emission_factor",
+    "gaussian_crossing_length",
     "gaussian_effective_area",
+    "height_fluence_nodes",
     "kick_phase",
+    "mean_fluence_factor",
     "mean_photons",
     "photon_energy",
     "poisson_phasor",
@@ -107,6 +113,52 @@ def poisson_phasor(mean_photons, phase_per_photon, emission=1.0):
     return np.exp(n * (emission * np.exp(1j * np.asarray(phase_per_photon, dtype=float)) - 1.0))
 
 
+def gaussian_crossing_length(waist, offset=0.0):
+    """Effective length (m) of a continuous Gaussian beam crossed at a distance ``offset``.
+
+    A molecule crossing a beam of power P and waist w0 at speed v collects the fluence
+    ∫ I dx / v = √(2/π)·P/(w0 v)·exp(−2r²/w0²) = P/(v L) with
+    L = √(π/2)·w0·exp(2r²/w0²).  Works on floats and on :mod:`uncertainties` numbers.
+    """
+    return math.sqrt(0.5 * math.pi) * waist * umath.exp(2.0 * offset**2 / waist**2)
+
+
+def cw_mean_photons(cross_section, power, length, wavelength, velocity):
+    """Mean number of absorbed photons n̄ = σ P/(L v ħω) of a continuous beam crossed at v."""
+    return (
+        cross_section
+        * np.asarray(power, dtype=float)
+        / (length * np.asarray(velocity, dtype=float) * photon_energy(wavelength))
+    )
+
+
+def mean_fluence_factor(waist, height, offset=0.0):
+    """⟨exp(−2y²/w0²)⟩ for molecules at heights y ~ N(offset, height²): the mean fluence of a
+    Gaussian spot relative to its axis, 1/√(1 + 4h²/w0²)·exp(−2r²/(w0² + 4h²))."""
+    s = waist**2 + 4.0 * height**2
+    return math.sqrt(waist**2 / s) * math.exp(-2.0 * offset**2 / s)
+
+
+@lru_cache(maxsize=4)
+def _hermite_e(n: int):
+    x, w = np.polynomial.hermite_e.hermegauss(n)
+    return x, w / w.sum()
+
+
+def height_fluence_nodes(waist: float, offset: float, height: float, n: int = 16):
+    """Relative fluence factors and weights over a Gaussian molecular-beam height profile.
+
+    Molecules at heights y ~ N(offset, height²) across a Gaussian spot of waist w0 see the
+    fluence F(y) ∝ exp(−2y²/w0²).  Returns (u, p): u = F(y_j)/F(offset) at the Gauss–Hermite
+    nodes y_j and their weights p (summing to 1); a zero height gives one node, u = 1.
+    """
+    if height <= 0:
+        return np.array([1.0]), np.array([1.0])
+    x, p = _hermite_e(n)
+    y = offset + height * x
+    return np.exp(-2.0 * (y**2 - offset**2) / waist**2), p
+
+
 def _photon_terms(
     phase_coefficient: float,
     velocity: float,
@@ -115,16 +167,43 @@ def _photon_terms(
     fluorescence_yield: float,
     velocity_dependent: bool,
     nodes: int,
+    cw: bool = False,
+    standing: bool = False,
 ):
-    """Quadrature weights and z = g e^{iφ1} − 1 per velocity node."""
+    """Quadrature weights, n̄ scale and z = g e^{iφ1} − 1 (g cos φ1 − 1 standing) per node."""
     if velocity_dependent:
         v, w = GaussianVelocity(velocity, spread).nodes(nodes)
         phi, phie = phase_coefficient / v, emission_coefficient / v
     else:
+        v = np.array([velocity])
         w = np.array([1.0])
         phi, phie = np.array([phase_coefficient]), np.array([emission_coefficient])
     g = emission_factor(fluorescence_yield, phie)
-    return w, g * np.exp(1j * phi) - 1.0
+    z = g * np.cos(phi) - 1.0 + 0j if standing else g * np.exp(1j * phi) - 1.0
+    scale = velocity / v if cw else None
+    return w, scale, z
+
+
+def _phasor_function(w, scale, z, *, standing, hit_fraction, fluence_nodes):
+    """R(n̄) = (1 − f) + f·Σ_nodes W·F(n̄·S·z), F = exp (travelling) or e^a I₀(a) (standing)."""
+    if fluence_nodes is not None and len(fluence_nodes[0]) > 1:
+        u, p = (np.asarray(a, dtype=float) for a in fluence_nodes)
+        s = np.ones_like(w) if scale is None else scale
+        w = np.outer(w, p).ravel()
+        scale = np.outer(s, u).ravel()
+        z = np.repeat(z, u.size)
+    sz = z if scale is None else scale * z
+    rms = 1.0 if scale is None else float(np.sqrt(np.sum(w * scale**2)))
+
+    def phasor(n):
+        a = np.multiply.outer(n, sz)
+        f = special.ive(0, a.real) if standing else np.exp(a)
+        r = (w * f).sum(axis=-1)
+        if hit_fraction != 1.0:
+            r = (1.0 - hit_fraction) + hit_fraction * r
+        return r
+
+    return phasor, rms
 
 
 def recoil_phasor(
@@ -137,13 +216,18 @@ def recoil_phasor(
     fluorescence_yield: float = 0.0,
     velocity_dependent: bool = True,
     nodes: int = 48,
+    cw: bool = False,
+    standing: bool = False,
+    hit_fraction: float = 1.0,
+    fluence_nodes=None,
 ):
     """Velocity-averaged fringe phasor R = ⟨exp(n̄ (g(v) e^{iφ1(v)} − 1))⟩ (complex array).
 
     Parameters
     ----------
     mean_photons
-        n̄ for each point (array).
+        n̄ for each point (array); for ``cw`` the value at the mean speed ``velocity``, and
+        with ``fluence_nodes`` the value where the relative fluence is 1.
     phase_coefficient
         K with φ1(v) = K/v (spatial layouts, rad·m/s) or φ1 = K (time domain, rad); its sign is
         the kick direction.
@@ -153,8 +237,19 @@ def recoil_phasor(
         The same coefficient for one emitted photon's full recoil (with ``fluorescence_yield``).
     velocity_dependent
         False for the time-domain layout.
+    cw
+        Continuous-wave laser: n̄(v) = n̄·velocity/v (the fluence collected ∝ 1/v).
+    standing
+        Retro-reflected standing wave: each photon's factor is g cos φ1 (kicks ±ħk), and n̄ is
+        the mean over the λ/2 modulation n̄(x) = n̄(1 + cos 2kx), averaged over x:
+        exp(n̄z)·I₀(n̄z).
+    hit_fraction
+        Fraction f of the detected molecules that met the light: R = (1 − f) + f·R_hit.
+    fluence_nodes
+        (u, p): relative fluence factors and weights over the molecular-beam height
+        (:func:`height_fluence_nodes`); None for a line beam.
     """
-    w, z = _photon_terms(
+    w, scale, z = _photon_terms(
         phase_coefficient,
         velocity,
         spread,
@@ -162,9 +257,13 @@ def recoil_phasor(
         fluorescence_yield,
         velocity_dependent,
         nodes,
+        cw,
+        standing,
     )
-    n = np.asarray(mean_photons, dtype=float)
-    return (w * np.exp(np.multiply.outer(n, z))).sum(axis=-1)
+    phasor, _ = _phasor_function(
+        w, scale, z, standing=standing, hit_fraction=hit_fraction, fluence_nodes=fluence_nodes
+    )
+    return phasor(np.asarray(mean_photons, dtype=float))
 
 
 def recoil_observables(
@@ -177,14 +276,19 @@ def recoil_observables(
     fluorescence_yield: float = 0.0,
     velocity_dependent: bool = True,
     nodes: int = 48,
+    cw: bool = False,
+    standing: bool = False,
+    hit_fraction: float = 1.0,
+    fluence_nodes=None,
 ):
     """Phase shift arg R and visibility ratio |R| for each n̄ (see :func:`recoil_phasor`).
 
     The phase is continuous in n̄: it is followed from n̄ = 0 in steps of 0.05 photons (one
     photon turns each velocity component by at most |g| ≤ 1 rad), as an experiment raising the
-    pulse energy follows it, so it is not wrapped into (−π, π].
+    pulse energy follows it, so it is not wrapped into (−π, π].  When the nodes carry different
+    n̄ (cw, beam height) the step is divided by the rms of their n̄ scale.
     """
-    w, z = _photon_terms(
+    w, scale, z = _photon_terms(
         phase_coefficient,
         velocity,
         spread,
@@ -192,6 +296,11 @@ def recoil_observables(
         fluorescence_yield,
         velocity_dependent,
         nodes,
+        cw,
+        standing,
+    )
+    phasor, rms = _phasor_function(
+        w, scale, z, standing=standing, hit_fraction=hit_fraction, fluence_nodes=fluence_nodes
     )
     n = np.asarray(mean_photons, dtype=float)
     flat = n.ravel()
@@ -203,11 +312,11 @@ def recoil_observables(
             continue
         targets = np.abs(flat[sel])
         top = float(targets.max())
-        steps = int(min(_MAX_STEPS, max(8, math.ceil(top / _PHASE_STEP))))
+        steps = int(min(_MAX_STEPS, max(8, math.ceil(top * rms / _PHASE_STEP))))
         grid = np.linspace(0.0, top, steps + 1)
         allk = np.concatenate([grid, targets])
         order = np.argsort(allk, kind="stable")
-        r = (w * np.exp(np.multiply.outer(sign * allk[order], z))).sum(axis=1)
+        r = phasor(sign * allk[order])
         ph = np.empty_like(allk)
         md = np.empty_like(allk)
         ph[order] = np.unwrap(np.angle(r))

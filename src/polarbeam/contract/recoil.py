@@ -15,6 +15,7 @@ import numpy as np
 
 from polarbeam._util.tables import CELL_BLANKS, read_table
 from polarbeam.beam.photon_recoil import (
+    gaussian_crossing_length,
     gaussian_effective_area,
 )
 from polarbeam.contract.paths import resolve_data_file
@@ -23,8 +24,12 @@ from polarbeam.quantities import Measured, parse_quantity
 
 __all__ = [
     "FLUORESCENCE_FIT",
+    "ILLUMINATIONS",
     "LASER_KEYS",
+    "LASER_MODES",
+    "OPTIONAL_RECOIL_COLUMNS",
     "RECOIL_COLUMNS",
+    "VISIBILITY_ERRORS",
     "Laser",
     "RecoilCompound",
     "RecoilData",
@@ -46,10 +51,30 @@ RECOIL_COLUMNS = (
     "visibility_ratio_err",
 )
 
+#: Optional ``recoil.csv`` columns: the power of a cw laser per row, and a shared laser-off
+#: reference (label, its phase error in rad, the relative error of its visibility).
+OPTIONAL_RECOIL_COLUMNS = (
+    "power_W",
+    "reference",
+    "reference_phase_err_rad",
+    "reference_visibility_err",
+)
+
+LASER_MODES = ("pulsed", "cw")
+ILLUMINATIONS = ("travelling", "standing")
+VISIBILITY_ERRORS = ("rician", "gaussian")
+
 
 @dataclass(frozen=True)
 class Laser:
-    """One ``[[laser]]`` table: SI values with their stated 1σ errors."""
+    """One ``[[laser]]`` table: SI values with their stated 1σ errors.
+
+    ``mode`` "pulsed" (pulse energies, J) or "cw" (powers, W; n̄ ∝ 1/v); ``illumination``
+    "travelling" or "standing" (retro-reflected); ``beam_height_rms`` the rms height of the
+    molecular beam in a Gaussian spot; ``hit_fraction`` the fraction of detected molecules that
+    met a pulse; ``power`` the cw power of rows without ``power_W``; ``visibility_errors`` how
+    the visibility ratios are distributed ("rician": moduli; "gaussian").
+    """
 
     name: str
     wavelength: Measured
@@ -59,6 +84,20 @@ class Laser:
     waist: Measured | None = None
     beam_offset: Measured = field(default_factory=lambda: Measured(0.0))
     energy_scale: Measured = field(default_factory=lambda: Measured(1.0))
+    mode: str = "pulsed"
+    illumination: str = "travelling"
+    beam_height_rms: Measured = field(default_factory=lambda: Measured(0.0))
+    hit_fraction: Measured = field(default_factory=lambda: Measured(1.0))
+    power: Measured | None = None
+    visibility_errors: str = "rician"
+
+    @property
+    def cw(self) -> bool:
+        return self.mode == "cw"
+
+    @property
+    def standing(self) -> bool:
+        return self.illumination == "standing"
 
     def __post_init__(self):
         if (self.area is None) == (self.waist is None):
@@ -70,9 +109,12 @@ class Laser:
 
     @property
     def effective_area(self) -> float:
-        """Nominal effective area A (m²)."""
+        """Nominal effective area A (m²) of a pulse, or the crossing length L (m) of a cw beam
+        (fluence P/(vL)), both at the centre of the molecular beam."""
         if self.area is not None:
             return self.area.value
+        if self.cw:
+            return float(gaussian_crossing_length(self.waist.value, self.beam_offset.value))
         return float(gaussian_effective_area(self.waist.value, self.beam_offset.value))
 
     def stated(self) -> dict[str, Measured]:
@@ -87,6 +129,12 @@ class Laser:
         else:
             out[f"laser.{self.name}.waist"] = self.waist
             out[f"laser.{self.name}.beam_offset"] = self.beam_offset
+            if self.beam_height_rms.value > 0 or self.beam_height_rms.error > 0:
+                out[f"laser.{self.name}.beam_height_rms"] = self.beam_height_rms
+        if self.hit_fraction.value != 1 or self.hit_fraction.error > 0:
+            out[f"laser.{self.name}.hit_fraction"] = self.hit_fraction
+        if self.power is not None:
+            out[f"laser.{self.name}.power"] = self.power
         return out
 
 
@@ -106,6 +154,10 @@ class RecoilSeries:
     visibility_ratios: np.ndarray
     visibility_errors: np.ndarray
     lines: tuple[int, ...]
+    key_power: np.ndarray | None = None  # cw rows whose power is the laser's ``power`` key
+    references: tuple[str, ...] = ()  # shared laser-off reference label per row ("" none)
+    reference_phase_errors: np.ndarray | None = None
+    reference_visibility_errors: np.ndarray | None = None
 
     @property
     def label(self) -> str:
@@ -127,6 +179,7 @@ class RecoilCompound:
     fit_yield: bool = False
     emission_wavelength: float | None = None
     problem: str | None = None
+    dropped: tuple[str, ...] = ()  # points left out, each with the reason
 
     @property
     def lasers(self) -> tuple[str, ...]:
@@ -195,10 +248,20 @@ def _parse_lasers(raw, fname: str, layout: str, stated: dict[str, Measured]) -> 
             unit = _laser_position_unit(layout) if key == "position" else LASER_KEYS[key]
             return parse_quantity(_t[key], unit or "", where=f"{_w} {key}")
 
+        choices = _laser_choices(table, where, layout)
         vals = {k: q(k) for k in table if LASER_KEYS[k] is not None}
-        for k in ("wavelength", "area", "waist", "energy_scale"):
+        for k in ("wavelength", "area", "waist", "energy_scale", "power"):
             if k in vals and not vals[k].value > 0:
                 raise InputError(f"{where} {k}: expected > 0, found {table[k]!r}")
+        if "beam_height_rms" in vals and vals["beam_height_rms"].value < 0:
+            raise InputError(
+                f"{where} beam_height_rms: expected >= 0, found {table['beam_height_rms']!r}"
+            )
+        if "hit_fraction" in vals and not 0 < vals["hit_fraction"].value <= 1:
+            raise InputError(
+                f"{where} hit_fraction: expected a fraction 0 < f <= 1, found "
+                f"{table['hit_fraction']!r}"
+            )
         direction = table.get("direction", 1)
         if isinstance(direction, bool) or direction not in (1, -1):
             raise InputError(f"{where} direction: expected +1 or -1, found {direction!r}")
@@ -213,9 +276,53 @@ def _parse_lasers(raw, fname: str, layout: str, stated: dict[str, Measured]) -> 
                 waist=vals.get("waist"),
                 beam_offset=vals.get("beam_offset", Measured(0.0)),
                 energy_scale=vals.get("energy_scale", Measured(1.0)),
+                beam_height_rms=vals.get("beam_height_rms", Measured(0.0)),
+                hit_fraction=vals.get("hit_fraction", Measured(1.0)),
+                power=vals.get("power"),
+                **choices,
             )
         )
     return tuple(lasers)
+
+
+def _laser_choices(table: dict, where: str, layout: str) -> dict[str, str]:
+    """mode, illumination and visibility_errors of one [[laser]] table, with their rules."""
+    out = {}
+    for key, allowed in (
+        ("mode", LASER_MODES),
+        ("illumination", ILLUMINATIONS),
+        ("visibility_errors", VISIBILITY_ERRORS),
+    ):
+        v = table.get(key, allowed[0])
+        if v not in allowed:
+            raise InputError(
+                f"{where} {key}: expected one of {', '.join(repr(a) for a in allowed)}, found {v!r}"
+            )
+        out[key] = v
+    if "beam_height_rms" in table and "waist" not in table:
+        raise InputError(
+            f"{where} beam_height_rms: only used with waist (a Gaussian spot); a top-hat area "
+            "already is the mean over the molecular beam"
+        )
+    if out["mode"] == "cw":
+        if layout == "time-domain":
+            raise InputError(
+                f"{where} mode: expected 'pulsed' in the time-domain layout (a kick needs a "
+                "time), found 'cw'"
+            )
+        if "waist" not in table:
+            raise InputError(
+                f"{where} mode: 'cw' needs waist (the Gaussian beam the molecules cross), "
+                "found area"
+            )
+        if "hit_fraction" in table:
+            raise InputError(
+                f"{where} hit_fraction: only used with mode = 'pulsed' (every molecule crosses "
+                "a cw beam)"
+            )
+    elif "power" in table:
+        raise InputError(f"{where} power: only used with mode = 'cw' (pulses give energies)")
+    return out
 
 
 def _check_position(pos: Measured, raw, where: str, layout: str, stated) -> None:
@@ -324,11 +431,18 @@ def load_recoil(
         raise InputError(f"{fname} [data] recoil: expected a file path string, found {rel!r}")
     path = resolve_data_file(campaign_path.parent, rel, f"{fname} [data] recoil")
     timing = layout == "time-domain"
-    required = tuple(c for c in RECOIL_COLUMNS if not (timing and c in _VELOCITY_COLUMNS))
+    all_cw = all(la.cw for la in lasers)
+    required = tuple(
+        c
+        for c in RECOIL_COLUMNS
+        if not (timing and c in _VELOCITY_COLUMNS) and not (all_cw and c == "pulse_energy_J")
+    )
     table = read_table(path, required, "recoil")
-    names = {la.name for la in lasers}
+    by_name = {la.name: la for la in lasers}
+    names = set(by_name)
     groups: dict[str, dict[tuple[str, float], list]] = {}
     problems: dict[str, str] = {}
+    dropped: dict[str, list[str]] = {}
     for i, row in enumerate(table.rows):
         name = (row.get("compound") or "").strip(CELL_BLANKS)
         laser = (row.get("laser") or "").strip()
@@ -344,35 +458,23 @@ def load_recoil(
                 raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
             if not name:
                 raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
-            num = table.number
-            if timing:
-                v = num(i, "velocity_m_s", positive=True, default=1.0)
-                dv = num(i, "velocity_err_m_s", nonnegative=True, default=0.0)
-                sv = num(i, "velocity_spread_m_s", nonnegative=True, default=0.0)
-            else:
-                v = num(i, "velocity_m_s", positive=True)
-                dv = num(i, "velocity_err_m_s", nonnegative=True)
-                sv = num(i, "velocity_spread_m_s", nonnegative=True)
-            rec = (
-                num(i, "pulse_energy_J", positive=True),
-                num(i, "phase_rad"),
-                num(i, "phase_err_rad", positive=True),
-                num(i, "visibility_ratio", nonnegative=True),
-                num(i, "visibility_ratio_err", positive=True),
-                v,
-                dv,
-                sv,
-                table.lines[i],
-            )
-            temp = num(i, "temperature_K", positive=True)
+            rec, drop = _row(table, i, by_name[laser], timing)
+            temp = table.number(i, "temperature_K", positive=True)
         except CompoundError as exc:
             problems[name] = str(exc)
             groups.pop(name, None)
             continue
+        if drop:
+            dropped.setdefault(name, []).append(drop)
+            continue
         groups.setdefault(name, {}).setdefault((laser, temp), []).append(rec)
     compounds = []
-    for name in dict.fromkeys([*groups, *problems]):
+    for name in dict.fromkeys([*groups, *problems, *dropped]):
         problem = problems.get(name)
+        if problem is None and name not in groups:
+            problem = (
+                f"{table.name}: compound {name!r}: every point was dropped ({dropped[name][0]})"
+            )
         entry = compounds_info.get(name)
         if entry is None:
             compounds.append(
@@ -392,43 +494,116 @@ def load_recoil(
         if problem is None:
             try:
                 q, fit, lam = _yield_inputs(name, entry.get("extra", {}), compounds_file)
+                series = _series(name, groups[name], table.name)
             except CompoundError as exc:
                 problem = str(exc)
-        series = []
-        if problem is None:
-            for (laser, temp), recs in groups[name].items():
-                arr = np.array([r[:8] for r in recs], dtype=float)
-                series.append(
-                    RecoilSeries(
-                        compound=name,
-                        laser=laser,
-                        temperature_K=temp,
-                        velocity=Measured(float(np.mean(arr[:, 5])), float(np.mean(arr[:, 6]))),
-                        velocities=arr[:, 5],
-                        spreads=arr[:, 7],
-                        pulse_energies=arr[:, 0],
-                        phases=arr[:, 1],
-                        phase_errors=arr[:, 2],
-                        visibility_ratios=arr[:, 3],
-                        visibility_errors=arr[:, 4],
-                        lines=tuple(r[8] for r in recs),
-                    )
-                )
         compounds.append(
             RecoilCompound(
                 name,
                 entry.get("mass"),
-                tuple(series),
+                tuple(series) if problem is None else (),
                 q,
                 fit,
                 lam,
                 problem,
+                tuple(dropped.get(name, ())),
             )
         )
     return RecoilData(path, layout, lasers, tuple(compounds))
 
 
 _VELOCITY_COLUMNS = ("velocity_m_s", "velocity_err_m_s", "velocity_spread_m_s")
+
+
+def _row(table, i: int, la: Laser, timing: bool):
+    """One row's numbers, or (None, reason) when the point is dropped (a negative Rician
+    visibility ratio); bad cells raise :class:`CompoundError`."""
+    num = table.number
+    if timing:
+        v = num(i, "velocity_m_s", positive=True, default=1.0)
+        dv = num(i, "velocity_err_m_s", nonnegative=True, default=0.0)
+        sv = num(i, "velocity_spread_m_s", nonnegative=True, default=0.0)
+    else:
+        v = num(i, "velocity_m_s", positive=True)
+        dv = num(i, "velocity_err_m_s", nonnegative=True)
+        sv = num(i, "velocity_spread_m_s", nonnegative=True)
+    key_power = 0.0
+    if la.cw:
+        raw = (table.rows[i].get("power_W") or "").strip()
+        if not raw and la.power is None:
+            raise CompoundError(
+                f"{table.name} line {table.lines[i]}: column 'power_W' expected a number > 0 "
+                f"(cw laser {la.name!r} has no power key), found ''"
+            )
+        if raw:
+            dose = num(i, "power_W", positive=True)
+        else:
+            dose, key_power = la.power.value, 1.0
+    else:
+        dose = num(i, "pulse_energy_J", positive=True)
+    phase = num(i, "phase_rad")
+    phase_err = num(i, "phase_err_rad", positive=True)
+    rician = la.visibility_errors == "rician"
+    vis = num(i, "visibility_ratio")
+    vis_err = num(i, "visibility_ratio_err", positive=True)
+    label = (table.rows[i].get("reference") or "").strip()
+    ref_ph = num(i, "reference_phase_err_rad", nonnegative=True, default=0.0)
+    ref_vi = num(i, "reference_visibility_err", nonnegative=True, default=0.0)
+    if (ref_ph > 0 or ref_vi > 0) and not label:
+        raise CompoundError(
+            f"{table.name} line {table.lines[i]}: column 'reference' expected the label of the "
+            "shared laser-off reference whose errors this row gives, found ''"
+        )
+    if vis < 0 and rician:  # a Gaussian-distributed ratio may be negative, a modulus not
+        raw = (table.rows[i].get("visibility_ratio") or "").strip()
+        return None, (
+            f"{table.name} line {table.lines[i]}: column 'visibility_ratio' expected a "
+            f"number >= 0 (a Rician modulus; laser {la.name!r} visibility_errors = 'rician'), "
+            f"found {raw!r}; point dropped"
+        )
+    rec = (dose, phase, phase_err, vis, vis_err, v, dv, sv, key_power, ref_ph, ref_vi)
+    return (rec, table.lines[i], label), None
+
+
+def _series(name: str, groups: dict, fname: str) -> list[RecoilSeries]:
+    """The series of one compound, with the shared-reference errors checked per label."""
+    seen: dict[str, tuple[float, float, int]] = {}
+    series = []
+    for (laser, temp), recs in groups.items():
+        arr = np.array([r[0] for r in recs], dtype=float)
+        labels = tuple(r[2] for r in recs)
+        for rec, line, label in recs:
+            if not label:
+                continue
+            errs = (rec[9], rec[10])
+            first = seen.setdefault(label, (*errs, line))
+            if errs != first[:2]:
+                raise CompoundError(
+                    f"{fname} line {line}: reference {label!r} expected the errors of line "
+                    f"{first[2]} (reference_phase_err_rad {first[0]:g}, "
+                    f"reference_visibility_err {first[1]:g}), found {errs[0]:g}, {errs[1]:g}"
+                )
+        series.append(
+            RecoilSeries(
+                compound=name,
+                laser=laser,
+                temperature_K=temp,
+                velocity=Measured(float(np.mean(arr[:, 5])), float(np.mean(arr[:, 6]))),
+                velocities=arr[:, 5],
+                spreads=arr[:, 7],
+                pulse_energies=arr[:, 0],
+                phases=arr[:, 1],
+                phase_errors=arr[:, 2],
+                visibility_ratios=arr[:, 3],
+                visibility_errors=arr[:, 4],
+                lines=tuple(r[1] for r in recs),
+                key_power=arr[:, 8] > 0,
+                references=labels,
+                reference_phase_errors=arr[:, 9],
+                reference_visibility_errors=arr[:, 10],
+            )
+        )
+    return series
 
 
 #: Keys of a ``[[laser]]`` table and their SI unit ("" dimensionless, None not a quantity;
@@ -442,6 +617,12 @@ LASER_KEYS: dict[str, str | None] = {
     "beam_offset": "m",
     "direction": None,
     "energy_scale": "",
+    "mode": None,
+    "illumination": None,
+    "beam_height_rms": "m",
+    "hit_fraction": "",
+    "power": "W",
+    "visibility_errors": None,
 }
 
 

@@ -18,6 +18,13 @@ re-emission of quantum yield q, g = (1 − q) + q·sin φ_e/φ_e, φ_e being the
 emitted photon's full recoil along the grating axis (the projection cos θ of an isotropic
 emission is uniform on [−1, 1]).
 
+The ``[[laser]]`` keys of the experiment as run enter the same phasor
+(:mod:`polarbeam.beam.photon_recoil`): ``beam_height_rms`` averages it over the molecular-beam
+height in a Gaussian spot, ``hit_fraction`` mixes in unlit molecules, ``mode = "cw"`` makes n̄
+∝ 1/v inside the velocity average, ``illumination = "standing"`` replaces e^{iφ1} by cos φ1.
+Visibility ratios are Rician moduli by default and shared laser-off references give a block
+covariance (:mod:`polarbeam.extraction.recoil_noise`).
+
 σ (and optionally q) is fitted to the phases and visibility ratios together.  σ enters only as
 σ·E·s/A (s the pulse-energy calibration factor), so the area and the calibration scale the result
 exactly; the laser position, the grating geometry, the mass, the velocity calibration and a stated
@@ -42,7 +49,9 @@ from scipy import stats
 from uncertainties import UFloat, ufloat
 
 from polarbeam.beam.photon_recoil import (
+    gaussian_crossing_length,
     gaussian_effective_area,
+    height_fluence_nodes,
     photon_energy,
     recoil_observables,
     recoil_velocity,
@@ -51,6 +60,7 @@ from polarbeam.constants import AMU
 from polarbeam.contract.campaign import build_layout
 from polarbeam.contract.recoil import Laser, RecoilCompound, RecoilData
 from polarbeam.errors import CompoundError, FitError, InputError
+from polarbeam.extraction.recoil_noise import common_covariance, rician_mean, rician_sd, whiten
 from polarbeam.quantities import Measured, format_value_error
 from polarbeam.results.recoil import (
     CrossSectionFit,
@@ -129,10 +139,22 @@ def _build_context(c) -> _Context:
         if la.area is not None:
             a = _tagged(la.area, _laser_tag(la.name, "area"))
         else:
-            a = gaussian_effective_area(
-                _tagged(la.waist, _laser_tag(la.name, "waist")),
-                _tagged(la.beam_offset, _laser_tag(la.name, "beam_offset")),
-            )
+            waist = _tagged(la.waist, _laser_tag(la.name, "waist"))
+            offset = _tagged(la.beam_offset, _laser_tag(la.name, "beam_offset"))
+            profile = gaussian_crossing_length if la.cw else gaussian_effective_area
+            a = profile(waist, offset)
+            for key, u in (("waist", waist), ("beam_offset", offset)):
+                nominal[f"laser.{la.name}.{key}"] = nominal_values(u)
+                if isinstance(u, UFloat):
+                    shared[f"laser.{la.name}.{key}"] = u  # the same number as in the area
+        for key in ("beam_height_rms", "hit_fraction", "power"):
+            m = getattr(la, key)
+            if m is not None:
+                nominal[f"laser.{la.name}.{key}"] = m.value
+                if m.error > 0:
+                    shared[f"laser.{la.name}.{key}"] = ufloat(
+                        m.value, m.error, tag=_laser_tag(la.name, key)
+                    )
         area_ratio[la.name] = a / la.effective_area
         energy_ratio[la.name] = (
             _tagged(la.energy_scale, _laser_tag(la.name, "energy_scale")) / la.energy_scale.value
@@ -172,7 +194,28 @@ class _CompoundModel:
         self.phase_err = cat([x.phase_errors for x in s])
         self.vis = cat([x.visibility_ratios for x in s])
         self.vis_err = cat([x.visibility_errors for x in s])
+        self.key_power = cat([_or_zeros(x.key_power, x.n_points, bool) for x in s])
+        self.velocity_row = cat([x.velocities for x in s])
+        labels = [lab for x in s for lab in (x.references or ("",) * x.n_points)]
+        self.labels = labels
+        self.ref_vis = cat([_or_zeros(x.reference_visibility_errors, x.n_points) for x in s])
+        ref_ph = cat([_or_zeros(x.reference_phase_errors, x.n_points) for x in s])
+        self.phase_cov = None
+        if any(labels) and np.any(ref_ph > 0):
+            self.phase_cov = common_covariance(self.phase_err, labels, ref_ph)
+        self.vis_shared = any(labels) and bool(np.any(self.ref_vis > 0))
         self.laser_of_row = cat([np.full(x.n_points, self.lasers.index(x.laser)) for x in s])
+        # hit fractions with a stated error: fitted with that error as a Gaussian constraint
+        # (the saturation of the mixture measures f), the stated value its centre
+        self.constrained = [
+            (f"laser.{n}.hit_fraction", ctx.lasers[n].hit_fraction.error)
+            for n in self.lasers
+            if ctx.lasers[n].hit_fraction.error > 0
+        ]
+        self.rician = np.array(
+            [ctx.lasers[self.lasers[i]].visibility_errors == "rician" for i in self.laser_of_row],
+            dtype=bool,
+        )
         self.group_of_row = cat([np.full(x.n_points, g) for g, x in enumerate(s)])
         self.velocity_dependent = ctx.layout != "time-domain"
         blocks: list[_Block] = []
@@ -186,9 +229,6 @@ class _CompoundModel:
                 blocks.append(_Block(self.lasers.index(x.laser), g, idx[sel], float(v), float(sp)))
         self.blocks = tuple(blocks)
         self.n = self.energy.size
-        self.e_max = np.array(
-            [float(self.energy[self.laser_of_row == i].max()) for i in range(len(self.lasers))]
-        )
 
     def values(self) -> dict[str, float]:
         """Nominal inputs of this compound's model (SI; velocity entries are scale factors)."""
@@ -212,8 +252,36 @@ class _CompoundModel:
             lam_e = self.rc.emission_wavelength or lam
             ke = layout.scale * float(recoil_velocity(lam_e, vals["mass"])) * w
             per = la.energy_scale.value / (la.effective_area * float(photon_energy(lam)))
+            if la.standing:  # n̄ is the mean over x of both passes (twice the incoming pass)
+                per *= 2.0
             out.append((k, ke, per))
         return out
+
+    def fluence_nodes(self, name: str, vals: dict[str, float]):
+        """Relative fluence over the molecular-beam height (None: a line beam)."""
+        height = vals.get(f"laser.{name}.beam_height_rms", 0.0)
+        if height <= 0:
+            return None
+        return height_fluence_nodes(
+            vals[f"laser.{name}.waist"], vals[f"laser.{name}.beam_offset"], height
+        )
+
+    def peak_dose(self, vals: dict[str, float], i: int) -> float:
+        """Largest dose of laser ``i``'s rows (J, or W·s/m for cw: P/v at the mean speed)."""
+        rows = np.flatnonzero(self.laser_of_row == i)
+        name = self.lasers[i]
+        d = self.dose(vals, rows, name)
+        if self.ctx.lasers[name].cw:
+            d = d / self.velocity_row[rows]
+        return float(d.max())
+
+    def dose(self, vals: dict[str, float], rows: np.ndarray, name: str) -> np.ndarray:
+        """Pulse energies (J) or cw powers (W) of ``rows``; key-power rows follow ``power``."""
+        e = self.energy[rows]
+        key = self.key_power[rows]
+        if key.any():
+            e = np.where(key, vals[f"laser.{name}.power"], e)
+        return e
 
     def predict(self, sigmas: np.ndarray, q: float, vals: dict[str, float]):
         """Model phases and visibility ratios for cross-sections ``sigmas`` (m², per laser)."""
@@ -222,8 +290,12 @@ class _CompoundModel:
         vi = np.empty(self.n)
         for b in self.blocks:
             k, ke, per = coef[b.laser]
+            name = self.lasers[b.laser]
+            la = self.ctx.lasers[name]
             f = vals[f"velocity[{b.group}]"]
-            nbar = sigmas[b.laser] * per * self.energy[b.rows]
+            nbar = sigmas[b.laser] * per * self.dose(vals, b.rows, name)
+            if la.cw:  # n̄ at the mean speed; the fluence collected ∝ 1/v
+                nbar = nbar / (b.velocity * f)
             ph[b.rows], vi[b.rows] = recoil_observables(
                 nbar,
                 k,
@@ -233,14 +305,47 @@ class _CompoundModel:
                 fluorescence_yield=q,
                 velocity_dependent=self.velocity_dependent,
                 nodes=self.ctx.nodes,
+                cw=la.cw,
+                standing=la.standing,
+                hit_fraction=vals.get(f"laser.{name}.hit_fraction", 1.0),
+                fluence_nodes=self.fluence_nodes(name, vals),
             )
         return ph, vi
+
+    def visibility_model(self, modulus: np.ndarray):
+        """Expected measured ratio and its standard deviation (Rician rows: mean and sd)."""
+        if not self.rician.any():
+            return modulus, self.vis_err
+        r = self.rician
+        mean = np.where(r, rician_mean(modulus, self.vis_err), modulus)
+        sd = np.where(r, rician_sd(modulus, self.vis_err), self.vis_err)
+        return mean, sd
 
     def residual(self, theta: np.ndarray, vals: dict[str, float]) -> np.ndarray:
         nl = len(self.lasers)
         q = theta[nl] if self.rc.fit_yield else vals["fluorescence_yield"]
+        prior = []
+        if self.constrained:
+            k0 = nl + int(self.rc.fit_yield)
+            vals = dict(vals)
+            for j, (key, err) in enumerate(self.constrained):
+                prior.append((theta[k0 + j] - vals[key]) / err)
+                vals[key] = theta[k0 + j]
         ph, vi = self.predict(theta[:nl] * SIGMA_UNIT, q, vals)
-        return np.concatenate([(ph - self.phase) / self.phase_err, (vi - self.vis) / self.vis_err])
+        if self.phase_cov is None:
+            rp = (ph - self.phase) / self.phase_err
+        else:
+            rp = whiten(ph - self.phase, self.phase_cov)
+        mean, sd = self.visibility_model(vi)
+        if self.vis_shared:
+            rv = whiten(mean - self.vis, common_covariance(sd, self.labels, self.ref_vis * vi))
+        else:
+            rv = (mean - self.vis) / sd
+        return np.concatenate([rp, rv, prior])
+
+
+def _or_zeros(a, n: int, dtype=float) -> np.ndarray:
+    return np.zeros(n, dtype=dtype) if a is None else np.asarray(a, dtype=dtype)
 
 
 def _jacobian(fun, x0: np.ndarray, steps: np.ndarray) -> np.ndarray:
@@ -275,14 +380,15 @@ def _start(model: _CompoundModel, vals, q0: float) -> np.ndarray:
     """Per laser, the best of a logarithmic scan of n̄ at the largest pulse energy."""
     nl = len(model.lasers)
     coef = model.coefficients(vals)
-    per_sigma = np.array([coef[i][2] * model.e_max[i] for i in range(nl)]) * SIGMA_UNIT
+    per_sigma = np.array([coef[i][2] * model.peak_dose(vals, i) for i in range(nl)]) * SIGMA_UNIT
     best = np.full(nl, np.inf)
     theta0 = np.ones(nl)
     for nmax in np.geomspace(1e-3, 30.0, 22):
         th = nmax / per_sigma
         full = np.concatenate([th, [q0]]) if model.rc.fit_yield else th
+        full = np.concatenate([full, [vals[key] for key, _ in model.constrained]])
         r = model.residual(full, vals) ** 2
-        chi = r[: model.n] + r[model.n :]
+        chi = r[: model.n] + r[model.n : 2 * model.n]
         for i in range(nl):
             c = float(chi[model.laser_of_row == i].sum())
             if c < best[i]:
@@ -313,7 +419,17 @@ def _fit_compound(rc: RecoilCompound, ctx: _Context, mass_u: float) -> RecoilCom
     fit_u = _uncertain_parameters(rc, model, ctx, vals0, sol)
     fits, warnings = _laser_fits(rc, model, ctx, vals0, sol, fit_u)
     q_u = _fluorescence_yield(rc, sol, fit_u, len(model.lasers), warnings)
+    warnings.extend(rc.dropped)
     messages = _messages(rc, q_u, sol.error_scale)
+    k0 = len(model.lasers) + int(rc.fit_yield)
+    for j, (key, _) in enumerate(model.constrained):
+        la = ctx.lasers[key[len("laser.") : -len(".hit_fraction")]]
+        f = fit_u[k0 + j]
+        messages.append(
+            f"{la.name}: hit fraction {format_value_error(f.nominal_value, f.std_dev)} "
+            f"(stated {format_value_error(la.hit_fraction.value, la.hit_fraction.error)}, "
+            "refined by the data's saturation)"
+        )
     status = "warning" if warnings else "ok"
     return RecoilCompoundResult(
         compound=rc.name,
@@ -342,6 +458,9 @@ def _solve(rc: RecoilCompound, model: _CompoundModel, vals0: dict, scale_errors:
         params.add(names[i], value=theta0[i])
     if fit_q:
         params.add("q", value=q_start)
+    for j, (key, _) in enumerate(model.constrained):
+        names.append(f"f{j}")
+        params.add(f"f{j}", value=vals0[key])
 
     def res_fun(p):
         return model.residual(np.array([p[k].value for k in names]), vals0)
@@ -361,11 +480,14 @@ def _solve(rc: RecoilCompound, model: _CompoundModel, vals0: dict, scale_errors:
         cov = np.linalg.inv(jtj)
     except np.linalg.LinAlgError:
         raise FitError(f"compound {rc.name!r}: the recoil fit has a singular covariance") from None
+    if model.constrained:  # the data's share only: the constraints enter as stated inputs
+        jd = jac[: 2 * model.n]
+        cov = cov @ (jd.T @ jd) @ cov
     if not (np.all(np.isfinite(cov)) and np.all(np.diag(cov) > 0)):
         raise FitError(f"compound {rc.name!r}: the recoil fit gave no usable errors")
     r0 = r_theta(theta)
     chi2 = float(r0 @ r0)
-    ndof = 2 * model.n - len(names)
+    ndof = 2 * model.n - len(names) + len(model.constrained)
     error_scale = 1.0
     if scale_errors == "birge" and ndof > 0 and chi2 / ndof > 1:
         error_scale = math.sqrt(chi2 / ndof)
@@ -376,7 +498,10 @@ def _solve(rc: RecoilCompound, model: _CompoundModel, vals0: dict, scale_errors:
 def _nuisance_inputs(rc: RecoilCompound, model: _CompoundModel, ctx: _Context):
     """(key, 1σ, uncertain value) of every stated input that enters the model non-linearly."""
     nuisances: list[tuple[str, float, Any]] = []
-    relevant = {f"laser.{n}.{x}" for n in model.lasers for x in ("wavelength", "position")}
+    relevant = {f"laser.{n}.{x}" for n in model.lasers for x in _NONLINEAR_LASER_KEYS}
+    for n in model.lasers:  # waist and offset shape the height profile (beyond the area)
+        if ctx.lasers[n].beam_height_rms.value > 0:
+            relevant |= {f"laser.{n}.waist", f"laser.{n}.beam_offset"}
     for k, u in ctx.shared.items():
         if k.startswith("instrument.") or k in relevant:
             nuisances.append((k, u.std_dev, u))
@@ -403,6 +528,9 @@ def _nuisance_inputs(rc: RecoilCompound, model: _CompoundModel, ctx: _Context):
     return nuisances
 
 
+_NONLINEAR_LASER_KEYS = ("wavelength", "position", "beam_height_rms", "hit_fraction", "power")
+
+
 def _uncertain_parameters(rc, model, ctx, vals0, sol: _Solution) -> list:
     """Fitted parameters as correlated uncertain numbers, with every stated input attached.
 
@@ -410,7 +538,7 @@ def _uncertain_parameters(rc, model, ctx, vals0, sol: _Solution) -> list:
     dθ/dp = −(JᵀJ)⁻¹ Jᵀ ∂r/∂p.
     """
     nl = len(model.lasers)
-    scales = np.array([SIGMA_UNIT] * nl + ([1.0] if rc.fit_yield else []))
+    scales = np.array([SIGMA_UNIT] * nl + [1.0] * (len(sol.names) - nl))
     fit_u = uncertainties.correlated_values(
         sol.theta * scales,
         sol.cov * np.outer(scales, scales),
@@ -435,7 +563,8 @@ def _laser_fits(rc, model, ctx, vals0, sol: _Solution, fit_u) -> tuple[list, lis
     fit_q = rc.fit_yield
     theta, r0 = sol.theta, sol.residuals
     q_val = theta[nl] if fit_q else rc.fluorescence_yield.value
-    ph_m, vi_m = model.predict(theta[:nl] * SIGMA_UNIT, q_val, vals0)
+    ph_m, modulus = model.predict(theta[:nl] * SIGMA_UNIT, q_val, vals0)
+    vi_m, _ = model.visibility_model(modulus)
     coef = model.coefficients(vals0)
     fits = []
     warnings: list[str] = []
@@ -443,10 +572,10 @@ def _laser_fits(rc, model, ctx, vals0, sol: _Solution, fit_u) -> tuple[list, lis
         la = ctx.lasers[name]
         sigma_u = fit_u[i] * ctx.area_ratio[name] / ctx.energy_ratio[name]
         rows = model.laser_of_row == i
-        rr = np.concatenate([r0[: model.n][rows], r0[model.n :][rows]])
+        rr = np.concatenate([r0[: model.n][rows], r0[model.n : 2 * model.n][rows]])
         chi_l = float(rr @ rr)
         nu_l = int(2 * rows.sum()) - 1
-        n_at_max = float(theta[i] * SIGMA_UNIT * coef[i][2] * model.e_max[i])
+        n_at_max = float(theta[i] * SIGMA_UNIT * coef[i][2] * model.peak_dose(vals0, i))
         fits.append(
             CrossSectionFit(
                 compound=rc.name,
@@ -474,11 +603,17 @@ def _laser_fits(rc, model, ctx, vals0, sol: _Solution, fit_u) -> tuple[list, lis
             )
         if sigma_u.nominal_value <= 2 * sigma_u.std_dev:
             warnings.append(f"{name}: σ is not significant (less than 2 standard errors)")
-        vmin = float(np.min(vi_m[rows]))
+        vmin = float(np.min(modulus[rows]))
         if vmin < 0.1:
             warnings.append(
                 f"{name}: the fringe visibility drops to {vmin:.0%} of laser-off at the largest "
                 "pulse energy; the phase there is poorly defined"
+            )
+        height = la.beam_height_rms
+        if height.value == 0 and height.error > 0:
+            warnings.append(
+                f"{name}: beam_height_rms 0 ± {height.error:g} m is compatible with 0; its error "
+                "is second order and is not propagated"
             )
         if la.waist is not None and la.beam_offset.error > abs(la.beam_offset.value):
             warnings.append(

@@ -106,7 +106,8 @@ def recoil_markdown_lines(recoil: RecoilResult) -> list[str]:
         "",
         f"source {md_code(recoil.source)} · lasers: "
         + ", ".join(
-            f"{md_escape(la.name)} ({la.wavelength.value * 1e9:g} nm)" for la in recoil.lasers
+            f"{md_escape(la.name)} ({la.wavelength.value * 1e9:g} nm{_laser_modes(la)})"
+            for la in recoil.lasers
         ),
         "",
         "| compound | laser | λ (nm) | σ (10⁻¹⁶ cm²) | n̄ at max | χ²/ν | status |",
@@ -148,7 +149,8 @@ def recoil_markdown_lines(recoil: RecoilResult) -> list[str]:
                 f"σ = ({_sigma_text(f)})"
                 "·10⁻¹⁶ cm²",
                 "",
-                "| E (J) | phase (rad) | model | pull | visibility ratio | model | pull |",
+                f"| {_dose_head(recoil, f.laser)} | phase (rad) | model | pull | "
+                "visibility ratio | model | pull |",
                 "|---|---|---|---|---|---|---|",
             ]
             for e, p, pe, pm, v, ve, vm in zip(
@@ -180,7 +182,7 @@ def recoil_markdown_lines(recoil: RecoilResult) -> list[str]:
             out += ["", "Warnings:", ""] + [f"- {md_escape(w)}" for w in c.warnings]
     out += [
         "",
-        "Method: n̄ = σE/(Aħω) photons per molecule (Poisson); fringe phasor "
+        "Method: n̄ = σE/(Aħω) photons per molecule (Poisson; cw: σP/(vLħω)); fringe phasor "
         "R = ⟨exp(n̄(g e^{iφ1} − 1))⟩ over the velocity distribution, φ1 = 2π·(ħk/m)·w/(v d); "
         "σ fitted to arg R and |R| together; area and pulse-energy calibration scale σ "
         "exactly, the other inputs are propagated by implicit derivatives.",
@@ -206,6 +208,27 @@ def recoil_terminal_lines(recoil: RecoilResult) -> list[str]:
 
 def recoil_markdown(recoil: RecoilResult) -> str:
     return "\n".join(recoil_markdown_lines(recoil)) + "\n"
+
+
+def _laser_modes(la) -> str:
+    """What differs from a travelling pulse seen by every molecule (empty for that)."""
+    parts = []
+    if la.mode != "pulsed":
+        parts.append(la.mode)
+    if la.illumination != "travelling":
+        parts.append(f"{la.illumination} wave")
+    if la.beam_height_rms.value > 0:
+        parts.append(f"beam height {la.beam_height_rms.value * 1e3:g} mm rms")
+    if la.hit_fraction.value != 1:
+        parts.append(f"hit fraction {la.hit_fraction.value:g}")
+    if la.visibility_errors != "rician":
+        parts.append(f"{la.visibility_errors} visibility errors")
+    return "".join(f", {p}" for p in parts)
+
+
+def _dose_head(recoil: RecoilResult, laser: str) -> str:
+    la = next((x for x in recoil.lasers if x.name == laser), None)
+    return "P (W)" if la is not None and la.mode == "cw" else "E (J)"
 
 
 def _sigma_text(fit) -> str:

@@ -171,6 +171,11 @@ class RecoilResult:
                     "direction": la.direction,
                     "beam": "top-hat" if la.area is not None else "gaussian",
                     "effective_area_m2": la.effective_area,
+                    "mode": la.mode,
+                    "illumination": la.illumination,
+                    "beam_height_rms_m": la.beam_height_rms.value,
+                    "hit_fraction": la.hit_fraction.value,
+                    "visibility_errors": la.visibility_errors,
                 }
                 for la in self.lasers
             ],
