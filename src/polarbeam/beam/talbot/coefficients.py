@@ -12,7 +12,8 @@ interferometer is proportional to B_2(L/L_T); the mean signal to B_0(0).
 
 Light grating (standing wave of period d = λ_L/2, antinodes at x = 0): with θ = 2πx/d the kernel is
 pref · exp(a cos θ + i b sin θ), whose Fourier components are (u/w)^{m/2} I_m(2√(uw)) with
-u = (a+b)/2, w = (a−b)/2 (the generating function of the modified Bessel functions):
+u = (a+b)/2, w = (a−b)/2 (the generating function of the modified Bessel functions); they are
+real, and so is B_m of these gratings (symmetric about x = 0):
 
 ========================  ===========================  =====================  ==============
 case                      pref                         a                      b
@@ -62,32 +63,48 @@ def _check(absorbed: str, model: str) -> None:
         raise ValueError(f"model: expected one of {MODELS}, found {model!r}")
 
 
-def exp_cos_sin_coefficient(m: int, a, b):
-    """(1/2π) ∫ e^{−imθ} exp(a cos θ + i b sin θ) dθ for real arrays a, b (closed form).
+def _series_factor(m: int, t, log_pref):
+    """e^{log_pref} Σ_l t^l/(l!(m+l)!) for m ≥ 0: e^{log_pref} t^{−m/2} I_m(2√t) (t > 0) or
+    |t|^{−m/2} J_m(2√|t|) (t < 0), exponentially scaled so that e^{log_pref} I_m never overflows."""
+    t = np.asarray(t, dtype=float)
+    out = np.empty(t.shape)
+    small = np.abs(t) < 1e-3
+    ts = t[small]
+    series = sum(ts**k / (math.factorial(k) * math.factorial(m + k)) for k in range(6))
+    out[small] = np.exp(log_pref[small]) * series
+    pos = (t > 0) & ~small
+    x = 2.0 * np.sqrt(t[pos])
+    neg = (t < 0) & ~small
+    y = 2.0 * np.sqrt(-t[neg])
+    if m == 2:  # I₂ = I₀ − 2I₁/x, J₂ = 2J₁/y − J₀ (recurrences; faster than the general order)
+        i_m = special.i0e(x) - 2.0 * special.i1e(x) / x
+        j_m = 2.0 * special.j1(y) / y - special.j0(y)
+    else:
+        i_m = special.ive(m, x)
+        j_m = special.jv(m, y)
+    out[pos] = i_m * np.exp(x + log_pref[pos]) / (0.5 * x) ** m
+    out[neg] = j_m * np.exp(log_pref[neg]) / (0.5 * y) ** m
+    return out
 
-    exp(u z + w/z) = Σ_m (u/w)^{m/2} I_m(2√(uw)) z^m with z = e^{iθ}, u = (a+b)/2, w = (a−b)/2;
-    the square roots are taken separately (√u/√w)^m I_m(2√u√w), which is branch independent for
-    integer m. When u or w vanishes the series reduces to u^m/m! (m ≥ 0) or w^{−m}/(−m)! (m ≤ 0).
+
+def exp_cos_sin_coefficient(m: int, a, b, log_pref=0.0):
+    """e^{log_pref}·(1/2π) ∫ e^{−imθ} exp(a cos θ + i b sin θ) dθ for real arrays a, b.
+
+    exp(u z + w/z), z = e^{iθ}, u = (a+b)/2, w = (a−b)/2, has the z^m coefficient
+    Σ_l u^{m+l} w^l/((m+l)! l!) = u^m F_m(uw) (m ≥ 0), with F_m(t) = t^{−m/2} I_m(2√t) for
+    t > 0 and |t|^{−m/2} J_m(2√|t|) for t < 0 (the Bessel generating function); m < 0 follows
+    from θ → −θ (b → −b). Real arithmetic throughout; the result is real.
     """
     m = int(m)
-    a, b = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(b, dtype=float))
-    u = 0.5 * (a + b) + 0j
-    w = 0.5 * (a - b) + 0j
-    out = np.zeros(a.shape, dtype=complex)
-    zero_u = u == 0
-    zero_w = w == 0
-    both = zero_u & zero_w
-    out[both] = 1.0 if m == 0 else 0.0
-    only_w = zero_w & ~zero_u  # exp(u z): z^m coefficient u^m/m!
-    if m >= 0:
-        out[only_w] = u[only_w] ** m / math.factorial(m)
-    only_u = zero_u & ~zero_w  # exp(w/z): z^m coefficient w^{-m}/(-m)!
-    if m <= 0:
-        out[only_u] = w[only_u] ** (-m) / math.factorial(-m)
-    gen = ~(zero_u | zero_w)
-    su, sw = np.sqrt(u[gen]), np.sqrt(w[gen])
-    out[gen] = (su / sw) ** m * special.iv(m, 2.0 * su * sw)
-    return out if out.ndim else complex(out)
+    a, b, lp = np.broadcast_arrays(
+        np.asarray(a, dtype=float), np.asarray(b, dtype=float), np.asarray(log_pref, dtype=float)
+    )
+    if m < 0:
+        m, b = -m, -b
+    u = 0.5 * (a + b)
+    w = 0.5 * (a - b)
+    out = u**m * _series_factor(m, u * w, lp)
+    return out if out.ndim else float(out)
 
 
 def light_coefficient(
@@ -119,19 +136,19 @@ def light_coefficient(
         b = phi0 * np.sin(np.pi * xi)
         if absorbed == "kept":
             a = 0.5 * n0 * (1.0 - np.cos(np.pi * xi))
-            pref = np.exp(-a)
+            log_pref = -a
         else:
             a = -0.5 * n0 * np.cos(np.pi * xi)
-            pref = np.exp(-0.5 * n0)
+            log_pref = -0.5 * n0
     else:
         b = phi0 * np.pi * xi
         if absorbed == "kept":
             a = -0.5 * n0 * (1.0 - np.cos(np.pi * xi))
-            pref = np.exp(a)
+            log_pref = a
         else:
             a = -0.5 * n0
-            pref = np.exp(-0.5 * n0)
-    return pref * exp_cos_sin_coefficient(m, a, b)
+            log_pref = -0.5 * n0
+    return exp_cos_sin_coefficient(m, a, b, log_pref)
 
 
 def light_kernel(x_d, s_d, phi0, n0=0.0, absorbed: Absorbed = "kept", model: Model = "quantum"):

@@ -15,6 +15,7 @@ from typing import Literal
 
 import numpy as np
 from scipy import constants as _sc
+from scipy import special
 
 from polarbeam.beam.distributions import GaussianVelocity, VelocityDistribution
 from polarbeam.beam.talbot.coefficients import (
@@ -121,7 +122,10 @@ class TalbotLauInterferometer:
             phi0, n0 = g.strengths(alpha_re, sigma_abs, power, velocity)
             xi_b = np.broadcast_to(xi, np.broadcast(xi, phi0).shape)
             b2 = light_coefficient(2, xi_b, phi0, n0, g.absorbed, model)
-            b0 = light_coefficient(0, 0.0 * xi_b, phi0, n0, g.absorbed, model).real
+            if g.absorbed == "kept":  # B₀(0) = 1: absorption moves molecules, loses none
+                b0 = np.ones(xi_b.shape)
+            else:  # B₀(0) = e^{−n0/2} I₀(n0/2), the mean of e^{−n0 cos²}
+                b0 = special.i0e(0.5 * np.broadcast_to(n0, xi_b.shape))
         else:
             xi = np.asarray(xi, dtype=float)
             shape = np.broadcast(xi, np.asarray(power)).shape

@@ -1,0 +1,357 @@
+"""Optical polarizability and absorption cross-section from visibility-versus-power curves.
+
+Per compound the real and imaginary polarizability volumes at the laser wavelength (Re α, Im α
+in Å³; σ_abs = k Im α/ε₀) are fitted to every series (temperature, velocity) of
+``visibilities.csv`` by maximising the **Rician** likelihood of the measured visibilities
+(a visibility is the modulus of a fitted fringe amplitude: never negative, biased upward near
+zero, docs/visibility.md §8). The visibility curve oscillates with power, so a grid of starting
+points precedes the local fit. The statistical covariance is the inverse Hessian of −ln L; the
+stated inputs (power scale, vertical waist, open fraction, each series' velocity calibration)
+are propagated by refitting at ±1σ of each and enter as tagged :mod:`uncertainties` variables,
+shared by all compounds where the input is shared, so ``variance_budget`` splits the variance.
+
+The same fit with the classical (straight-ray) model gives a second deviance; their difference
+is 2 ln(likelihood ratio) and names the preferred model (``quantum``, ``classical`` or
+``undecided`` within ±2 ln 100).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+from scipy import optimize, special
+from uncertainties import correlated_values, ufloat
+
+from polarbeam.beam.distributions import GaussianVelocity
+from polarbeam.beam.talbot import absorption_cross_section
+from polarbeam.constants import AMU, ANGSTROM3_SI
+from polarbeam.contract.visibility import GratingSpec, VisibilityCompound, VisibilityData
+from polarbeam.errors import CompoundError, FitError
+from polarbeam.results.visibility import (
+    OpticalCompoundResult,
+    OpticalResult,
+    VisibilityCurve,
+)
+
+__all__ = [
+    "LIKELIHOOD_THRESHOLD",
+    "analyze_visibilities",
+    "fit_compound",
+    "rician_deviance",
+    "rician_nll",
+    "saturated_amplitude",
+]
+
+#: |2 ln LR| above which one model is preferred (a likelihood ratio of 100).
+LIKELIHOOD_THRESHOLD = 2.0 * math.log(100.0)
+
+_BUDGET_TAGS = {
+    "gratings.power_scale": "gratings: power_scale",
+    "gratings.laser_waist_vertical": "gratings: laser_waist_vertical",
+    "gratings.open_fraction": "gratings: open_fraction",
+    "gratings.spacing": "instrument: grating spacing",
+}
+
+
+# d ln(fitted α)/d ln(input) for the inputs that enter only through α·P·s/w_y
+_SCALE_KEYS = {"gratings.power_scale": -1.0, "gratings.laser_waist_vertical": 1.0}
+
+
+def rician_nll(v, nu, s):
+    """−ln p(V | ν, σ) of the Rician distribution, without the ν-independent ln(V/σ²) term."""
+    v, nu, s = np.asarray(v, float), np.asarray(nu, float), np.asarray(s, float)
+    z = v * nu / s**2
+    return (v**2 + nu**2) / (2 * s**2) - (np.log(special.i0e(z)) + z)
+
+
+def saturated_amplitude(v, s):
+    """The ν ≥ 0 that maximises the Rician likelihood of one measured V (0 when V² ≤ 2σ²)."""
+    v, s = np.broadcast_arrays(np.asarray(v, float), np.asarray(s, float))
+    out = np.zeros(v.shape)
+    live = v**2 > 2 * s**2
+    vv, ss = v[live], s[live]
+    lo, hi = np.zeros(vv.shape), vv.copy()  # the root of ν = V I₁/I₀(Vν/σ²) lies in (0, V]
+    for _ in range(80):
+        mid = 0.5 * (lo + hi)
+        z = vv * mid / ss**2
+        g = vv * special.i1e(z) / special.i0e(z) - mid
+        lo = np.where(g > 0, mid, lo)
+        hi = np.where(g > 0, hi, mid)
+    out[live] = 0.5 * (lo + hi)
+    return out
+
+
+def rician_deviance(v, nu, s) -> float:
+    """2 Σ [−ln L(ν) + ln L(ν_sat)]: the Rician χ² (Σ((V−ν)/σ)² when ν ≫ σ)."""
+    sat = saturated_amplitude(v, s)
+    return float(2.0 * np.sum(rician_nll(v, nu, s) - rician_nll(v, sat, s)))
+
+
+@dataclass
+class _Problem:
+    """One compound's data and the interferometer, for given values of the stated inputs."""
+
+    vc: VisibilityCompound
+    spec: GratingSpec
+    nodes: int
+
+    def predict(self, x, model: str, values: dict[str, float] | None = None):
+        """Model visibilities per series for x = (Re α, Im α) in Å³."""
+        values = values or {}
+        tl = self.spec.build(values)
+        mass = values.get("mass", self.vc.mass.value)
+        re_si = x[0] * ANGSTROM3_SI
+        sigma = 0.0
+        if tl.light:
+            sigma = float(absorption_cross_section(x[1] * ANGSTROM3_SI, tl.second.wavelength))
+        out = []
+        for k, s in enumerate(self.vc.series):
+            v = values.get(f"velocity[{k}]", s.velocity.value)
+            dist = GaussianVelocity(v, s.spread)
+            out.append(
+                tl.visibility(mass, dist, s.powers, re_si, sigma, model=model, nodes=self.nodes)
+            )
+        return out
+
+    def nll(self, x, model: str, values=None) -> float:
+        pred = self.predict(x, model, values)
+        return float(
+            sum(
+                np.sum(rician_nll(s.visibilities, p, s.errors))
+                for s, p in zip(self.vc.series, pred, strict=True)
+            )
+        )
+
+    def deviance(self, x, model: str, values=None) -> float:
+        pred = self.predict(x, model, values)
+        return float(
+            sum(
+                rician_deviance(s.visibilities, p, s.errors)
+                for s, p in zip(self.vc.series, pred, strict=True)
+            )
+        )
+
+
+def _start_grid(prob: _Problem, model: str, light: bool):
+    """Best (Re α, Im α) on a coarse grid: the curve oscillates, a local fit alone may stall."""
+    if not light:
+        return np.zeros(2)
+    res = np.geomspace(1.0, 1e4, 49)
+    best, arg = math.inf, None
+    for r in res:
+        for f in (0.0, 0.05):
+            val = prob.nll((r, f * r), model)
+            if val < best:
+                best, arg = val, np.array([r, f * r])
+    return arg
+
+
+def _local_fit(prob: _Problem, x0, model: str, values=None):
+    scale = np.array([max(abs(x0[0]), 1.0), max(abs(x0[0]), 1.0)])
+
+    def f(y):
+        return prob.nll(y * scale, model, values)
+
+    res = optimize.minimize(
+        f,
+        np.asarray(x0) / scale,
+        method="L-BFGS-B",
+        bounds=[(0.0, None), (0.0, None)],
+        options={"ftol": 1e-12, "gtol": 1e-8, "maxiter": 500},
+    )
+    return res.x * scale, float(res.fun)
+
+
+def _nll_at(prob: _Problem, key: str, value: float):
+    """The quantum −ln L as a function of θ with one stated input set to ``value``."""
+    return lambda y: prob.nll(y, "quantum", {key: value})
+
+
+def _gradient(fun, x, steps):
+    g = np.zeros(x.size)
+    for i in range(x.size):
+        e = np.zeros(x.size)
+        e[i] = steps[i]
+        g[i] = (fun(x + e) - fun(x - e)) / (2 * steps[i])
+    return g
+
+
+def _hessian(fun, x, steps):
+    n = x.size
+    h = np.zeros((n, n))
+    f0 = fun(x)
+    for i in range(n):
+        ei = np.zeros(n)
+        ei[i] = steps[i]
+        h[i, i] = (fun(x + ei) - 2 * f0 + fun(x - ei)) / steps[i] ** 2
+        for j in range(i + 1, n):
+            ej = np.zeros(n)
+            ej[j] = steps[j]
+            h[i, j] = h[j, i] = (
+                fun(x + ei + ej) - fun(x + ei - ej) - fun(x - ei + ej) + fun(x - ei - ej)
+            ) / (4 * steps[i] * steps[j])
+    return h
+
+
+def _nuisances(spec: GratingSpec, vc: VisibilityCompound) -> dict[str, float]:
+    """Stated inputs with their 1σ errors that enter this compound's fit."""
+    out = {k: m.error for k, m in spec.stated().items() if k in _BUDGET_TAGS and m.error > 0}
+    for k, s in enumerate(vc.series):
+        if s.velocity.error > 0:
+            out[f"velocity[{k}]"] = s.velocity.error
+    return out
+
+
+def _shared_variables(spec: GratingSpec) -> dict[str, object]:
+    """One tagged zero-mean variable per shared stated input (the same for every compound)."""
+    return {
+        k: ufloat(0.0, m.error, tag=_BUDGET_TAGS[k])
+        for k, m in spec.stated().items()
+        if k in _BUDGET_TAGS and m.error > 0
+    }
+
+
+def fit_compound(
+    vc: VisibilityCompound, spec: GratingSpec, nodes: int = 48, shared: dict | None = None
+) -> OpticalCompoundResult:
+    """Fit one compound (quantum and classical); raises :class:`CompoundError` on failure."""
+    if vc.problem is not None:
+        raise CompoundError(vc.problem)
+    npts = sum(s.powers.size for s in vc.series)
+    prob = _Problem(vc, spec, nodes)
+    light = spec.light
+    mass_u = vc.mass.value / AMU
+    wavelength = spec.laser_wavelength.value if light else None
+    nfree = 2 if light else 0
+    if npts < nfree + 1:
+        raise CompoundError(
+            f"compound {vc.name!r}: expected at least {nfree + 1} visibilities, found {npts}"
+        )
+    fits = {}
+    for model in ("quantum", "classical"):
+        x0 = _start_grid(prob, model, light)
+        x, _ = _local_fit(prob, x0, model) if light else (x0, 0.0)
+        fits[model] = x
+    xq, xc = fits["quantum"], fits["classical"]
+    chi_q = prob.deviance(xq, "quantum")
+    chi_c = prob.deviance(xc, "classical")
+    diff = chi_c - chi_q
+    preferred = (
+        "quantum"
+        if diff > LIKELIHOOD_THRESHOLD
+        else "classical"
+        if diff < -LIKELIHOOD_THRESHOLD
+        else "undecided"
+    )
+    alpha = sigma = None
+    if light:
+        steps = np.maximum(1e-3 * np.abs(xq), 1e-3 * max(xq[0], 1.0))
+        h = _hessian(lambda y: prob.nll(y, "quantum"), xq, steps)
+        try:
+            cov = np.linalg.inv(h)
+        except np.linalg.LinAlgError:
+            raise FitError(
+                f"compound {vc.name!r}: the visibility fit has a singular Hessian"
+            ) from None
+        if not np.all(np.isfinite(cov)) or np.any(np.diag(cov) <= 0):
+            raise FitError(f"compound {vc.name!r}: the visibility fit gave no usable errors")
+        stat = correlated_values(
+            list(xq), cov, tags=[f"fit statistics|{vc.name}|re", f"fit statistics|{vc.name}|im"]
+        )
+        shared = shared if shared is not None else _shared_variables(spec)
+        alpha_u, im_u = stat[0], stat[1]
+        nominal = {k: m.value for k, m in spec.stated().items()}
+        for key, err in _nuisances(spec, vc).items():
+            if key.startswith("velocity["):
+                k = int(key[9:-1])
+                base = vc.series[k].velocity.value
+                var = ufloat(0.0, err, tag=f"velocity: {vc.series[k].label}")
+            else:
+                base = nominal[key]
+                var = shared.get(key) or ufloat(0.0, err, tag=_BUDGET_TAGS[key])
+            if key in _SCALE_KEYS:  # the model depends on α·P·s/w_y only: exact derivative
+                jac = _SCALE_KEYS[key] * xq / base
+            else:  # implicit derivative of the optimum: dθ/dη = −H⁻¹ ∂(∇_θ nll)/∂η
+                dg = (
+                    _gradient(_nll_at(prob, key, base + err), xq, steps)
+                    - _gradient(_nll_at(prob, key, base - err), xq, steps)
+                ) / (2 * err)
+                jac = -cov @ dg
+            alpha_u = alpha_u + jac[0] * var
+            im_u = im_u + jac[1] * var
+        alpha = alpha_u
+        sigma = im_u * float(absorption_cross_section(ANGSTROM3_SI, wavelength))
+    curves = []
+    pq, pc = prob.predict(xq, "quantum"), prob.predict(xc, "classical")
+    for k, s in enumerate(vc.series):
+        grid = np.linspace(0.0, 1.05 * float(np.max(s.powers)), 160)
+        sub = _Problem(VisibilityCompound(vc.name, vc.mass, (_with_powers(s, grid),)), spec, nodes)
+        curves.append(
+            VisibilityCurve(
+                s.label,
+                s.temperature_K,
+                s.velocity.value,
+                s.powers,
+                s.visibilities,
+                s.errors,
+                pq[k],
+                pc[k],
+                grid,
+                sub.predict(xq, "quantum")[0],
+                sub.predict(xc, "classical")[0],
+            )
+        )
+    warnings = []
+    if light and xq[0] <= 1.0 + 1e-9:
+        warnings.append(f"compound {vc.name!r}: Re α at the lower edge of the search (1 Å³)")
+    return OpticalCompoundResult(
+        compound=vc.name,
+        status="ok",
+        message="",
+        mass_u=mass_u,
+        wavelength_m=wavelength,
+        alpha_opt=alpha,
+        sigma_abs=sigma,
+        chi2_quantum=chi_q,
+        chi2_classical=chi_c,
+        ndof=npts - nfree,
+        preferred_model=preferred,
+        classical_alpha_A3=float(xc[0]) if light else None,
+        classical_sigma_m2=(
+            float(xc[1] * absorption_cross_section(ANGSTROM3_SI, wavelength)) if light else None
+        ),
+        curves=tuple(curves),
+        warnings=tuple(warnings),
+    )
+
+
+def _with_powers(s, powers):
+    n = powers.size
+    return replace(s, powers=powers, visibilities=np.zeros(n), errors=np.ones(n))
+
+
+def analyze_visibilities(c) -> OpticalResult:
+    """Fit every compound of a campaign's ``[data] visibilities`` (``c.visibility``)."""
+    data: VisibilityData = c.visibility
+    spec = data.gratings
+    nodes = getattr(getattr(c, "settings", None), "velocity_nodes", 48)
+    shared = _shared_variables(spec)
+    out = []
+    for vc in data.compounds:
+        try:
+            out.append(fit_compound(vc, spec, nodes, shared))
+        except CompoundError as exc:
+            mass_u = vc.mass.value / AMU if vc.mass is not None else None
+            out.append(OpticalCompoundResult(vc.name, "failed", str(exc), mass_u))
+    gratings = {
+        "first": spec.kinds[0],
+        "second": spec.kinds[1],
+        "third": spec.kinds[2],
+        "absorbed_molecules": spec.absorbed,
+        "stated_inputs": {
+            k: {"value": m.value, "error": m.error} for k, m in spec.stated().items()
+        },
+    }
+    return OpticalResult(gratings, tuple(out), LIKELIHOOD_THRESHOLD)
