@@ -5,10 +5,14 @@ in Å³; σ_abs = k Im α/ε₀) are fitted to every series (temperature, veloci
 ``visibilities.csv`` by maximising the **Rician** likelihood of the measured visibilities
 (a visibility is the modulus of a fitted fringe amplitude: never negative, biased upward near
 zero, docs/visibility.md §8). The visibility curve oscillates with power, so a grid of starting
-points precedes the local fit. The statistical covariance is the inverse Hessian of −ln L; the
-stated inputs (power scale, vertical waist, open fraction, each series' velocity calibration)
-are propagated by refitting at ±1σ of each and enter as tagged :mod:`uncertainties` variables,
-shared by all compounds where the input is shared, so ``variance_budget`` splits the variance.
+points precedes the local fit. The open fraction scales every visibility and no α can absorb
+it, so it is fitted too, with its stated value ± error as a Gaussian prior; the covariance
+Σ = H⁻¹ of −ln L splits into the data's part Σ H_data Σ ("fit statistics") and the prior's
+(the response Σ·P to the stated open fraction). Power scale and vertical waist enter only as
+α·P·s/w_y and scale α and σ exactly; each series' velocity calibration and the grating spacing
+are propagated by the implicit derivative of the optimum. All enter as tagged
+:mod:`uncertainties` variables, shared by all compounds where the input is shared, so
+``variance_budget`` splits the variance.
 
 The same fit with the classical (straight-ray) model gives a second deviance; their difference
 is 2 ln(likelihood ratio) and names the preferred model (``quantum``, ``classical`` or
@@ -18,7 +22,7 @@ is 2 ln(likelihood ratio) and names the preferred model (``quantum``, ``classica
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy import optimize, special
@@ -96,11 +100,29 @@ class _Problem:
     vc: VisibilityCompound
     spec: GratingSpec
     nodes: int
+    _built: dict = field(default_factory=dict)  # interferometers by input values (a cache)
+
+    @property
+    def profiled(self) -> bool:
+        """Whether the open fraction is a fit parameter with its stated error as a prior."""
+        f = self.spec.open_fraction
+        return self.spec.light and f is not None and f.error > 0
+
+    def prior(self, x) -> float:
+        if len(x) < 3:
+            return 0.0
+        f = self.spec.open_fraction
+        return 0.5 * ((x[2] - f.value) / f.error) ** 2
 
     def predict(self, x, model: str, values: dict[str, float] | None = None):
-        """Model visibilities per series for x = (Re α, Im α) in Å³."""
-        values = values or {}
-        tl = self.spec.build(values)
+        """Model visibilities per series for x = (Re α, Im α[, open fraction]), α in Å³."""
+        values = dict(values or {})
+        if len(x) >= 3:
+            values["gratings.open_fraction"] = float(x[2])
+        key = tuple(sorted(values.items()))
+        tl = self._built.get(key)
+        if tl is None:
+            tl = self._built[key] = self.spec.build(values)
         mass = values.get("mass", self.vc.mass.value)
         re_si = x[0] * ANGSTROM3_SI
         sigma = 0.0
@@ -116,13 +138,13 @@ class _Problem:
         return out
 
     def nll(self, x, model: str, values=None) -> float:
+        """−ln L of the data plus the Gaussian prior of a profiled open fraction."""
         pred = self.predict(x, model, values)
-        return float(
-            sum(
-                np.sum(rician_nll(s.visibilities, p, s.errors))
-                for s, p in zip(self.vc.series, pred, strict=True)
-            )
+        data = sum(
+            np.sum(rician_nll(s.visibilities, p, s.errors))
+            for s, p in zip(self.vc.series, pred, strict=True)
         )
+        return float(data + self.prior(x))
 
     def deviance(self, x, model: str, values=None) -> float:
         pred = self.predict(x, model, values)
@@ -138,18 +160,20 @@ def _start_grid(prob: _Problem, model: str, light: bool):
     """Best (Re α, Im α) on a coarse grid: the curve oscillates, a local fit alone may stall."""
     if not light:
         return np.zeros(2)
-    res = np.geomspace(1.0, 1e4, 49)
+    tail = [prob.spec.open_fraction.value] if prob.profiled else []
+    res = np.geomspace(1.0, 1e4, 37)
     best, arg = math.inf, None
     for r in res:
         for f in (0.0, 0.05):
-            val = prob.nll((r, f * r), model)
+            val = prob.nll((r, f * r, *tail), model)
             if val < best:
-                best, arg = val, np.array([r, f * r])
+                best, arg = val, np.array([r, f * r, *tail])
     return arg
 
 
 def _local_fit(prob: _Problem, x0, model: str, values=None):
-    scale = np.array([max(abs(x0[0]), 1.0), max(abs(x0[0]), 1.0)])
+    scale = np.array([max(abs(x0[0]), 1.0), max(abs(x0[0]), 1.0), 1.0][: len(x0)])
+    bounds = [(0.0, None), (0.0, None), (0.02, 0.98)][: len(x0)]
 
     def f(y):
         return prob.nll(y * scale, model, values)
@@ -158,8 +182,8 @@ def _local_fit(prob: _Problem, x0, model: str, values=None):
         f,
         np.asarray(x0) / scale,
         method="L-BFGS-B",
-        bounds=[(0.0, None), (0.0, None)],
-        options={"ftol": 1e-12, "gtol": 1e-8, "maxiter": 500},
+        bounds=bounds,
+        options={"ftol": 1e-11, "gtol": 1e-7, "maxiter": 500},
     )
     return res.x * scale, float(res.fun)
 
@@ -198,6 +222,7 @@ def _hessian(fun, x, steps):
 def _nuisances(spec: GratingSpec, vc: VisibilityCompound) -> dict[str, float]:
     """Stated inputs with their 1σ errors that enter this compound's fit."""
     out = {k: m.error for k, m in spec.stated().items() if k in _BUDGET_TAGS and m.error > 0}
+    out.pop("gratings.open_fraction", None)  # profiled with its prior (fit_compound)
     for k, s in enumerate(vc.series):
         if s.velocity.error > 0:
             out[f"velocity[{k}]"] = s.velocity.error
@@ -237,7 +262,8 @@ def fit_compound(
     xq, xc = fits["quantum"], fits["classical"]
     chi_q = prob.deviance(xq, "quantum")
     chi_c = prob.deviance(xc, "classical")
-    diff = chi_c - chi_q
+    # 2 ln(likelihood ratio), the open fraction's prior included when it is profiled
+    diff = chi_c + 2 * prob.prior(xc) - chi_q - 2 * prob.prior(xq)
     preferred = (
         "quantum"
         if diff > LIKELIHOOD_THRESHOLD
@@ -248,6 +274,8 @@ def fit_compound(
     alpha = sigma = None
     if light:
         steps = np.maximum(1e-3 * np.abs(xq), 1e-3 * max(xq[0], 1.0))
+        if xq.size == 3:
+            steps[2] = 1e-4
         h = _hessian(lambda y: prob.nll(y, "quantum"), xq, steps)
         try:
             cov = np.linalg.inv(h)
@@ -257,11 +285,27 @@ def fit_compound(
             ) from None
         if not np.all(np.isfinite(cov)) or np.any(np.diag(cov) <= 0):
             raise FitError(f"compound {vc.name!r}: the visibility fit gave no usable errors")
-        stat = correlated_values(
-            list(xq), cov, tags=[f"fit statistics|{vc.name}|re", f"fit statistics|{vc.name}|im"]
-        )
         shared = shared if shared is not None else _shared_variables(spec)
+        # the data's share of the covariance, Σ H_data Σ, and the response to the prior's centre
+        prior_h = np.zeros_like(h)
+        if xq.size == 3:
+            prior_h[2, 2] = 1.0 / spec.open_fraction.error**2
+        cov_data = cov @ (h - prior_h) @ cov
+        # symmetric and positive semi-definite (a noisy Hessian may leave tiny negative modes)
+        eig, vec = np.linalg.eigh(0.5 * (cov_data + cov_data.T))
+        cov_data = (vec * np.clip(eig, 0.0, None)) @ vec.T
+        stat = correlated_values(
+            list(xq[:2]),
+            cov_data[:2, :2],
+            tags=[f"fit statistics|{vc.name}|re", f"fit statistics|{vc.name}|im"],
+        )
         alpha_u, im_u = stat[0], stat[1]
+        if xq.size == 3:
+            key = "gratings.open_fraction"
+            var = shared.get(key) or ufloat(0.0, spec.open_fraction.error, tag=_BUDGET_TAGS[key])
+            jac = cov[:, 2] * prior_h[2, 2]
+            alpha_u = alpha_u + jac[0] * var
+            im_u = im_u + jac[1] * var
         nominal = {k: m.value for k, m in spec.stated().items()}
         for key, err in _nuisances(spec, vc).items():
             if key.startswith("velocity["):
@@ -272,7 +316,7 @@ def fit_compound(
                 base = nominal[key]
                 var = shared.get(key) or ufloat(0.0, err, tag=_BUDGET_TAGS[key])
             if key in _SCALE_KEYS:  # the model depends on α·P·s/w_y only: exact derivative
-                jac = _SCALE_KEYS[key] * xq / base
+                jac = _SCALE_KEYS[key] * np.array([xq[0], xq[1]]) / base
             else:  # implicit derivative of the optimum: dθ/dη = −H⁻¹ ∂(∇_θ nll)/∂η
                 dg = (
                     _gradient(_nll_at(prob, key, base + err), xq, steps)
