@@ -32,7 +32,9 @@ from polarbeam.beam.talbot import (
     LightGrating,
     MaterialGrating,
     TalbotLauInterferometer,
+    absorption_cross_section,
 )
+from polarbeam.constants import AMU, ANGSTROM3_SI
 from polarbeam.contract.paths import resolve_data_file
 from polarbeam.errors import CompoundError, InputError, RowValueError
 from polarbeam.quantities import Measured, parse_quantity
@@ -40,11 +42,15 @@ from polarbeam.quantities import Measured, parse_quantity
 __all__ = [
     "GRATING_KEYS",
     "VISIBILITY_COLUMNS",
+    "VISIBILITY_PLAN_KEYS",
     "GratingSpec",
     "VisibilityCompound",
     "VisibilityData",
+    "VisibilityPlanCompound",
+    "VisibilityPlanInputs",
     "VisibilitySeries",
     "load_visibilities",
+    "load_visibility_plan",
     "parse_gratings",
 ]
 
@@ -351,3 +357,81 @@ def load_visibilities(
                 )
         compounds.append(VisibilityCompound(name, entry.get("mass"), tuple(series), problem))
     return VisibilityData(path, gratings, tuple(compounds))
+
+
+@dataclass(frozen=True)
+class VisibilityPlanCompound:
+    """A planned compound: mass and the guessed optical polarizability (Re α, Im α in Å³)."""
+
+    name: str
+    mass: float | None
+    alpha_re_A3: float | None
+    alpha_im_A3: float
+    problem: str | None = None
+
+
+@dataclass(frozen=True)
+class VisibilityPlanInputs:
+    """``[gratings]`` of a planning campaign, the ladder keys of ``[plan]`` and the guesses."""
+
+    gratings: GratingSpec
+    power_max: float
+    n_powers: int
+    noise: float
+    compounds: tuple[VisibilityPlanCompound, ...]
+
+
+#: ``[plan]`` keys of a light-grating power ladder (read here; listed in contract.plan).
+VISIBILITY_PLAN_KEYS = {"laser_power_max": "W", "n_powers": None, "visibility_noise": None}
+
+
+def load_visibility_plan(
+    doc: dict, plan_table: dict, fname: str, layout: str, stated: dict, compounds_path: Path
+) -> VisibilityPlanInputs:
+    """The power-ladder inputs of a planning campaign with ``[gratings]`` (second = 'light').
+
+    Compounds take their guesses from the columns ``alpha_opt_A3`` (required for a ladder) and
+    ``sigma_abs_m2`` (optional, 0) of the planning compounds file.
+    """
+    spec = parse_gratings(doc, fname, layout, stated)
+    where = f"{fname} [plan]"
+    if not spec.light:
+        raise InputError(
+            f"{fname} [gratings] second: a power ladder needs 'light', found 'material'"
+        )
+    if "laser_power_max" not in plan_table:
+        raise InputError(f'{where} laser_power_max: required with [gratings] (e.g. "10 W")')
+    pmax = parse_quantity(plan_table["laser_power_max"], "W", where=f"{where} laser_power_max")
+    if not pmax.value > 0:
+        raise InputError(
+            f"{where} laser_power_max: expected > 0, found {plan_table['laser_power_max']!r}"
+        )
+    n = plan_table.get("n_powers", 10)
+    if isinstance(n, bool) or not isinstance(n, int) or not 2 <= n <= 200:
+        raise InputError(f"{where} n_powers: expected an integer 2..200, found {n!r}")
+    noise = plan_table.get("visibility_noise", 0.01)
+    if isinstance(noise, bool) or not isinstance(noise, int | float) or not 0 < noise < 1:
+        raise InputError(f"{where} visibility_noise: expected a number in (0, 1), found {noise!r}")
+    table = read_table(compounds_path, ("compound",), "compounds")
+    out = []
+    for i, row in enumerate(table.rows):
+        name = (row.get("compound") or "").strip(CELL_BLANKS)
+        try:
+            if "__bad__" in row:
+                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
+            mass = table.number(i, "mass_u", positive=True) * AMU
+            alpha = None
+            if (row.get("alpha_opt_A3") or "").strip():
+                alpha = table.number(i, "alpha_opt_A3", positive=True)
+            sigma = table.number(i, "sigma_abs_m2", nonnegative=True, default=0.0)
+            im = sigma / float(absorption_cross_section(ANGSTROM3_SI, spec.laser_wavelength.value))
+            problem = None
+            if alpha is None:
+                problem = (
+                    f"{table.name} line {table.lines[i]}: column 'alpha_opt_A3' expected the "
+                    "guessed optical polarizability for the power ladder, found ''"
+                )
+            out.append(VisibilityPlanCompound(name, mass, alpha, im, problem))
+        except CompoundError as exc:
+            out.append(VisibilityPlanCompound(name, None, None, 0.0, str(exc)))
+    return VisibilityPlanInputs(spec, pmax.value, int(n), float(noise), tuple(out))

@@ -103,23 +103,32 @@ class _Problem:
     _built: dict = field(default_factory=dict)  # interferometers by input values (a cache)
 
     @property
-    def profiled(self) -> bool:
-        """Whether the open fraction is a fit parameter with its stated error as a prior."""
+    def profiled(self) -> tuple[tuple[str, float, float], ...]:
+        """(key, stated value, error) of the inputs fitted with their stated error as a prior:
+        the open fraction and each series' velocity (light grating, error > 0)."""
+        if not self.spec.light:
+            return ()
+        out = []
         f = self.spec.open_fraction
-        return self.spec.light and f is not None and f.error > 0
+        if f is not None and f.error > 0:
+            out.append(("gratings.open_fraction", f.value, f.error))
+        for k, s in enumerate(self.vc.series):
+            if s.velocity.error > 0:
+                out.append((f"velocity[{k}]", s.velocity.value, s.velocity.error))
+        return tuple(out)
 
     def prior(self, x) -> float:
-        if len(x) < 3:
-            return 0.0
-        f = self.spec.open_fraction
-        return 0.5 * ((x[2] - f.value) / f.error) ** 2
+        """−ln of the Gaussian priors of the profiled inputs (x[2:])."""
+        return sum(
+            0.5 * ((xi - c) / e) ** 2 for xi, (_, c, e) in zip(x[2:], self.profiled, strict=False)
+        )
 
     def predict(self, x, model: str, values: dict[str, float] | None = None):
-        """Model visibilities per series for x = (Re α, Im α[, open fraction]), α in Å³."""
+        """Model visibilities per series for x = (Re α, Im α, *profiled inputs), α in Å³."""
         values = dict(values or {})
-        if len(x) >= 3:
-            values["gratings.open_fraction"] = float(x[2])
-        key = tuple(sorted(values.items()))
+        for xi, (key, _, _) in zip(x[2:], self.profiled, strict=False):
+            values[key] = float(xi)
+        key = tuple(sorted((k, v) for k, v in values.items() if k.startswith("gratings")))
         tl = self._built.get(key)
         if tl is None:
             tl = self._built[key] = self.spec.build(values)
@@ -146,6 +155,31 @@ class _Problem:
         )
         return float(data + self.prior(x))
 
+    def nll_grid(self, re, im, model: str) -> np.ndarray:
+        """−ln L (prior at its centre) for arrays of Re α and Im α at once (the start grid)."""
+        tl = self.spec.build({})
+        re, im = np.asarray(re, float), np.asarray(im, float)
+        sigma = absorption_cross_section(im * ANGSTROM3_SI, tl.second.wavelength)
+        total = np.zeros(re.shape)
+        for s in self.vc.series:
+            dist = GaussianVelocity(s.velocity.value, s.spread)
+            v, w = tl.velocity_nodes(
+                self.vc.mass.value, dist, s.powers, float(np.max(re)) * ANGSTROM3_SI, self.nodes
+            )
+            c1, c0 = tl.harmonics(
+                self.vc.mass.value,
+                v[None, :, None],
+                s.powers[None, None, :],
+                (re * ANGSTROM3_SI)[:, None, None],
+                sigma[:, None, None],
+                model,
+            )
+            shape = (re.size, v.size, s.powers.size)
+            c1, c0 = np.broadcast_to(c1, shape), np.broadcast_to(c0, shape)
+            vis = 2.0 * np.abs(np.einsum("v,avp->ap", w, c1)) / np.einsum("v,avp->ap", w, c0)
+            total += np.sum(rician_nll(s.visibilities, vis, s.errors), axis=1)
+        return total
+
     def deviance(self, x, model: str, values=None) -> float:
         pred = self.predict(x, model, values)
         return float(
@@ -160,20 +194,31 @@ def _start_grid(prob: _Problem, model: str, light: bool):
     """Best (Re α, Im α) on a coarse grid: the curve oscillates, a local fit alone may stall."""
     if not light:
         return np.zeros(2)
-    tail = [prob.spec.open_fraction.value] if prob.profiled else []
-    res = np.geomspace(1.0, 1e4, 37)
-    best, arg = math.inf, None
-    for r in res:
-        for f in (0.0, 0.05):
-            val = prob.nll((r, f * r, *tail), model)
-            if val < best:
-                best, arg = val, np.array([r, f * r, *tail])
-    return arg
+    tail = [c for _, c, _ in prob.profiled]
+    # Re α from a phase of 0.05 rad to 60 rad at the highest power and the slowest series
+    tl = prob.spec.build({})
+    slow = min(s.velocity.value for s in prob.vc.series)
+    pmax = max(float(np.max(s.powers)) for s in prob.vc.series)
+    per_a3 = float(tl.second.strengths(ANGSTROM3_SI, 0.0, max(pmax, 1e-9), slow)[0])
+    res = np.repeat(np.geomspace(0.05 / per_a3, 60.0 / per_a3, 61), 3)
+    ims = res * np.tile([0.0, 0.03, 0.1], 61)
+    k = int(np.argmin(prob.nll_grid(res, ims, model)))
+    return np.array([res[k], ims[k], *tail])
 
 
 def _local_fit(prob: _Problem, x0, model: str, values=None):
-    scale = np.array([max(abs(x0[0]), 1.0), max(abs(x0[0]), 1.0), 1.0][: len(x0)])
-    bounds = [(0.0, None), (0.0, None), (0.02, 0.98)][: len(x0)]
+    a = max(abs(x0[0]), 1.0)
+    scale = np.array([a, a, *(c for _, c, _ in prob.profiled)][: len(x0)])
+    # Im α may come out negative (within its error) when absorption is weak: bounding it at 0
+    # would bias the estimate and leave no usable curvature at the bound
+    bounds = [
+        (0.0, None),
+        (-0.3, None),
+        *(
+            (0.02 / c, 0.98 / c) if k.startswith("gratings") else (0.5, 1.5)
+            for k, c, _ in prob.profiled
+        ),
+    ][: len(x0)]
 
     def f(y):
         return prob.nll(y * scale, model, values)
@@ -223,9 +268,6 @@ def _nuisances(spec: GratingSpec, vc: VisibilityCompound) -> dict[str, float]:
     """Stated inputs with their 1σ errors that enter this compound's fit."""
     out = {k: m.error for k, m in spec.stated().items() if k in _BUDGET_TAGS and m.error > 0}
     out.pop("gratings.open_fraction", None)  # profiled with its prior (fit_compound)
-    for k, s in enumerate(vc.series):
-        if s.velocity.error > 0:
-            out[f"velocity[{k}]"] = s.velocity.error
     return out
 
 
@@ -262,7 +304,7 @@ def fit_compound(
     xq, xc = fits["quantum"], fits["classical"]
     chi_q = prob.deviance(xq, "quantum")
     chi_c = prob.deviance(xc, "classical")
-    # 2 ln(likelihood ratio), the open fraction's prior included when it is profiled
+    # 2 ln(likelihood ratio), the priors of the profiled inputs included
     diff = chi_c + 2 * prob.prior(xc) - chi_q - 2 * prob.prior(xq)
     preferred = (
         "quantum"
@@ -274,8 +316,7 @@ def fit_compound(
     alpha = sigma = None
     if light:
         steps = np.maximum(1e-3 * np.abs(xq), 1e-3 * max(xq[0], 1.0))
-        if xq.size == 3:
-            steps[2] = 1e-4
+        steps[2:] = [1e-2 * e for _, _, e in prob.profiled]
         h = _hessian(lambda y: prob.nll(y, "quantum"), xq, steps)
         try:
             cov = np.linalg.inv(h)
@@ -287,9 +328,7 @@ def fit_compound(
             raise FitError(f"compound {vc.name!r}: the visibility fit gave no usable errors")
         shared = shared if shared is not None else _shared_variables(spec)
         # the data's share of the covariance, Σ H_data Σ, and the response to the prior's centre
-        prior_h = np.zeros_like(h)
-        if xq.size == 3:
-            prior_h[2, 2] = 1.0 / spec.open_fraction.error**2
+        prior_h = np.diag([0.0, 0.0, *(e**-2 for _, _, e in prob.profiled)])
         cov_data = cov @ (h - prior_h) @ cov
         # symmetric and positive semi-definite (a noisy Hessian may leave tiny negative modes)
         eig, vec = np.linalg.eigh(0.5 * (cov_data + cov_data.T))
@@ -300,21 +339,18 @@ def fit_compound(
             tags=[f"fit statistics|{vc.name}|re", f"fit statistics|{vc.name}|im"],
         )
         alpha_u, im_u = stat[0], stat[1]
-        if xq.size == 3:
-            key = "gratings.open_fraction"
-            var = shared.get(key) or ufloat(0.0, spec.open_fraction.error, tag=_BUDGET_TAGS[key])
-            jac = cov[:, 2] * prior_h[2, 2]
+        for i, (key, _, err) in enumerate(prob.profiled, start=2):
+            if key.startswith("velocity["):
+                var = ufloat(0.0, err, tag=f"velocity: {vc.series[int(key[9:-1])].label}")
+            else:
+                var = shared.get(key) or ufloat(0.0, err, tag=_BUDGET_TAGS[key])
+            jac = cov[:, i] * prior_h[i, i]  # the response of the optimum to the prior's centre
             alpha_u = alpha_u + jac[0] * var
             im_u = im_u + jac[1] * var
         nominal = {k: m.value for k, m in spec.stated().items()}
         for key, err in _nuisances(spec, vc).items():
-            if key.startswith("velocity["):
-                k = int(key[9:-1])
-                base = vc.series[k].velocity.value
-                var = ufloat(0.0, err, tag=f"velocity: {vc.series[k].label}")
-            else:
-                base = nominal[key]
-                var = shared.get(key) or ufloat(0.0, err, tag=_BUDGET_TAGS[key])
+            base = nominal[key]
+            var = shared.get(key) or ufloat(0.0, err, tag=_BUDGET_TAGS[key])
             if key in _SCALE_KEYS:  # the model depends on α·P·s/w_y only: exact derivative
                 jac = _SCALE_KEYS[key] * np.array([xq[0], xq[1]]) / base
             else:  # implicit derivative of the optimum: dθ/dη = −H⁻¹ ∂(∇_θ nll)/∂η
@@ -329,9 +365,13 @@ def fit_compound(
         sigma = im_u * float(absorption_cross_section(ANGSTROM3_SI, wavelength))
     curves = []
     pq, pc = prob.predict(xq, "quantum"), prob.predict(xc, "classical")
+    grids = [np.linspace(0.0, 1.05 * float(np.max(s.powers)), 160) for s in vc.series]
+    dense_vc = replace(
+        vc, series=tuple(_with_powers(s, g) for s, g in zip(vc.series, grids, strict=True))
+    )
+    dense = _Problem(dense_vc, spec, nodes)
+    dq, dc = dense.predict(xq, "quantum"), dense.predict(xc, "classical")
     for k, s in enumerate(vc.series):
-        grid = np.linspace(0.0, 1.05 * float(np.max(s.powers)), 160)
-        sub = _Problem(VisibilityCompound(vc.name, vc.mass, (_with_powers(s, grid),)), spec, nodes)
         curves.append(
             VisibilityCurve(
                 s.label,
@@ -342,14 +382,14 @@ def fit_compound(
                 s.errors,
                 pq[k],
                 pc[k],
-                grid,
-                sub.predict(xq, "quantum")[0],
-                sub.predict(xc, "classical")[0],
+                grids[k],
+                dq[k],
+                dc[k],
             )
         )
     warnings = []
-    if light and xq[0] <= 1.0 + 1e-9:
-        warnings.append(f"compound {vc.name!r}: Re α at the lower edge of the search (1 Å³)")
+    if light and xq[0] <= 1e-9:
+        warnings.append(f"compound {vc.name!r}: Re α at its bound 0 (no optical phase seen)")
     return OpticalCompoundResult(
         compound=vc.name,
         status="ok",
