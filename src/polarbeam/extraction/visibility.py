@@ -200,9 +200,16 @@ def _start_grid(prob: _Problem, model: str, light: bool):
     slow = min(s.velocity.value for s in prob.vc.series)
     pmax = max(float(np.max(s.powers)) for s in prob.vc.series)
     per_a3 = float(tl.second.strengths(ANGSTROM3_SI, 0.0, max(pmax, 1e-9), slow)[0])
-    res = np.repeat(np.geomspace(0.05 / per_a3, 60.0 / per_a3, 61), 3)
-    ims = res * np.tile([0.0, 0.03, 0.1], 61)
-    k = int(np.argmin(prob.nll_grid(res, ims, model)))
+    res = np.repeat(np.geomspace(0.05 / per_a3, 60.0 / per_a3, 60), 3)
+    ims = res * np.tile([0.0, 0.03, 0.1], 60)
+    # in chunks: the velocity grid resolves the oscillation of the chunk's largest α only
+    nll = np.concatenate(
+        [
+            prob.nll_grid(r, i, model)
+            for r, i in zip(np.split(res, 10), np.split(ims, 10), strict=True)
+        ]
+    )
+    k = int(np.argmin(nll))
     return np.array([res[k], ims[k], *tail])
 
 
@@ -231,6 +238,26 @@ def _local_fit(prob: _Problem, x0, model: str, values=None):
         options={"ftol": 1e-11, "gtol": 1e-7, "maxiter": 500},
     )
     return res.x * scale, float(res.fun)
+
+
+def _positive_definite(h) -> bool:
+    return bool(np.all(np.isfinite(h)) and np.all(np.linalg.eigvalsh(0.5 * (h + h.T)) > 0))
+
+
+def _polish(prob: _Problem, x0, model: str):
+    """Nelder–Mead from ``x0`` (in the scaled coordinates of :func:`_local_fit`)."""
+    scale = np.array([max(abs(x0[0]), 1.0), max(abs(x0[0]), 1.0), *x0[2:]])
+
+    def f(y):
+        return prob.nll(y * scale, model)
+
+    res = optimize.minimize(
+        f,
+        x0 / scale,
+        method="Nelder-Mead",
+        options={"xatol": 1e-8, "fatol": 1e-10, "maxiter": 4000},
+    )
+    return res.x * scale if res.fun <= f(x0 / scale) else np.asarray(x0)
 
 
 def _nll_at(prob: _Problem, key: str, value: float):
@@ -304,28 +331,21 @@ def fit_compound(
     xq, xc = fits["quantum"], fits["classical"]
     chi_q = prob.deviance(xq, "quantum")
     chi_c = prob.deviance(xc, "classical")
-    # 2 ln(likelihood ratio), the priors of the profiled inputs included
-    diff = chi_c + 2 * prob.prior(xc) - chi_q - 2 * prob.prior(xq)
-    preferred = (
-        "quantum"
-        if diff > LIKELIHOOD_THRESHOLD
-        else "classical"
-        if diff < -LIKELIHOOD_THRESHOLD
-        else "undecided"
-    )
     alpha = sigma = None
     if light:
         steps = np.maximum(1e-3 * np.abs(xq), 1e-3 * max(xq[0], 1.0))
         steps[2:] = [1e-2 * e for _, _, e in prob.profiled]
         h = _hessian(lambda y: prob.nll(y, "quantum"), xq, steps)
-        try:
-            cov = np.linalg.inv(h)
-        except np.linalg.LinAlgError:
+        if not _positive_definite(h):  # stopped short of the minimum: polish, then try again
+            xq = _polish(prob, xq, "quantum")
+            chi_q = prob.deviance(xq, "quantum")
+            h = _hessian(lambda y: prob.nll(y, "quantum"), xq, steps)
+        if not _positive_definite(h):
             raise FitError(
-                f"compound {vc.name!r}: the visibility fit has a singular Hessian"
-            ) from None
-        if not np.all(np.isfinite(cov)) or np.any(np.diag(cov) <= 0):
-            raise FitError(f"compound {vc.name!r}: the visibility fit gave no usable errors")
+                f"compound {vc.name!r}: the visibility fit found no minimum with usable errors "
+                "(the Hessian of −ln L is not positive definite)"
+            )
+        cov = np.linalg.inv(h)
         shared = shared if shared is not None else _shared_variables(spec)
         # the data's share of the covariance, Σ H_data Σ, and the response to the prior's centre
         prior_h = np.diag([0.0, 0.0, *(e**-2 for _, _, e in prob.profiled)])
@@ -363,6 +383,15 @@ def fit_compound(
             im_u = im_u + jac[1] * var
         alpha = alpha_u
         sigma = im_u * float(absorption_cross_section(ANGSTROM3_SI, wavelength))
+    # 2 ln(likelihood ratio), the priors of the profiled inputs included
+    diff = chi_c + 2 * prob.prior(xc) - chi_q - 2 * prob.prior(xq)
+    preferred = (
+        "quantum"
+        if diff > LIKELIHOOD_THRESHOLD
+        else "classical"
+        if diff < -LIKELIHOOD_THRESHOLD
+        else "undecided"
+    )
     curves = []
     pq, pc = prob.predict(xq, "quantum"), prob.predict(xc, "classical")
     grids = [np.linspace(0.0, 1.05 * float(np.max(s.powers)), 160) for s in vc.series]
