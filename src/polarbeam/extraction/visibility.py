@@ -59,6 +59,9 @@ _BUDGET_TAGS = {
 }
 
 
+#: −ln L returned where the model overflows (far outside the physical region).
+_FAR = 1e30
+
 # d ln(fitted α)/d ln(input) for the inputs that enter only through α·P·s/w_y
 _SCALE_KEYS = {"gratings.power_scale": -1.0, "gratings.laser_waist_vertical": 1.0}
 
@@ -147,13 +150,19 @@ class _Problem:
         return out
 
     def nll(self, x, model: str, values=None) -> float:
-        """−ln L of the data plus the Gaussian prior of a profiled open fraction."""
-        pred = self.predict(x, model, values)
-        data = sum(
-            np.sum(rician_nll(s.visibilities, p, s.errors))
-            for s, p in zip(self.vc.series, pred, strict=True)
-        )
-        return float(data + self.prior(x))
+        """−ln L of the data plus the Gaussian priors of the profiled inputs.
+
+        Far outside the physical region (a strongly negative Im α is a gain) the model overflows;
+        −ln L is then a large finite number so that the optimiser turns back.
+        """
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            pred = self.predict(x, model, values)
+            data = sum(
+                np.sum(rician_nll(s.visibilities, p, s.errors))
+                for s, p in zip(self.vc.series, pred, strict=True)
+            )
+        out = float(data + self.prior(x))
+        return out if math.isfinite(out) else _FAR
 
     def nll_grid(self, re, im, model: str) -> np.ndarray:
         """−ln L (prior at its centre) for arrays of Re α and Im α at once (the start grid)."""
@@ -161,6 +170,11 @@ class _Problem:
         re, im = np.asarray(re, float), np.asarray(im, float)
         sigma = absorption_cross_section(im * ANGSTROM3_SI, tl.second.wavelength)
         total = np.zeros(re.shape)
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            self._grid_terms(tl, re, sigma, model, total)
+        return np.where(np.isfinite(total), total, _FAR)
+
+    def _grid_terms(self, tl, re, sigma, model, total) -> None:
         for s in self.vc.series:
             dist = GaussianVelocity(s.velocity.value, s.spread)
             v, w = tl.velocity_nodes(
@@ -178,7 +192,6 @@ class _Problem:
             c1, c0 = np.broadcast_to(c1, shape), np.broadcast_to(c0, shape)
             vis = 2.0 * np.abs(np.einsum("v,avp->ap", w, c1)) / np.einsum("v,avp->ap", w, c0)
             total += np.sum(rician_nll(s.visibilities, vis, s.errors), axis=1)
-        return total
 
     def deviance(self, x, model: str, values=None) -> float:
         pred = self.predict(x, model, values)
