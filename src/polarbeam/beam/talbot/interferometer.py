@@ -36,8 +36,8 @@ __all__ = [
 
 Model = Literal["quantum", "classical"]
 
-#: Grid points per turn of the Bessel argument in the velocity average (module constant so that
-#: the convergence check in the tests can vary it).
+#: Grid points per turn of the Bessel argument in the velocity average (2 gives < 1e-6 against a
+#: 20001-point reference; 1 already < 2e-5; docs/visibility.md §8).
 _PPT = 2.0
 
 
