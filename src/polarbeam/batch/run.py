@@ -85,7 +85,12 @@ def _run_campaign(
     report_details: int | None,
 ) -> CampaignRun:
     c = load_campaign(path)
-    if c.model == "none" or c.recoil is not None or calibration_required(c):
+    if (
+        c.model == "none"
+        or c.recoil is not None
+        or c.visibility is not None
+        or calibration_required(c)
+    ):
         # campaign-level fits (reference calibration, photon recoil) tie the compounds
         # together: analyse the campaign in one piece
         return _run_whole_campaign(name, path, out, c, html=html, report_details=report_details)
@@ -375,6 +380,9 @@ def run_cli(
         for c in getattr(getattr(r, "recoil", None), "compounds", ()):  # photon recoil
             if c.status == "failed":
                 echo(f"failed (recoil): {c.compound}: {c.message}", err=True)
+        for c in getattr(getattr(r, "optical", None), "compounds", ()):  # fringe visibilities
+            if c.status == "failed":
+                echo(f"failed (visibility): {c.compound}: {c.message}", err=True)
     if not quiet:
         rate = outcome.n_compounds / outcome.seconds if outcome.seconds > 0 else 0.0
         echo(f"{outcome.n_compounds} compound(s) in {outcome.seconds:.1f} s ({rate:.1f}/s)")

@@ -57,6 +57,7 @@ from polarbeam.contract.schema import (
     SeriesData,
 )
 from polarbeam.contract.temperatures import row_rotational, series_rotational, thermometer_offset
+from polarbeam.contract.visibility import GRATING_KEYS, load_visibilities
 from polarbeam.errors import CompoundError, InputError, QuantityError
 from polarbeam.instrument.deflectors import (
     DEFLECTOR_MODELS,
@@ -108,6 +109,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "computed": None,
         "computed_outputs": None,
         "recoil": None,
+        "visibilities": None,
     },
     "analysis": {
         "velocity_nodes": None,
@@ -123,6 +125,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "mass": None,
     },
     "source": {"thermometer_offset": "K"},
+    "gratings": dict(GRATING_KEYS),  # polarbeam.contract.visibility
 }
 # the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
 _SCHEMA["deflector"].update(
@@ -168,6 +171,7 @@ class Campaign:
     reduction: Any = None  # fringes.ReducedPhases when the campaign starts from raw scans
     ignored_columns: tuple[str, ...] = ()  # shifts.csv columns the layout does not use
     recoil: Any = None  # polarbeam.extraction.recoil.RecoilData when [data] recoil is given
+    visibility: Any = None  # contract.visibility.VisibilityData ([data] visibilities)
     table_notes: tuple[str, ...] = ()  # comment lines skipped above the headers of the tables
     warnings: tuple[str, ...] = ()  # implausible inputs (likely unit slips), one line each
     thermometer_offset: Measured | None = None  # [source]: one error common to every series' T
@@ -690,7 +694,7 @@ def load_campaign(path: str | Path) -> Campaign:
     data = doc.get("data", {})
     # photon recoil (polarbeam.contract.recoil): [data] recoil makes shifts and [deflector]
     # optional
-    has_recoil = "recoil" in data or "laser" in doc
+    has_recoil = "recoil" in data or "laser" in doc or "visibilities" in data
     if has_recoil and not ({"shifts", "scans"} & set(data)) and "deflector" not in doc:
         model = "none"
     else:
@@ -747,8 +751,11 @@ def load_campaign(path: str | Path) -> Campaign:
     if model == "numerical":  # the solve's mesh-refinement error becomes a stated input
         stated = {**stated, **numerical_error_inputs(camp)}
     recoil = None
-    if has_recoil:  # [[laser]] tables and recoil.csv (polarbeam.extraction.recoil)
+    if "recoil" in data or "laser" in doc:  # [[laser]] tables and recoil.csv (extraction.recoil)
         recoil = load_recoil(doc, path, layout, stated, info, compounds_path.name)
+    vis = None  # [gratings] and visibilities.csv (polarbeam.contract.visibility)
+    if "visibilities" in data:
+        vis = load_visibilities(doc, path, layout, stated, info, compounds_path.name)
 
     compounds = []
     measured_names = list(dict.fromkeys(list(series) + list(problems)))
@@ -776,6 +783,7 @@ def load_campaign(path: str | Path) -> Campaign:
             )
         )
     in_recoil = set(recoil.compound_names) if recoil is not None else set()
+    in_recoil |= set(vis.compound_names) if vis is not None else set()
     unmeasured = tuple(
         n for n in info if n not in series and n not in problems and n not in in_recoil
     )
@@ -820,6 +828,7 @@ def load_campaign(path: str | Path) -> Campaign:
         reduction=reduction,
         ignored_columns=ignored,
         recoil=recoil,
+        visibility=vis,
         table_notes=tuple(table_notes),
         warnings=warnings,
         thermometer_offset=offset,

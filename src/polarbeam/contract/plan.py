@@ -3,13 +3,14 @@
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 from typing import Any, Literal
 
 from polarbeam._util.tables import CELL_BLANKS, read_table
 from polarbeam.constants import AMU
 from polarbeam.contract import campaign as cm
+from polarbeam.contract.visibility import VISIBILITY_PLAN_KEYS, load_visibility_plan
 from polarbeam.errors import CompoundError, InputError
 from polarbeam.quantities import Measured, parse_quantity
 
@@ -49,6 +50,7 @@ PLAN_KEYS: dict[str, str | None] = {
     "design_margin": None,
     "rehearsal": None,
     "seed": None,
+    **VISIBILITY_PLAN_KEYS,  # light-grating power ladders (contract.visibility)
 }
 
 
@@ -535,4 +537,7 @@ def load_plan(path: str | Path):
     plan = _parse_settings(plan_table, fname, layout)
     compounds_path = cm.data_path(base, doc, "compounds", fname)
     compounds = _read_plan_compounds(compounds_path)
+    if "gratings" in doc:  # a light-grating power ladder as well (contract.visibility)
+        vis = load_visibility_plan(doc, plan_table, fname, layout, stated, compounds_path)
+        camp = replace(camp, visibility=vis)
     return camp, plan, compounds

@@ -26,9 +26,11 @@ from polarbeam.comparison.checks import computed_comparison, cross_check
 from polarbeam.contract.campaign import Campaign, CompoundData, build_layout, load_campaign
 from polarbeam.extraction.context import Context, build_context
 from polarbeam.extraction.recoil import analyze_recoil
+from polarbeam.extraction.visibility import analyze_visibilities
 from polarbeam.pipeline.outputs import write_outputs
 from polarbeam.results.objects import CampaignResult, CompoundResult
 from polarbeam.results.recoil import with_recoil
+from polarbeam.results.visibility import with_optical
 from polarbeam.separation.compound import make_result, separate
 
 __all__ = [
@@ -65,6 +67,8 @@ def analyze_campaign(c: Campaign) -> CampaignResult:
         c.recoil is not None
     ):  # photon-recoil cross-sections ([data] recoil, polarbeam.extraction.recoil)
         result = with_recoil(result, analyze_recoil(c))
+    if c.visibility is not None:  # [data] visibilities (polarbeam.extraction.visibility)
+        result = with_optical(result, analyze_visibilities(c))
     return result
 
 

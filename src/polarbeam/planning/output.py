@@ -8,11 +8,13 @@ from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 
 from polarbeam._util.atomic import write_text_atomic
 from polarbeam._util.optional import has
 from polarbeam.planning.rehearsal import write_rehearsal
 from polarbeam.planning.results import CampaignPlan, CompoundPlan
+from polarbeam.planning.visibility import VISIBILITY_PLAN_COLUMNS
 
 __all__ = ["write_plan"]
 
@@ -70,6 +72,14 @@ def write_plan(cplan: CampaignPlan, out: str | Path, *, rehearsal: bool | None =
     do_rehearsal = cplan.settings.rehearsal if rehearsal is None else rehearsal
     if do_rehearsal and any(c.status != "failed" for c in cplan.compounds):
         write_rehearsal(cplan, out / "rehearsal")
+    if cplan.visibility:  # light-grating power ladders (planning.visibility)
+        rows = [r for lad in cplan.visibility for r in lad.rows()]
+        frame = pd.DataFrame(rows, columns=list(VISIBILITY_PLAN_COLUMNS))
+        write_text_atomic(
+            out / "visibility_plan.csv",
+            frame.to_csv(index=False, float_format="%.6g", lineterminator="\n"),
+        )
+        notes += [f"{lad.compound}: {lad.message}" for lad in cplan.visibility if lad.message]
     final = replace(cplan, notes=tuple(notes))
     write_text_atomic(out / "plan.md", final.to_markdown())
     write_text_atomic(

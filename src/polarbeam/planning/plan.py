@@ -67,6 +67,7 @@ from polarbeam.planning.precision import (
     ladder_precision,
 )
 from polarbeam.planning.results import CampaignPlan, CompoundPlan, SeriesPlan
+from polarbeam.planning.visibility import plan_visibility
 from polarbeam.quantities import Measured
 
 __all__ = ["make_plan", "plan_campaign"]
@@ -511,4 +512,7 @@ def plan_campaign(camp, plan: PlanSettings, compounds: Sequence[PlanCompound]) -
 def make_plan(path: str | Path) -> CampaignPlan:
     """Load a planning campaign and plan it (no files written)."""
     camp, plan, compounds = load_plan(path)
-    return plan_campaign(camp, plan, compounds)
+    cplan = plan_campaign(camp, plan, compounds)
+    if camp.visibility is not None:  # [gratings]: light-grating power ladders
+        cplan = replace(cplan, visibility=plan_visibility(camp.visibility, plan))
+    return cplan

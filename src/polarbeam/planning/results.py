@@ -131,6 +131,7 @@ class CampaignPlan:
     budget: dict[str, float]  # stated input → its relative share σ_p·∂lnC/∂p
     compounds: tuple[CompoundPlan, ...]
     notes: tuple[str, ...] = ()
+    visibility: tuple = ()  # planning.visibility.VisibilityLadder per compound ([gratings])
 
     @property
     def exit_code(self) -> int:
@@ -200,6 +201,7 @@ class CampaignPlan:
             "compounds": [c.summary() for c in self.compounds],
             "notes": list(self.notes),
             "cautions": [*CAUTIONS, PLAN_CAUTION],
+            "visibility_ladders": [v.summary() for v in self.visibility],
         }
 
     def to_markdown(self) -> str:

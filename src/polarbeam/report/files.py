@@ -24,6 +24,11 @@ from polarbeam.report.recoil import (
     write_recoil_results,
 )
 from polarbeam.report.text import guarded_frame, md_code, md_escape, terminal_safe
+from polarbeam.report.visibility import (
+    optical_markdown_lines,
+    optical_terminal_lines,
+    write_optical_results,
+)
 from polarbeam.results.objects import CampaignResult
 from polarbeam.uncertain import variance_budget
 
@@ -92,13 +97,22 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
     recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
     if recoil is not None:
         write_recoil_results(recoil, out)
+    optical = getattr(result, "optical", None)  # visibility fits (polarbeam.extraction.visibility)
+    if optical is not None:
+        write_optical_results(optical, out)
 
 
 def render_markdown(result: CampaignResult) -> str:
     """The human-readable report: summary table, per-compound fits and budgets, cautions."""
     recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
-    if recoil is not None and not result.compounds:
-        return render_recoil_only(result)
+    optical = getattr(result, "optical", None)  # visibility fits (polarbeam.extraction.visibility)
+    if (recoil is not None or optical is not None) and not result.compounds:
+        text = (
+            render_recoil_only(result) if recoil is not None else f"# {md_escape(result.title)}\n"
+        )
+        if optical is not None:
+            text += "\n" + "\n".join(optical_markdown_lines(optical)) + "\n"
+        return text
     obs = "phase (rad)" if result.layout in ("talbot-lau", "time-domain") else "shift (m)"
     lines = [
         f"# {md_escape(result.title)}",
@@ -185,6 +199,8 @@ def render_markdown(result: CampaignResult) -> str:
     lines += _parity_lines(result)
     if recoil is not None:
         lines += ["", *recoil_markdown_lines(recoil)]
+    if optical is not None:
+        lines += ["", *optical_markdown_lines(optical)]
     lines += [
         "",
         "## Notes on the method",
@@ -284,8 +300,11 @@ def render_terminal(result: CampaignResult) -> str:
     """A compact fixed-width table for the terminal."""
     recoil = getattr(result, "recoil", None)  # photon-recoil results (polarbeam.extraction.recoil)
     title = terminal_safe(result.title)
-    if recoil is not None and not result.compounds:
-        return "\n".join([title, *recoil_terminal_lines(recoil)])
+    optical = getattr(result, "optical", None)  # visibility fits (polarbeam.extraction.visibility)
+    extra = optical_terminal_lines(optical) if optical is not None else []
+    if (recoil is not None or optical is not None) and not result.compounds:
+        lines = recoil_terminal_lines(recoil) if recoil is not None else []
+        return "\n".join([title, *lines, *([""] if lines and extra else []), *extra])
     head = f"{'compound':<24} {'α (Å³)':>18} {'μ (D)':>16}  status"
     out = [title, head, "-" * len(head)]
     for c in result.compounds:
@@ -302,4 +321,6 @@ def render_terminal(result: CampaignResult) -> str:
         out.append(f"{name:<24} {a:>18} {d:>16}  {terminal_safe(c.status)}")
     if recoil is not None:
         out += ["", *recoil_terminal_lines(recoil)]
+    if extra:
+        out += ["", *extra]
     return "\n".join(out)
