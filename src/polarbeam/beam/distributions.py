@@ -15,7 +15,8 @@ Implementations (docs/velocity.md):
 * :class:`FluxVelocity` — the supersonic flux form v³·exp(−(v − u)²/a²) (``supersonic``), and its
   u = 0 limit (``effusive``, σ/v̄ ≈ 0.363), moment-matched to a mean and a spread.
 * :class:`TabulatedVelocity` — measured velocity classes (a table or a time-of-flight fit): each
-  row one class with its population weight and optional relative fringe contrast.
+  row one class (a histogram bin reaching halfway to its neighbours) with its population weight
+  and optional relative fringe contrast.
 """
 
 from __future__ import annotations
@@ -318,6 +319,16 @@ class TabulatedVelocity:
 
     def contrast(self, n: int = 48) -> np.ndarray | None:
         return None if self.contrasts is None else np.asarray(self.contrasts, dtype=float)
+
+    def spans(self, n: int = 48) -> np.ndarray:
+        """Width in 1/v² (s²/m²) of each class's bin: a row stands for the velocities halfway to
+        its neighbours (the end rows as far out as on their inner side, at most half their own
+        velocity below). The fringe phasor averages each class's phase over its bin."""
+        v = np.asarray(self.velocities, dtype=float) * self.scale
+        mid = 0.5 * (v[1:] + v[:-1])
+        lo = np.concatenate([[max(v[0] - (mid[0] - v[0]), 0.5 * v[0])], mid])
+        hi = np.concatenate([mid, [v[-1] + (v[-1] - mid[-1])]])
+        return 1.0 / lo**2 - 1.0 / hi**2
 
     @property
     def mean(self) -> float:

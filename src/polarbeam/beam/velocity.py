@@ -9,8 +9,9 @@ For a spatial layout the shift of one velocity class is Δx(v) = κ/v² with κ 
 * ``beam-profile``: the centroid is ⟨Δx⟩ = κ⟨v⁻²⟩ — linear in α_eff, but not κ/v̄².
 * ``talbot-lau``: each class adds its own fringe, so the detected fringe is the phasor average
   Z = ⟨exp(iκ'/v²)⟩ (κ' = 2πκ/d); its argument is the measured phase, its modulus the visibility
-  reduction.  The phase is tracked continuously from κ' = 0 (no 2π wrapping), as an experiment
-  stepping the voltage up follows it.
+  reduction. A table's class is a bin of width Δu in u = 1/v²: its phasor is averaged over it,
+  e^{iκ'u}·sinc(κ'Δu/2). The phase is tracked continuously from κ' = 0 (no 2π wrapping), as an
+  experiment stepping the voltage up follows it.
 """
 
 from __future__ import annotations
@@ -21,6 +22,7 @@ from polarbeam.beam.distributions import VelocityDistribution
 
 __all__ = [
     "averaged_phasor_phase",
+    "class_spans",
     "fringe_nodes",
     "mean_inverse_square",
 ]
@@ -51,14 +53,25 @@ _BATCH = 32
 _turn_tables: dict[tuple, tuple[np.ndarray, np.ndarray]] = {}
 
 
-def _phasor(kappa: np.ndarray, u: np.ndarray, w: np.ndarray) -> np.ndarray:
-    return (w[None, :] * np.exp(1j * np.outer(kappa, u))).sum(axis=1)
+def _phasor(kappa: np.ndarray, u: np.ndarray, w: np.ndarray, du=None) -> np.ndarray:
+    """Σ wᵢ e^{iκuᵢ}, each class averaged over a bin of width duᵢ in u = 1/v² when given."""
+    arg = np.outer(kappa, u)
+    terms = w[None, :] * np.exp(1j * arg)
+    if du is not None:
+        terms = terms * np.sinc(np.outer(kappa, du) / (2 * np.pi))
+    return terms.sum(axis=1)
 
 
-def _track(u, w, ks: list, zs: list, ps: list, kmax: float) -> bool:
+def class_spans(dist: VelocityDistribution, n: int = 48) -> np.ndarray | None:
+    """Bin widths in 1/v² of a distribution's classes (tables), None for point nodes."""
+    spans = getattr(dist, "spans", None)
+    return None if spans is None else np.asarray(spans(n), dtype=float)
+
+
+def _track(u, w, du, ks: list, zs: list, ps: list, kmax: float) -> bool:
     """Extend the tracked points (κ, Z, unwrapped phase) to kmax; False when it needs more than
     ``_MAX_TABLE`` points (|Z| too close to 0 somewhere)."""
-    rate = float(np.sum(np.abs(w) * u))
+    rate = float(np.sum(np.abs(w) * (u if du is None else u + du)))
     while ks[-1] < kmax:
         if len(ks) > _MAX_TABLE:
             return False
@@ -67,7 +80,7 @@ def _track(u, w, ks: list, zs: list, ps: list, kmax: float) -> bool:
         if not h > 0:
             return False
         k_new = ks[-1] + h * np.arange(1, _BATCH + 1)
-        z_new = _phasor(k_new, u, w)
+        z_new = _phasor(k_new, u, w, du)
         mods = np.abs(np.concatenate([[z0], z_new]))
         ok = h <= _STEP_RAD * mods[:-1] / rate * (1 + 1e-12)  # the step bound at every start
         n_ok = int(np.argmin(ok)) if not ok.all() else ok.size
@@ -81,7 +94,7 @@ def _track(u, w, ks: list, zs: list, ps: list, kmax: float) -> bool:
     return True
 
 
-def _turn_table(key: tuple, u, w, kmax: float):
+def _turn_table(key: tuple, u, w, du, kmax: float):
     """(tracked κ, unwrapped phase there) covering at least [0, kmax], or None."""
     hit = _turn_tables.get(key)
     if hit is not None and hit[0][-1] >= kmax:
@@ -91,7 +104,7 @@ def _turn_table(key: tuple, u, w, kmax: float):
     else:
         z = complex(np.sum(w))
         ks, zs, ps = [0.0], [z], [float(np.angle(z))]
-    if not _track(u, w, ks, zs, ps, kmax):
+    if not _track(u, w, du, ks, zs, ps, kmax):
         return None
     table = (np.asarray(ks), np.asarray(ps), ks, zs, ps)
     if len(_turn_tables) >= 64:  # bounded: a worker walks through compounds one by one
@@ -112,13 +125,14 @@ def averaged_phasor_phase(kappa, dist: VelocityDistribution, n: int = 48):
     u = 1.0 / v**2
     if v.size == 1 and dist.contrast(n) is None:
         return kappa * u[0], np.ones_like(kappa)
+    du = class_spans(dist, n)
     kabs = np.abs(kappa).ravel()
     kmax = float(kabs.max(initial=0.0))
-    table = _turn_table((*dist.key, int(n)), u, w, kmax)
+    table = _turn_table((*dist.key, int(n)), u, w, du, kmax)
     if table is None:
-        return _averaged_phasor_phase_path(kappa, u, w)
+        return _averaged_phasor_phase_path(kappa, u, w, du)
     ks, ref = table
-    z = _phasor(kabs, u, w)
+    z = _phasor(kabs, u, w, du)
     direct = np.angle(z)
     near = ref[np.clip(np.searchsorted(ks, kabs, side="right") - 1, 0, ref.size - 1)]
     turns = np.rint((near - direct) / (2 * np.pi))
@@ -126,7 +140,7 @@ def averaged_phasor_phase(kappa, dist: VelocityDistribution, n: int = 48):
     return phase, np.abs(z).reshape(kappa.shape)
 
 
-def _averaged_phasor_phase_path(kappa, u, w):
+def _averaged_phasor_phase_path(kappa, u, w, du=None):
     """Fallback for very large κ: unwrap along a path of at most 20 000 steps up to max |κ|."""
     kabs = np.abs(kappa).ravel()
     kmax = float(kabs.max(initial=0.0))
@@ -134,7 +148,7 @@ def _averaged_phasor_phase_path(kappa, u, w):
     grid = np.linspace(0.0, kmax, nstep + 1)
     allk = np.concatenate([grid, kabs])
     order = np.argsort(allk, kind="stable")
-    z = _phasor(allk[order], u, w)
+    z = _phasor(allk[order], u, w, du)
     ph = np.unwrap(np.angle(z))
     out_phase = np.empty_like(allk)
     out_mod = np.empty_like(allk)
