@@ -60,10 +60,9 @@ from polarbeam.contract.velocity import (
     BEAM_KEYS,
     INSTRUMENT_VELOCITY_KEYS,
     VelocitySettings,
-    attach_distributions,
-    load_velocity_tables,
     row_velocity_extras,
     series_velocity_extras,
+    velocity_models,
     velocity_settings,
 )
 from polarbeam.errors import CompoundError, InputError, QuantityError
@@ -744,13 +743,8 @@ def load_campaign(path: str | Path) -> Campaign:
             series, problems, ignored = _load_shifts(shifts_path, layout, table_notes, tabled)
         else:
             series, problems = {}, {}
-    if vset.tables is not None and shifts_path is not None:  # [data] velocities
-        tables, bad_tables = load_velocity_tables(data_path(base, doc, "velocities", fname))
-        if layout != "time-domain":  # the time-domain phase does not depend on velocity
-            args = (vset.shape, shifts_path.name, Path(vset.tables).name)
-            series = attach_distributions(series, problems, tables, bad_tables, *args)
-    elif shifts_path is not None and layout != "time-domain":
-        series = attach_distributions(series, problems, {}, {}, vset.shape, shifts_path.name, None)
+    if shifts_path is not None:  # tables, named shapes (polarbeam.contract.velocity)
+        series = velocity_models(series, problems, vset, layout, base, fname, shifts_path.name)
 
     camp = Campaign(
         path=path,
