@@ -78,6 +78,9 @@ class SeriesResult:
     extra: dict[str, Any] = field(default_factory=dict)
     visibility: np.ndarray | None = None  # relative to the zero-field references (raw scans)
     visibility_err: np.ndarray | None = None
+    #: (velocities m/s, density per m/s, relative contrast or None) of the velocity model, for
+    #: the report's distribution figure (not written to the tables)
+    velocity_curve: tuple | None = None
 
     def __repr__(self) -> str:
         return (
