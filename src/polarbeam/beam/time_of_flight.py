@@ -447,7 +447,7 @@ def tabulate(shape: FluxShape, n: int = 120) -> tuple[np.ndarray, np.ndarray]:
     cell's mean v⁻², so Σ wᵢ vᵢ⁻² is ⟨v⁻²⟩ exactly and the table reads the same as discrete
     classes or as density samples on an even grid (normalised weights sum to 1).
     """
-    lo, hi = shape.support()
+    lo, hi = shape.support(6.0)  # beyond: below e^{-36} of the peak
     edges = np.linspace(lo, hi, n + 1)
     surv = shape.survival(edges)
     w = surv[:-1] - surv[1:]
@@ -455,6 +455,7 @@ def tabulate(shape: FluxShape, n: int = 120) -> tuple[np.ndarray, np.ndarray]:
     inv2 = pm[:-1] - pm[1:]
     keep = w > 1e-14 * w.max()
     mid = 0.5 * (edges[:-1] + edges[1:])
-    v = np.where(keep, np.sqrt(np.where(keep, w, 1.0) / np.where(inv2 > 0, inv2, 1.0)), mid)
+    exact = (w > 1e-9 * w.max()) & (inv2 > 0)  # far-tail cells: the midpoint (no rounding)
+    v = np.where(exact, np.sqrt(np.where(exact, w, 1.0) / np.where(exact, inv2, 1.0)), mid)
     v, w = v[keep], w[keep]
     return v, w / w.sum()

@@ -56,6 +56,11 @@ from polarbeam.contract.schema import (
     SeriesData,
 )
 from polarbeam.contract.temperatures import row_rotational, series_rotational, thermometer_offset
+from polarbeam.contract.time_of_flight import (
+    TOF_BEAM_KEYS,
+    attach_time_of_flight,
+    time_of_flight_settings,
+)
 from polarbeam.errors import CompoundError, InputError, QuantityError
 from polarbeam.instrument.deflectors import (
     DEFLECTOR_MODELS,
@@ -107,6 +112,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "computed": None,
         "computed_outputs": None,
         "recoil": None,
+        "time_of_flight": None,
     },
     "analysis": {
         "velocity_nodes": None,
@@ -122,6 +128,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "mass": None,
     },
     "source": {"thermometer_offset": "K"},
+    "beam": dict(TOF_BEAM_KEYS),
 }
 # the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
 _SCHEMA["deflector"].update(
@@ -720,6 +727,10 @@ def load_campaign(path: str | Path) -> Campaign:
             series, problems, ignored = _load_shifts(shifts_path, layout, table_notes)
         else:
             series, problems = {}, {}
+    tof = time_of_flight_settings(doc, fname, layout)  # [data] time_of_flight: fitted traces
+    if tof is not None and shifts_path is not None:
+        tof_path = data_path(base, doc, "time_of_flight", fname)
+        series = attach_time_of_flight(tof, tof_path, series, problems, shifts_path.name)
 
     camp = Campaign(
         path=path,

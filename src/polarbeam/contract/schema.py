@@ -4,6 +4,7 @@ series and compound records every later stage works on (plain frozen dataclasses
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -109,6 +110,10 @@ class SeriesData:
     visibility: np.ndarray | None = None
     visibility_err: np.ndarray | None = None
     rotational: Measured | None = None  # rotational temperature in the deflector, when stated
+    #: the fitted time-of-flight trace (polarbeam.contract.time_of_flight.TraceFit), when given,
+    #: and its velocity-scale error terms (tag, relative change per 1σ) for the separation
+    time_of_flight: Any = None
+    velocity_terms: tuple[tuple[str, float], ...] = ()
 
     @property
     def label(self) -> str:
