@@ -60,6 +60,17 @@ from polarbeam.contract.time_of_flight import (
     TOF_BEAM_KEYS,
     attach_time_of_flight,
     time_of_flight_settings,
+    with_traces,
+)
+from polarbeam.contract.velocity import (
+    BEAM_KEYS,
+    INSTRUMENT_VELOCITY_KEYS,
+    VelocitySettings,
+    attach_distributions,
+    load_velocity_tables,
+    row_velocity_extras,
+    series_velocity_extras,
+    velocity_settings,
 )
 from polarbeam.errors import CompoundError, InputError, QuantityError
 from polarbeam.instrument.deflectors import (
@@ -87,6 +98,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "grating_positions": "m",
         "detector_position": "m",
         "pulse_times": "s",
+        **INSTRUMENT_VELOCITY_KEYS,
     },
     "deflector": {
         "model": None,
@@ -113,6 +125,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "computed_outputs": None,
         "recoil": None,
         "time_of_flight": None,
+        "velocities": None,
     },
     "analysis": {
         "velocity_nodes": None,
@@ -128,7 +141,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "mass": None,
     },
     "source": {"thermometer_offset": "K"},
-    "beam": dict(TOF_BEAM_KEYS),
+    "beam": {**BEAM_KEYS, **TOF_BEAM_KEYS},
 }
 # the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
 _SCHEMA["deflector"].update(
@@ -177,6 +190,7 @@ class Campaign:
     table_notes: tuple[str, ...] = ()  # comment lines skipped above the headers of the tables
     warnings: tuple[str, ...] = ()  # implausible inputs (likely unit slips), one line each
     thermometer_offset: Measured | None = None  # [source]: one error common to every series' T
+    velocity: VelocitySettings = field(default_factory=VelocitySettings)  # [beam], tables
 
     @property
     def observable(self) -> str:
@@ -535,7 +549,9 @@ def _load_compounds(
     return info
 
 
-def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
+def _load_shifts(
+    path: Path, layout: str, table_notes: list[str] | None = None, tabled: bool = False
+):
     obs, obs_err = OBSERVABLE_COLUMNS[layout]
     required = (*SHIFT_COLUMNS_COMMON, obs, obs_err)
     if layout == "time-domain":
@@ -566,10 +582,12 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
             num = table.number
             if layout == "time-domain":
                 v = dv = sv = 0.0  # placeholders, never used
-            else:
-                v = num(i, "velocity_m_s", positive=True)
+            else:  # with [data] velocities, empty means "from the table" (checked later)
+                v = num(i, "velocity_m_s", positive=True, default=np.nan if tabled else None)
                 dv = num(i, "velocity_err_m_s", nonnegative=True)
-                sv = num(i, "velocity_spread_m_s", nonnegative=True)
+                sv = num(
+                    i, "velocity_spread_m_s", nonnegative=True, default=np.nan if tabled else None
+                )
             rec = (
                 num(i, "voltage_V"),
                 num(i, obs),
@@ -580,6 +598,7 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
                 num(i, "temperature_err_K", nonnegative=True),
                 table.lines[i],
                 row_rotational(table, i) if rotational else ("", None, 0.0),
+                row_velocity_extras(table, i),
             )
             temp = num(i, "temperature_K", positive=True)
         except CompoundError as exc:
@@ -610,7 +629,9 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
                 SeriesData(
                     compound=name,
                     temperature=Measured(temp, float(np.mean(arr[:, 6]))),
-                    velocity=Measured(float(np.mean(arr[:, 3])), float(np.mean(arr[:, 4]))),
+                    velocity=Measured(  # 0: empty cells, from the velocity table
+                        float(np.nan_to_num(np.mean(arr[:, 3]))), float(np.mean(arr[:, 4]))
+                    ),
                     velocities=arr[:, 3],
                     spreads=arr[:, 5],
                     voltages=volts,
@@ -618,6 +639,7 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
                     errors=arr[:, 2],
                     lines=tuple(r[7] for r in recs),
                     rotational=rot,
+                    **series_velocity_extras([r[9] for r in recs]),
                 )
             )
         else:
@@ -698,6 +720,8 @@ def load_campaign(path: str | Path) -> Campaign:
     stated = stated_inputs(doc, fname, layout, model)
     settings = analysis_settings(doc, fname)
     offset = thermometer_offset(doc, fname)
+    vset = velocity_settings(doc, fname, layout)
+    tof = time_of_flight_settings(doc, fname, layout)  # [data] time_of_flight, [beam] keys
     base = path.parent
     field_map, waveform = deflector_files(defl, base, fname, layout, model)
     data = doc.get("data", {})
@@ -724,13 +748,22 @@ def load_campaign(path: str | Path) -> Campaign:
         shifts_path = data_path(base, doc, "shifts", fname, required=not has_recoil)
         info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
         if shifts_path is not None:
-            series, problems, ignored = _load_shifts(shifts_path, layout, table_notes)
+            tabled = vset.tables is not None or tof is not None
+            series, problems, ignored = _load_shifts(shifts_path, layout, table_notes, tabled)
         else:
             series, problems = {}, {}
-    tof = time_of_flight_settings(doc, fname, layout)  # [data] time_of_flight: fitted traces
+    fits = {}  # [data] time_of_flight: fitted traces become the series' tables
+    tables, bad_tables = {}, {}
+    if vset.tables is not None and shifts_path is not None:  # [data] velocities
+        tables, bad_tables = load_velocity_tables(data_path(base, doc, "velocities", fname))
     if tof is not None and shifts_path is not None:
         tof_path = data_path(base, doc, "time_of_flight", fname)
-        series = attach_time_of_flight(tof, tof_path, series, problems, shifts_path.name)
+        fits = attach_time_of_flight(tof, tof_path, series, problems, shifts_path.name, tables)
+    if shifts_path is not None and layout != "time-domain":
+        tname = Path(vset.tables).name if vset.tables is not None else None
+        args = (vset.shape, shifts_path.name, tname)
+        series = attach_distributions(series, problems, tables, bad_tables, *args)
+        series = with_traces(series, fits)
 
     camp = Campaign(
         path=path,
@@ -824,6 +857,7 @@ def load_campaign(path: str | Path) -> Campaign:
         table_notes=tuple(table_notes),
         warnings=warnings,
         thermometer_offset=offset,
+        velocity=vset,
     )
 
 

@@ -23,6 +23,7 @@ import uncertainties
 
 from polarbeam._util.tables import CELL_BLANKS, read_table
 from polarbeam._util.text import input_label
+from polarbeam.beam.distributions import TabulatedVelocity
 from polarbeam.beam.time_of_flight import (
     TimeOfFlightFit,
     TraceSetup,
@@ -46,6 +47,7 @@ __all__ = [
     "time_of_flight_settings",
     "tof_tag",
     "uncertain_velocity",
+    "with_traces",
 ]
 
 #: keys of ``[beam]`` read here (key → SI unit)
@@ -311,12 +313,14 @@ def attach_time_of_flight(
     series: dict,
     problems: dict[str, str],
     shifts_name: str,
-) -> dict:
-    """Series with their fitted traces (``time_of_flight`` and ``velocity_terms`` set).
+    tables: dict,
+) -> dict[tuple[str, float], TraceFit]:
+    """Fit the traces of ``path``: {(compound, T): TraceFit}; each fit's distribution is added to
+    ``tables`` (the series' measured tables, as ``[data] velocities`` gives them).
 
-    A bad trace, a trace without its series, or a fit that fails is its compound's problem
-    (added to ``problems``, the compound's series dropped). Raises :class:`InputError` for an
-    unreadable file.
+    A bad trace, a trace without its series or with a table too, or a fit that fails is its
+    compound's problem (added to ``problems``). Raises :class:`InputError` for an unreadable
+    file.
     """
     traces, bad = load_traces(path)
     fname = path.name
@@ -333,14 +337,25 @@ def attach_time_of_flight(
                 f"{shifts_name}; expected a series of {name} at temperature_K {temp:g}, "
                 f"found {found}"
             )
+        elif (name, temp) in tables:
+            problems[name] = (
+                f"{fname}: series {name} @ {temp:g} K has a trace and a [data] velocities table; "
+                "expected one of them"
+            )
     usable = {k: t for k, t in traces.items() if k[0] not in problems}
     fits, fit_problems = fit_traces(usable, settings, fname)
     for name, msg in fit_problems.items():
         problems.setdefault(name, msg)
+    fits = {k: f for k, f in fits.items() if k[0] not in problems}
+    for key, tf in fits.items():
+        tables[key] = TabulatedVelocity.from_arrays(tf.velocities, tf.weights)
+    return fits
+
+
+def with_traces(series: dict, fits: dict[tuple[str, float], TraceFit]) -> dict:
+    """Series with their fitted traces (``time_of_flight`` and ``velocity_terms`` set)."""
     out = {}
     for name, items in series.items():
-        if name in problems:
-            continue
         out[name] = [_with_trace(s, fits.get((name, s.temperature.value))) for s in items]
     return out
 

@@ -24,14 +24,60 @@ import numpy as np
 import uncertainties
 from scipy import linalg, stats
 
-from polarbeam.beam.distributions import GaussianVelocity
+from polarbeam.beam.distributions import VelocityDistribution, distribution_from_moments
 from polarbeam.beam.velocity import averaged_phasor_phase, mean_inverse_square
 from polarbeam.constants import ANGSTROM3_SI
 from polarbeam.contract.campaign import SeriesData
 from polarbeam.errors import FitError
 from polarbeam.uncertain import FIT_TAG
 
-__all__ = ["SeriesFit", "alpha_eff_with_errors", "fit_series", "observable_model"]
+__all__ = [
+    "SeriesFit",
+    "alpha_eff_with_errors",
+    "fit_series",
+    "observable_model",
+    "series_distributions",
+]
+
+
+def series_distributions(
+    velocities: np.ndarray,
+    spreads: np.ndarray,
+    *,
+    distribution: VelocityDistribution | None = None,
+    shape: str = "gaussian",
+    velocity_factor: float = 1.0,
+    spread_factor: float = 1.0,
+) -> list[tuple[np.ndarray, VelocityDistribution]]:
+    """(point mask, distribution) groups of one series: the series' own ``distribution`` (a
+    table) for every point, else the named ``shape`` for each distinct (mean, spread) pair.
+
+    ``velocity_factor`` scales the stated means (a table: every class, a common calibration
+    scale), ``spread_factor`` the spreads; the derivatives of the fit with respect to the stated
+    velocity and spread are taken through them.
+    """
+    velocities = np.asarray(velocities, dtype=float)
+    spreads = np.asarray(spreads, dtype=float)
+    n = velocities.size
+    if distribution is not None:
+        d = distribution
+        if spread_factor != 1.0:
+            d = d.widened(spread_factor)
+        if velocity_factor != 1.0:
+            d = d.scaled(velocity_factor)
+        return [(np.ones(n, dtype=bool), d)]
+    if n == 0:
+        return []
+    if np.all(velocities == velocities.flat[0]) and np.all(spreads == spreads.flat[0]):
+        pairs = [(velocities.flat[0], spreads.flat[0])]  # one velocity class (the usual case)
+    else:
+        pairs = np.unique(np.stack([velocities, spreads], axis=1), axis=0)
+    out = []
+    for v, s in pairs:
+        sel = (velocities == v) & (spreads == s)
+        d = distribution_from_moments(shape, v * velocity_factor, s * spread_factor)
+        out.append((sel, d))
+    return out
 
 
 def observable_model(
@@ -42,30 +88,33 @@ def observable_model(
     spreads: np.ndarray,
     kind: str,
     nodes: int = 48,
+    *,
+    groups: list[tuple[np.ndarray, VelocityDistribution]] | None = None,
+    kappa_zero: float = 0.0,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Predicted observable (without offset) and phasor modulus for each voltage.
 
-    ``kind`` is ``"talbot-lau"``, ``"beam-profile"`` or ``"time-domain"``.
+    ``kind`` is ``"talbot-lau"``, ``"beam-profile"`` or ``"time-domain"``. ``groups`` (from
+    :func:`series_distributions`) replaces the Gaussian of ``velocities``/``spreads``.
+    ``kappa_zero`` (Talbot–Lau) is the zero-field phase constant 2π·a·W_tot/d of a background
+    acceleration a: every class turns by (κ + κ₀)/v², and the observable is the phase relative
+    to zero field, Ψ(κ + κ₀) − Ψ(κ₀); the modulus is |Z(κ + κ₀)|/|Z(κ₀)|, the visibility relative
+    to zero field.
     """
     kappa = alpha_si * coupling_over_mass * np.asarray(voltages, dtype=float) ** 2
     if kind == "time-domain":
         return kappa, np.ones_like(kappa)
     out = np.empty_like(kappa)
     mod = np.ones_like(kappa)
-    velocities = np.asarray(velocities, dtype=float)
-    spreads = np.asarray(spreads, dtype=float)
-    if velocities.size == 0:
-        groups = []
-    elif np.all(velocities == velocities.flat[0]) and np.all(spreads == spreads.flat[0]):
-        groups = [(velocities.flat[0], spreads.flat[0])]  # one velocity class (the usual case)
-    else:
-        groups = np.unique(np.stack([velocities, spreads], axis=1), axis=0)
-    for v, s in groups:
-        sel = (velocities == v) & (spreads == s)
+    if groups is None:
+        groups = series_distributions(velocities, spreads)
+    for sel, dist in groups:
         if kind == "beam-profile":
-            out[sel] = kappa[sel] * mean_inverse_square(GaussianVelocity(v, s), nodes)
-        else:
-            out[sel], mod[sel] = averaged_phasor_phase(kappa[sel], GaussianVelocity(v, s), nodes)
+            out[sel] = kappa[sel] * mean_inverse_square(dist, nodes)
+            continue
+        k = np.append(kappa[sel] + kappa_zero, kappa_zero)
+        ph, mo = averaged_phasor_phase(k, dist, nodes)
+        out[sel], mod[sel] = ph[:-1] - ph[-1], mo[:-1] / mo[-1]
     return out, mod
 
 
@@ -83,6 +132,8 @@ class SeriesFit:
     modulus: np.ndarray
     dalpha_dvelocity: float  # ∂α̂/∂v̄ (C·m²/V per m/s), 0 for the time domain
     error_scale: float = 1.0
+    dalpha_dspread: float = 0.0  # ∂α̂/∂σ_v (per m/s), 0 without a stated spread error
+    dalpha_dkappa_zero: float = 0.0  # ∂α̂/∂κ₀ of the background-acceleration phase constant
 
     @property
     def reduced_chi2(self) -> float:
@@ -110,28 +161,45 @@ def fit_series(
     fit_offset: bool = True,
     nodes: int = 48,
     scale_errors: str = "never",
+    kappa_zero: float = 0.0,
 ) -> SeriesFit:
     """Least-squares fit of α_eff (and the zero-field offset) to one series.
 
-    Raises :class:`~polarbeam.errors.FitError` when the fit has no usable covariance.
+    The series' velocity model is its ``distribution`` (a table) or its ``shape`` with the
+    mean and spread columns; ``kappa_zero`` is the background-acceleration phase constant of
+    :func:`observable_model`. Raises :class:`~polarbeam.errors.FitError` when the fit has no
+    usable covariance.
     """
     V, y = series.voltages, series.values
     vel, spr = series.velocities, series.spreads
     com = coupling / mass
     white = _whitener(series)
 
+    def groups(vf=1.0, sf=1.0):
+        return series_distributions(
+            vel,
+            spr,
+            distribution=series.distribution,
+            shape=series.shape,
+            velocity_factor=vf,
+            spread_factor=sf,
+        )
+
+    nominal_groups = groups() if kind != "time-domain" else []
+
+    def predict(alpha, grp=None, k0=kappa_zero):
+        grp = nominal_groups if grp is None else grp
+        return observable_model(alpha, V, com, vel, spr, kind, nodes, groups=grp, kappa_zero=k0)
+
     def shape(alpha):
-        return observable_model(alpha, V, com, vel, spr, kind, nodes)[0]
+        return predict(alpha)[0]
 
     # linear first guess using the small-phase limit
     x = shape(ANGSTROM3_SI)
     if kind == "talbot-lau":
-        x = np.array(
-            [
-                com * vv**2 * ANGSTROM3_SI * mean_inverse_square(GaussianVelocity(v, s), nodes)
-                for vv, v, s in zip(V, vel, spr, strict=True)
-            ]
-        )
+        x = np.zeros_like(V, dtype=float)
+        for sel, dist in nominal_groups:
+            x[sel] = com * V[sel] ** 2 * ANGSTROM3_SI * mean_inverse_square(dist, nodes)
     cols = [x, np.ones_like(x)] if fit_offset else [x]
     A = np.column_stack([white(c) for c in cols])
     sol, *_ = np.linalg.lstsq(A, white(y), rcond=None)
@@ -146,6 +214,21 @@ def fit_series(
         return white(model - y)
 
     res = lmfit.minimize(residual, params, method="leastsq", scale_covar=False)
+    if (not res.success or res.covar is None) and kind != "time-domain":
+        # a strongly non-linear phase (broad or far-tailed distributions): restart from the
+        # best point of a logarithmic scan around the small-phase guess
+        base = a0 if a0 != 0 else 1.0
+        trial = params.copy()
+        best = None
+        for f in np.logspace(-3, 3, 61):
+            trial["alpha"].value = base * f
+            r = residual(trial)
+            chi = float(r @ r)
+            if np.isfinite(chi) and (best is None or chi < best[0]):
+                best = (chi, base * f)
+        if best is not None:
+            params["alpha"].value = best[1]
+            res = lmfit.minimize(residual, params, method="leastsq", scale_covar=False)
     if not res.success or res.covar is None:
         raise FitError(
             f"series {series.label}: the fit did not converge or its covariance is singular "
@@ -155,7 +238,7 @@ def fit_series(
     offset = res.params["offset"].value * c_scale if fit_offset else 0.0
     conv = np.array([ANGSTROM3_SI, c_scale])[: res.covar.shape[0]]
     cov = res.covar * np.outer(conv, conv)
-    model, modulus = observable_model(alpha, V, com, vel, spr, kind, nodes)
+    model, modulus = predict(alpha)
     model = model + offset
     r = white(model - y)
     chi2 = float(r @ r)
@@ -167,24 +250,32 @@ def fit_series(
     if not np.all(np.isfinite(cov)) or cov[0, 0] <= 0:
         raise FitError(f"series {series.label}: the fit gave no usable error for α_eff")
 
-    # ∂θ/∂v̄ = −(JᵀJ)⁻¹ Jᵀ ∂r/∂v̄ (implicit derivative of the least-squares solution)
-    dadv = 0.0
+    # ∂θ/∂p = −(JᵀJ)⁻¹ Jᵀ ∂r/∂p (implicit derivative of the least-squares solution) for the
+    # mean velocity (a common scale of every class), the spread and the background acceleration
+    dadv = dads = dadk = 0.0
     if kind != "time-domain":
         eps = 1e-4
         vbar = series.velocity.value
-
-        def rv(factor):
-            m = observable_model(alpha, V, com, vel * factor, spr, kind, nodes)[0] + offset
-            return white(m - y)
-
-        drdv = (rv(1 + eps) - rv(1 - eps)) / (2 * eps * vbar)
         da = alpha * 1e-5
         jac = [(white(shape(alpha + da)) - white(shape(alpha - da))) / (2 * da)]
         if fit_offset:
             jac.append(white(np.ones_like(y)))
         J = np.column_stack(jac)
-        dtheta = -np.linalg.solve(J.T @ J, J.T @ drdv)
-        dadv = float(dtheta[0])
+
+        def implicit(dr):
+            return float(-np.linalg.solve(J.T @ J, J.T @ dr)[0])
+
+        def rv(grp, k0=kappa_zero):
+            return white(predict(alpha, grp, k0)[0] + offset - y)
+
+        dadv = implicit((rv(groups(vf=1 + eps)) - rv(groups(vf=1 - eps))) / (2 * eps * vbar))
+        sbar = float(np.mean(spr)) if series.distribution is None else 0.0
+        if series.spread_error > 0 and sbar > 0 and series.shape != "effusive":
+            drs = (rv(groups(sf=1 + eps)) - rv(groups(sf=1 - eps))) / (2 * eps * sbar)
+            dads = implicit(drs)
+        if kind == "talbot-lau" and kappa_zero != 0.0:
+            hk = abs(kappa_zero) * 1e-4
+            dadk = implicit((rv(None, kappa_zero + hk) - rv(None, kappa_zero - hk)) / (2 * hk))
     return SeriesFit(
         alpha_si=alpha,
         offset=offset,
@@ -196,10 +287,20 @@ def fit_series(
         modulus=modulus,
         dalpha_dvelocity=dadv,
         error_scale=scale,
+        dalpha_dspread=dads,
+        dalpha_dkappa_zero=dadk,
     )
 
 
-def alpha_eff_with_errors(fit: SeriesFit, label: str, coupling_ratio, mass_ratio, velocity_u):
+def alpha_eff_with_errors(
+    fit: SeriesFit,
+    label: str,
+    coupling_ratio,
+    mass_ratio,
+    velocity_u,
+    spread_u=None,
+    kappa_zero_u=None,
+):
     """α_eff (C·m²/V) as a correlated :class:`uncertainties` value.
 
     Parameters
@@ -210,6 +311,9 @@ def alpha_eff_with_errors(fit: SeriesFit, label: str, coupling_ratio, mass_ratio
         m / m_nominal as an uncertain number (exactly 1 when no mass error is stated).
     velocity_u
         the series' mean velocity as a tagged uncertain number (or a float).
+    spread_u, kappa_zero_u
+        the series' velocity spread and the campaign's background-acceleration phase constant
+        κ₀ as tagged uncertain numbers (or None / floats: no error).
     """
     n = fit.covariance.shape[0]
     nominal = [fit.alpha_si, fit.offset][:n]
@@ -218,4 +322,8 @@ def alpha_eff_with_errors(fit: SeriesFit, label: str, coupling_ratio, mass_ratio
     alpha_v = fit_u[0]
     if isinstance(velocity_u, uncertainties.UFloat):
         alpha_v = alpha_v + fit.dalpha_dvelocity * (velocity_u - velocity_u.nominal_value)
+    if isinstance(spread_u, uncertainties.UFloat):
+        alpha_v = alpha_v + fit.dalpha_dspread * (spread_u - spread_u.nominal_value)
+    if isinstance(kappa_zero_u, uncertainties.UFloat):
+        alpha_v = alpha_v + fit.dalpha_dkappa_zero * (kappa_zero_u - kappa_zero_u.nominal_value)
     return alpha_v * coupling_ratio * mass_ratio, (fit_u[1] if n > 1 else None)

@@ -15,9 +15,11 @@ from uncertainties import ufloat
 from polarbeam.constants import AMU, BOLTZMANN, alpha_a3_from_si, debye_from_si
 from polarbeam.contract.campaign import Campaign, CompoundData
 from polarbeam.contract.time_of_flight import uncertain_velocity
+from polarbeam.contract.velocity import velocity_warnings
 from polarbeam.errors import CompoundError
 from polarbeam.extraction.context import Context
 from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
+from polarbeam.extraction.visibility import visibility_departures
 from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResult
 from polarbeam.results.velocity import VelocityRecord
 from polarbeam.separation.debye import (
@@ -82,6 +84,7 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
             fit_offset=st.fit_offset,
             nodes=st.velocity_nodes,
             scale_errors=st.scale_errors,
+            kappa_zero=float(getattr(ctx.kappa_zero, "nominal_value", ctx.kappa_zero)),
         )
         vel_u = (
             ufloat(s.velocity.value, s.velocity.error, tag=f"velocity: {s.label}")
@@ -90,8 +93,17 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         )
         if s.velocity_terms and c.layout != "time-domain":  # errors of a fitted trace
             vel_u = uncertain_velocity(vel_u, s.velocity.value, s.velocity_terms, units)
-        a_eff, _ = alpha_eff_with_errors(fit, s.label, ctx.coupling_ratio, mass_ratio, vel_u)
-        sw = []
+        spread_u = (
+            ufloat(float(np.mean(s.spreads)), s.spread_error, tag=f"velocity spread: {s.label}")
+            if s.spread_error > 0 and c.layout != "time-domain"
+            else None
+        )
+        a_eff, _ = alpha_eff_with_errors(
+            fit, s.label, ctx.coupling_ratio, mass_ratio, vel_u, spread_u, ctx.kappa_zero
+        )
+        sw = velocity_warnings(s, c.layout)
+        if c.layout == "talbot-lau":
+            sw.extend(visibility_departures(s, fit.modulus))
         if fit.ndof > 0 and fit.p_value < 0.01:
             sw.append(
                 f"{s.label}: reduced χ² = {fit.reduced_chi2:.2f} (p = {fit.p_value:.1e}); "
