@@ -38,6 +38,7 @@ __all__ = [
     "GaussianVelocity",
     "TabulatedVelocity",
     "VelocityDistribution",
+    "density_curve",
     "distribution_from_moments",
     "distribution_summary",
 ]
@@ -364,6 +365,29 @@ def distribution_from_moments(shape: str, mean: float, spread: float):
     if shape == "effusive":
         return FluxVelocity(mean, EFFUSIVE_SPREAD_RATIO * mean, effusive=True)
     raise ValueError(f"expected one of {', '.join(SHAPES)}, found {shape!r}")
+
+
+def density_curve(dist, points: int = 200):
+    """(velocities, probability density per m/s, relative contrast or None) to draw a
+    distribution: a table's classes with weight / bin width, a named shape on a grid."""
+    if isinstance(dist, TabulatedVelocity):
+        v = np.asarray(dist.velocities, dtype=float) * dist.scale
+        mid = 0.5 * (v[1:] + v[:-1])
+        lo = np.concatenate([[v[0] - (mid[0] - v[0])], mid])
+        hi = np.concatenate([mid, [v[-1] + (v[-1] - mid[-1])]])
+        _, w = dist.nodes()
+        return v, w / (hi - lo), dist.contrast()
+    v_n, _ = dist.nodes(48)
+    if v_n.size == 1:
+        return v_n, np.array([np.inf]), None
+    v = np.linspace(float(v_n.min()), float(v_n.max()), points)
+    if isinstance(dist, FluxVelocity):
+        u, a = dist.parameters()
+        p = v**3 * np.exp(-(((v - u) / a) ** 2))
+    else:
+        p = np.exp(-0.5 * ((v - dist.mean) / dist.spread) ** 2)
+    area = float(np.sum(0.5 * (p[1:] + p[:-1]) * np.diff(v)))  # trapezoid (numpy 1.26 too)
+    return v, p / area, None
 
 
 def distribution_summary(dist, n: int = 48) -> dict[str, float]:

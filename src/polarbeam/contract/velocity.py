@@ -19,6 +19,7 @@ from polarbeam.beam.distributions import (
     GAUSSIAN_WARN_RATIO,
     SHAPES,
     TabulatedVelocity,
+    density_curve,
     distribution_from_moments,
 )
 from polarbeam.contract.schema import SeriesData
@@ -35,6 +36,8 @@ __all__ = [
     "load_velocity_tables",
     "row_velocity_extras",
     "series_velocity_extras",
+    "velocity_curve",
+    "velocity_extra",
     "velocity_settings",
     "velocity_warnings",
 ]
@@ -224,6 +227,29 @@ def attach_distributions(
         )
         out.pop(name, None)
     return out
+
+
+def velocity_extra(s: SeriesData, layout: str) -> dict:
+    """Result columns of a series' velocity model (its kind, the spread error) when it is not
+    the default Gaussian (so that Gaussian campaigns keep their columns)."""
+    if layout == "time-domain" or (s.distribution is None and s.shape == "gaussian"):
+        return {}
+    out: dict = {"velocity_distribution": s.shape}
+    if s.spread_error > 0:
+        out["velocity_spread_err_m_s"] = s.spread_error
+    return out
+
+
+def velocity_curve(s: SeriesData, layout: str):
+    """(velocities, density, contrast) of the series' velocity model for the report, or None."""
+    if layout == "time-domain":
+        return None
+    dist = s.distribution
+    if dist is None:
+        if not s.velocities.size or not np.all(s.velocities == s.velocities[0]):
+            return None  # several velocity classes in one series: no single curve
+        dist = distribution_from_moments(s.shape, float(s.velocities[0]), float(s.spreads[0]))
+    return density_curve(dist)
 
 
 def velocity_warnings(s: SeriesData, layout: str) -> list[str]:

@@ -49,6 +49,9 @@ _CAPTIONS = {
     "residuals in units of their error.",
     "visibility": "Fringe visibility relative to the lowest-field point: the velocity-averaging "
     "contrast factor of the fitted model (line) and the measured visibility where recorded.",
+    "velocity": "Velocity distribution of each series as analysed (density; a measured table's "
+    "classes as steps) and, dotted on the right axis, the relative fringe contrast of its classes "
+    "where the table states one.",
     "debye": "α_eff of each series against 1/T with the fitted line α + ⟨μ²⟩/(3kT); the band is "
     "±1σ from the full α–⟨μ²⟩ covariance, the error bars include the shared scale errors.",
     "comparison": "Measured value (band: 1σ) against the predicted and computed values stored "

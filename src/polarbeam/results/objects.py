@@ -78,6 +78,9 @@ class SeriesResult:
     visibility: np.ndarray | None = None  # relative to the zero-field references (raw scans)
     visibility_err: np.ndarray | None = None
     time_of_flight: VelocityRecord | None = None  # distribution fitted to a trace, when given
+    #: (velocities m/s, density per m/s, relative contrast or None) of the velocity model, for
+    #: the report's distribution figure (not written to the tables)
+    velocity_curve: tuple | None = None
 
     @property
     def n_points(self) -> int:

@@ -15,7 +15,7 @@ from uncertainties import ufloat
 from polarbeam.constants import AMU, BOLTZMANN, alpha_a3_from_si, debye_from_si
 from polarbeam.contract.campaign import Campaign, CompoundData
 from polarbeam.contract.time_of_flight import uncertain_velocity
-from polarbeam.contract.velocity import velocity_warnings
+from polarbeam.contract.velocity import velocity_curve, velocity_extra, velocity_warnings
 from polarbeam.errors import CompoundError
 from polarbeam.extraction.context import Context
 from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
@@ -159,7 +159,9 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                     }
                     if s.rotational is not None
                     else {}
-                ),
+                )
+                | velocity_extra(s, c.layout),
+                velocity_curve=velocity_curve(s, c.layout),
             )
         )
     if not results:

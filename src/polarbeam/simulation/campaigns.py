@@ -225,6 +225,7 @@ def simulate_campaign(
     table_shape: str | None = None,
     contrast_slope: float | None = None,
     acceleration: tuple[float, float] | None = None,
+    thermal_velocity: bool = False,
 ) -> SimulationTruth:
     """Write ``campaign.toml``, ``shifts.csv`` and ``compounds.csv`` into ``out_dir``.
 
@@ -255,6 +256,9 @@ def simulate_campaign(
     acceleration
         (a, 1σ) in m/s² of ``[instrument] background_acceleration`` (Talbot–Lau): the true a is
         drawn from it.
+    thermal_velocity
+        Scale the mean velocity of each series as sqrt(T/T_first) (an oven): ``velocity_m_s``
+        is then the mean at the compound's first temperature.
     """
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     spec = spec or InstrumentSpec.talbot_lau()
@@ -289,6 +293,8 @@ def simulate_campaign(
             if t_stated in rot:  # the rotation in the deflector sets the orientational term
                 t_true = rot[t_stated] + rotational_err_K * rng.standard_normal()
             a_eff = response.alpha_eff(a_si, mu_si, t_true)
+            if thermal_velocity:
+                v_nom = velocity_m_s * math.sqrt(t_stated / comp.temperatures_K[0])
             v_err = velocity_err_frac * v_nom
             v_true = v_nom + v_err * rng.standard_normal()
             spread = spread_frac * v_nom

@@ -45,7 +45,7 @@ def velocity_table(
     mean: float,
     spread_frac: float,
     *,
-    classes: int = 120,
+    classes: int = 90,
     contrast_slope: float | None = None,
 ) -> TabulatedVelocity:
     """A table of ``classes`` velocity classes of ``shape`` with (about) this mean and relative
