@@ -527,8 +527,15 @@ def simulate_scan_campaign(
     parquet: bool = False,
     response: ParticleResponse = LANGEVIN_DEBYE,
     rotational_err_K: float = 1.0,
+    table_shape: str | None = None,
+    contrast_slope: float | None = None,
 ) -> SimulationTruth:
     """Like :func:`simulate_campaign` but writes raw fringe scans (``[data] scans``).
+
+    With ``table_shape`` (and ``contrast_slope``) each series' beam is a measured table as in
+    :func:`simulate_campaign` (``velocities.csv``; the scans' velocity cells hold the stated
+    table's mean and rms spread) and the signal scans' visibility follows the velocity model's
+    phasor modulus.
 
     Compounds that give ``rotational_temperatures_K`` have their orientational term set by the
     rotational temperature (drawn with ``rotational_err_K``), and the scan table gets the
@@ -551,6 +558,7 @@ def simulate_scan_campaign(
     period_true = true.get("instrument.grating_period", nominal["instrument.grating_period"])
     kind = spec.layout
     tables = []
+    tables_out: list = []
     truth_eff: dict[tuple[str, float], float] = {}
     first_scan, t0 = 0, 0.0
     for comp in compounds:
@@ -572,14 +580,27 @@ def simulate_scan_campaign(
             volts = np.repeat(ladder, scans_per_voltage)
             volts = volts * rng.choice([-1.0, 1.0], size=volts.size)
             rng.shuffle(volts)
-            phases, _ = observable_model(
+            groups = factors = None
+            v_cell, s_cell = velocity_m_s, spread_frac * velocity_m_s
+            if table_shape is not None:
+                true_table = velocity_table(
+                    table_shape, velocity_m_s, spread_frac, contrast_slope=contrast_slope
+                )
+                stated, v_err = stated_table(true_table, velocity_err_frac, rng)
+                tables_out.append((comp.name, t_stated, stated))
+                groups = [(np.ones(volts.size, dtype=bool), true_table)]
+                v_cell, s_cell = stated.mean, stated.spread
+            phases, modulus = observable_model(
                 a_eff,
                 volts,
                 c_true / m_true,
                 np.full(volts.size, v_true),
                 np.full(volts.size, spread_frac * velocity_m_s),
                 kind,
+                groups=groups,
             )
+            if table_shape is not None:
+                factors = modulus
             truth_eff[(comp.name, t_stated)] = a_eff / alpha_si_from_a3(1.0)
             sim = scansim.simulate_series(
                 phases,
@@ -587,9 +608,9 @@ def simulate_scan_campaign(
                 compound=comp.name,
                 temperature_K=t_stated,
                 temperature_err_K=temperature_err_K,
-                velocity_m_s=velocity_m_s,
+                velocity_m_s=v_cell,
                 velocity_err_m_s=v_err,
-                velocity_spread_m_s=spread_frac * velocity_m_s,
+                velocity_spread_m_s=s_cell,
                 period_m=period_true,
                 bins=bins,
                 signal_per_bin=signal_per_bin,
@@ -599,6 +620,7 @@ def simulate_scan_campaign(
                 start_time_s=t0,
                 first_scan=first_scan,
                 rng=rng,
+                contrast_factors=factors,
             )
             if t_stated in rot:
                 sim.table["rotational_temperature_K"] = rot[t_stated]
@@ -619,6 +641,9 @@ def simulate_scan_campaign(
     ]
     write_text_atomic(out / "compounds.csv", "\n".join(clines) + "\n")
     toml = _toml(spec, title).replace('shifts = "shifts.csv"', f'scans = "{name}"')
+    if tables_out:
+        write_text_atomic(out / "velocities.csv", velocity_csv(tables_out))
+        toml += 'velocities = "velocities.csv"\n'
     write_text_atomic(out / "campaign.toml", toml)
     return SimulationTruth(true, {c.name: c for c in compounds}, truth_eff, out)
 
