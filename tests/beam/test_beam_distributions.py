@@ -115,10 +115,20 @@ def test_table_is_its_classes_with_contrast_and_scale():
     assert v == pytest.approx([165.0, 275.0]) and w == pytest.approx([0.3, 0.7])
     assert t.contrast(48) == pytest.approx([0.5, 1.0])
     assert t.mean == pytest.approx(1.1 * (0.3 * 150 + 0.7 * 250))
+    # each class is a bin reaching halfway to its neighbour (165 | 220 | 275 m/s, the end bins as
+    # wide on their outer side: 110–220 and 220–330 m/s), its phase averaged over the bin's span
+    # Δu in 1/v²: e^{iκu}·sin(κΔu/2)/(κΔu/2)
+    du = np.array([1 / 110.0**2 - 1 / 220.0**2, 1 / 220.0**2 - 1 / 330.0**2])
+    assert t.spans() == pytest.approx(du, rel=1e-12)
     kappa = np.array([2.0e3])
-    z = 0.3 * 0.5 * np.exp(1j * kappa / 165.0**2) + 0.7 * np.exp(1j * kappa / 275.0**2)
-    phase, _ = averaged_phasor_phase(kappa, t)
+    x = kappa[0] * du / 2
+    z = (
+        0.3 * 0.5 * np.exp(1j * kappa / 165.0**2) * np.sin(x[0]) / x[0]
+        + 0.7 * np.exp(1j * kappa / 275.0**2) * np.sin(x[1]) / x[1]
+    )
+    phase, modulus = averaged_phasor_phase(kappa, t)
     assert phase == pytest.approx(np.angle(z), abs=1e-12)
+    assert modulus == pytest.approx(np.abs(z), rel=1e-12)
     assert t.scaled(2.0).mean == pytest.approx(2 * t.mean)
     assert t.weights == (3.0, 7.0)  # sorted with their velocities
 

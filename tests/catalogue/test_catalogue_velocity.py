@@ -123,6 +123,46 @@ def _zero_velocity(rows):
     return rows
 
 
+def _shape_and_spread(shape: str, spread_cmp1: str | None = None, extra_cols: bool = False):
+    """The clean campaign with ``[beam] velocity_distribution = shape``; cmp-1's spread cells
+    replaced by ``spread_cmp1``; with ``extra_cols`` a spread error and a measured visibility
+    (constant 0.3 ± 0.005, far below the model at the largest |V| of cmp-2 @ 300 K)."""
+
+    def build(folder: Path) -> list[str]:
+        camp = small_campaign(folder)
+        edit(camp, "[data]", f'[beam]\nvelocity_distribution = "{shape}"\n\n[data]')
+        p = camp.parent / "shifts.csv"
+        with p.open(newline="", encoding="utf-8") as h:
+            rows = list(csv.reader(h))
+        head = rows[0]
+        isp, iv = head.index("velocity_spread_m_s"), head.index("voltage_V")
+        if extra_cols:
+            head += ["velocity_spread_err_m_s", "visibility", "visibility_err"]
+        vmax = max(abs(float(r[iv])) for r in rows[1:] if r[0] == "cmp-2")
+        for r in rows[1:]:
+            if spread_cmp1 is not None and r[0] == "cmp-1":
+                r[isp] = spread_cmp1
+            if extra_cols:
+                low = r[0] == "cmp-2" and r[1] == "300" and abs(float(r[iv])) == vmax
+                r += ["1.5", "0.1" if low else "0.3", "0.005"]
+        with p.open("w", newline="", encoding="utf-8") as h:
+            csv.writer(h, lineterminator="\n").writerows(rows)
+        return _analyze(folder, camp)
+
+    return build
+
+
+def _spread_err_and_visibility(folder: Path) -> None:
+    props = _props(folder)
+    assert props["cmp-2"]["status"] == "warning", props["cmp-2"]
+    msg = props["cmp-2"]["message"]
+    assert "cmp-2 @ 300 K: the measured visibility departs from the velocity model's phasor " in msg
+    assert "measured 0.100 ± 0.005, model" in msg  # the point far below the model, named
+    doc = json.loads((folder / "out" / "results.json").read_text(encoding="utf-8"))
+    for c in doc["compounds"]:
+        assert any(k.startswith("velocity spread: ") for k in c["alpha_budget"]), c["alpha_budget"]
+
+
 def _accel_ok(folder: Path) -> None:
     doc = json.loads((folder / "out" / "results.json").read_text(encoding="utf-8"))
     for c in doc["compounds"]:
@@ -180,6 +220,24 @@ CASES = [
             "velocities.csv: series cmp-1 @ 700 K has a table but no series in shifts.csv; "
             "expected a series of cmp-1 at temperature_K 700, found 300 K, 450 K, 600 K"
         ),
+    ),
+    Case(
+        "supersonic spread beyond the effusive limit",
+        _shape_and_spread("supersonic", "80"),
+        1,
+        None,
+        _fails_first(
+            "shifts.csv: series cmp-1 @ 300 K, column 'velocity_spread_m_s' ([beam] "
+            "velocity_distribution = 'supersonic'): expected a supersonic spread below 0.3630 × "
+            "the mean (the effusive limit), found 0.4444 × the mean"
+        ),
+    ),
+    Case(
+        "spread error and measured visibility",
+        _shape_and_spread("supersonic", extra_cols=True),
+        0,
+        None,
+        _spread_err_and_visibility,
     ),
     Case(
         "unknown velocity distribution",

@@ -16,6 +16,7 @@ import pytest
 
 from polarbeam.beam.distributions import GaussianVelocity
 from polarbeam.contract.schema import SeriesData
+from polarbeam.contract.velocity import velocity_warnings
 from polarbeam.extraction.series import fit_series, observable_model, series_distributions
 from polarbeam.extraction.visibility import visibility_departures
 from polarbeam.instrument.layouts import TalbotLau
@@ -107,3 +108,14 @@ def test_gaussian_velocity_model_unchanged_without_the_new_inputs():
     # the default groups are the Gaussian of the columns, one per distinct (mean, spread)
     ((sel, dist),) = series_distributions(np.full(3, 200.0), np.full(3, 20.0))
     assert sel.all() and dist == GaussianVelocity(200.0, 20.0)
+
+
+def test_broad_gaussian_warning_in_every_velocity_layout():
+    broad = _series(np.zeros(9), spread=60.0)  # σ/v̄ = 0.30
+    narrow = _series(np.zeros(9), spread=40.0)  # 0.20
+    for layout in ("talbot-lau", "beam-profile"):
+        (w,) = velocity_warnings(broad, layout)
+        assert w.startswith("x @ 300 K: velocity spread σ/v̄ = 0.30 > 0.25")
+        assert velocity_warnings(narrow, layout) == []
+    assert velocity_warnings(broad, "time-domain") == []  # no velocity in that phase
+    assert velocity_warnings(_series(np.zeros(9), 60.0, shape="supersonic"), "beam-profile") == []

@@ -58,18 +58,16 @@ from polarbeam.contract.schema import (
 from polarbeam.contract.temperatures import row_rotational, series_rotational, thermometer_offset
 from polarbeam.contract.time_of_flight import (
     TOF_BEAM_KEYS,
-    attach_time_of_flight,
     time_of_flight_settings,
-    with_traces,
+    velocity_models_with_traces,
 )
 from polarbeam.contract.velocity import (
     BEAM_KEYS,
     INSTRUMENT_VELOCITY_KEYS,
     VelocitySettings,
-    attach_distributions,
-    load_velocity_tables,
     row_velocity_extras,
     series_velocity_extras,
+    velocity_models,
     velocity_settings,
 )
 from polarbeam.errors import CompoundError, InputError, QuantityError
@@ -752,18 +750,11 @@ def load_campaign(path: str | Path) -> Campaign:
             series, problems, ignored = _load_shifts(shifts_path, layout, table_notes, tabled)
         else:
             series, problems = {}, {}
-    fits = {}  # [data] time_of_flight: fitted traces become the series' tables
-    tables, bad_tables = {}, {}
-    if vset.tables is not None and shifts_path is not None:  # [data] velocities
-        tables, bad_tables = load_velocity_tables(data_path(base, doc, "velocities", fname))
-    if tof is not None and shifts_path is not None:
-        tof_path = data_path(base, doc, "time_of_flight", fname)
-        fits = attach_time_of_flight(tof, tof_path, series, problems, shifts_path.name, tables)
-    if shifts_path is not None and layout != "time-domain":
-        tname = Path(vset.tables).name if vset.tables is not None else None
-        args = (vset.shape, shifts_path.name, tname)
-        series = attach_distributions(series, problems, tables, bad_tables, *args)
-        series = with_traces(series, fits)
+    if shifts_path is not None and tof is not None:  # fitted traces (contract.time_of_flight)
+        args = (vset, tof, layout, base, fname, shifts_path.name)
+        series = velocity_models_with_traces(series, problems, *args)
+    elif shifts_path is not None:  # tables, named shapes (polarbeam.contract.velocity)
+        series = velocity_models(series, problems, vset, layout, base, fname, shifts_path.name)
 
     camp = Campaign(
         path=path,

@@ -32,6 +32,8 @@ from polarbeam.beam.time_of_flight import (
     mean_inverse_square_uncertain,
     tabulate,
 )
+from polarbeam.contract.paths import resolve_data_file
+from polarbeam.contract.velocity import VelocitySettings, attach_distributions, load_velocity_tables
 from polarbeam.errors import CompoundError, InputError
 from polarbeam.quantities import Measured, parse_quantity
 
@@ -47,6 +49,7 @@ __all__ = [
     "time_of_flight_settings",
     "tof_tag",
     "uncertain_velocity",
+    "velocity_models_with_traces",
     "with_traces",
 ]
 
@@ -376,3 +379,30 @@ def uncertain_velocity(velocity_u, mean: float, terms, units: dict):
             z = units[tag] = uncertainties.ufloat(0.0, 1.0, tag=tag)
         velocity_u = velocity_u + mean * c * z
     return velocity_u
+
+
+def velocity_models_with_traces(
+    series: dict,
+    problems: dict[str, str],
+    vset: VelocitySettings,
+    settings: TimeOfFlightSettings,
+    layout: str,
+    base,
+    fname: str,
+    shifts_name: str,
+) -> dict:
+    """The series with their velocity models as :func:`polarbeam.contract.velocity.
+    velocity_models` gives them, a series with a trace taking its fitted distribution as its
+    table (and its error terms); the time-of-flight keys are refused by the time-domain layout
+    (:func:`time_of_flight_settings`)."""
+    tables: dict = {}
+    bad: dict[str, str] = {}
+    if vset.tables is not None:
+        path = resolve_data_file(Path(base), vset.tables, f"{fname} [data] velocities")
+        tables, bad = load_velocity_tables(path)
+    where = f"{fname} [data] time_of_flight"
+    tof_path = resolve_data_file(Path(base), settings.file, where)
+    fits = attach_time_of_flight(settings, tof_path, series, problems, shifts_name, tables)
+    name = Path(vset.tables).name if vset.tables is not None else None
+    series = attach_distributions(series, problems, tables, bad, vset.shape, shifts_name, name)
+    return with_traces(series, fits)

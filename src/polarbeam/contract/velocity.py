@@ -22,6 +22,7 @@ from polarbeam.beam.distributions import (
     density_curve,
     distribution_from_moments,
 )
+from polarbeam.contract.paths import resolve_data_file
 from polarbeam.contract.schema import SeriesData
 from polarbeam.errors import CompoundError, InputError
 from polarbeam.quantities import Measured, parse_quantity
@@ -38,6 +39,7 @@ __all__ = [
     "series_velocity_extras",
     "velocity_curve",
     "velocity_extra",
+    "velocity_models",
     "velocity_settings",
     "velocity_warnings",
 ]
@@ -81,7 +83,11 @@ def velocity_settings(doc: dict, fname: str, layout: str) -> VelocitySettings:
         where = f"{fname} [instrument] background_acceleration"
         acc = parse_quantity(raw, "m/s^2", where=where)
     tables = doc.get("data", {}).get("velocities")
-    return VelocitySettings(shape, acc, tables if isinstance(tables, str) else None)
+    if tables is not None and not isinstance(tables, str):
+        raise InputError(
+            f"{fname} [data] velocities: expected a file path string, found {tables!r}"
+        )
+    return VelocitySettings(shape, acc, tables)
 
 
 def row_velocity_extras(table: Table, i: int) -> tuple[float, float, float]:
@@ -227,6 +233,21 @@ def attach_distributions(
         )
         out.pop(name, None)
     return out
+
+
+def velocity_models(series, problems, vset: VelocitySettings, layout, base, fname, shifts_name):
+    """The series with their velocity models (:func:`attach_distributions`), the tables of
+    ``[data] velocities`` read first; the time-domain layout reads no velocities (its tables
+    are checked, not used)."""
+    tables: dict = {}
+    bad: dict[str, str] = {}
+    if vset.tables is not None:
+        path = resolve_data_file(Path(base), vset.tables, f"{fname} [data] velocities")
+        tables, bad = load_velocity_tables(path)
+    if layout == "time-domain":
+        return series
+    name = Path(vset.tables).name if vset.tables is not None else None
+    return attach_distributions(series, problems, tables, bad, vset.shape, shifts_name, name)
 
 
 def velocity_extra(s: SeriesData, layout: str) -> dict:

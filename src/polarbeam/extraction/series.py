@@ -152,6 +152,27 @@ def _whitener(series: SeriesData):
     return lambda r: r * inv
 
 
+def _covariance_by_differences(residual, params, fit_offset: bool):
+    """(JᵀJ)⁻¹ of the whitened residuals by central differences (relative step 1e-6), or None
+    when it is not finite and positive."""
+    names = ["alpha", "offset"] if fit_offset else ["alpha"]
+    cols = []
+    for name in names:
+        p0 = params[name].value
+        h = max(abs(p0) * 1e-6, 1e-9)
+        up, dn = params.copy(), params.copy()
+        up[name].value, dn[name].value = p0 + h, p0 - h
+        cols.append((residual(up) - residual(dn)) / (2 * h))
+    J = np.column_stack(cols)
+    try:
+        cov = np.linalg.inv(J.T @ J)
+    except np.linalg.LinAlgError:
+        return None
+    if not np.all(np.isfinite(cov)) or cov[0, 0] <= 0:
+        return None
+    return cov
+
+
 def fit_series(
     series: SeriesData,
     coupling: float,
@@ -229,15 +250,18 @@ def fit_series(
         if best is not None:
             params["alpha"].value = best[1]
             res = lmfit.minimize(residual, params, method="leastsq", scale_covar=False)
-    if not res.success or res.covar is None:
+    covar = res.covar
+    if res.success and covar is None:  # lmfit's own step found no curvature: central differences
+        covar = _covariance_by_differences(residual, res.params, fit_offset)
+    if not res.success or covar is None:
         raise FitError(
             f"series {series.label}: the fit did not converge or its covariance is singular "
             f"({res.message})"
         )
     alpha = res.params["alpha"].value * ANGSTROM3_SI
     offset = res.params["offset"].value * c_scale if fit_offset else 0.0
-    conv = np.array([ANGSTROM3_SI, c_scale])[: res.covar.shape[0]]
-    cov = res.covar * np.outer(conv, conv)
+    conv = np.array([ANGSTROM3_SI, c_scale])[: covar.shape[0]]
+    cov = covar * np.outer(conv, conv)
     model, modulus = predict(alpha)
     model = model + offset
     r = white(model - y)

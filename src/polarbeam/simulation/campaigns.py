@@ -532,10 +532,10 @@ def simulate_scan_campaign(
 ) -> SimulationTruth:
     """Like :func:`simulate_campaign` but writes raw fringe scans (``[data] scans``).
 
+    The signal scans' visibility follows the velocity average's phasor modulus |Z(κ)|/|Z(0)|.
     With ``table_shape`` (and ``contrast_slope``) each series' beam is a measured table as in
     :func:`simulate_campaign` (``velocities.csv``; the scans' velocity cells hold the stated
-    table's mean and rms spread) and the signal scans' visibility follows the velocity model's
-    phasor modulus.
+    table's mean and rms spread).
 
     Compounds that give ``rotational_temperatures_K`` have their orientational term set by the
     rotational temperature (drawn with ``rotational_err_K``), and the scan table gets the
@@ -580,7 +580,7 @@ def simulate_scan_campaign(
             volts = np.repeat(ladder, scans_per_voltage)
             volts = volts * rng.choice([-1.0, 1.0], size=volts.size)
             rng.shuffle(volts)
-            groups = factors = None
+            groups = None
             v_cell, s_cell = velocity_m_s, spread_frac * velocity_m_s
             if table_shape is not None:
                 true_table = velocity_table(
@@ -599,8 +599,7 @@ def simulate_scan_campaign(
                 kind,
                 groups=groups,
             )
-            if table_shape is not None:
-                factors = modulus
+            factors = modulus  # the signal scans lose visibility as the phasor modulus
             truth_eff[(comp.name, t_stated)] = a_eff / alpha_si_from_a3(1.0)
             sim = scansim.simulate_series(
                 phases,
