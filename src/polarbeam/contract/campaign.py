@@ -57,6 +57,11 @@ from polarbeam.contract.schema import (
     SeriesData,
 )
 from polarbeam.contract.temperatures import row_rotational, series_rotational, thermometer_offset
+from polarbeam.contract.time_of_flight import (
+    TOF_BEAM_KEYS,
+    time_of_flight_settings,
+    velocity_models_with_traces,
+)
 from polarbeam.contract.velocity import (
     BEAM_KEYS,
     INSTRUMENT_VELOCITY_KEYS,
@@ -120,6 +125,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "computed_outputs": None,
         "recoil": None,
         "visibilities": None,
+        "time_of_flight": None,
         "velocities": None,
     },
     "analysis": {
@@ -137,7 +143,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
     },
     "source": {"thermometer_offset": "K"},
     "gratings": dict(GRATING_KEYS),  # polarbeam.contract.visibility
-    "beam": BEAM_KEYS,
+    "beam": {**BEAM_KEYS, **TOF_BEAM_KEYS},
 }
 # the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
 _SCHEMA["deflector"].update(
@@ -727,6 +733,7 @@ def load_campaign(path: str | Path) -> Campaign:
     settings = analysis_settings(doc, fname)
     offset = thermometer_offset(doc, fname)
     vset = velocity_settings(doc, fname, layout)
+    tof = time_of_flight_settings(doc, fname, layout)  # [data] time_of_flight, [beam] keys
     base = path.parent
     field_map, waveform = deflector_files(defl, base, fname, layout, model)
     data = doc.get("data", {})
@@ -753,11 +760,14 @@ def load_campaign(path: str | Path) -> Campaign:
         shifts_path = data_path(base, doc, "shifts", fname, required=not has_recoil)
         info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
         if shifts_path is not None:
-            tabled = vset.tables is not None
+            tabled = vset.tables is not None or tof is not None
             series, problems, ignored = _load_shifts(shifts_path, layout, table_notes, tabled)
         else:
             series, problems = {}, {}
-    if shifts_path is not None:  # tables, named shapes (polarbeam.contract.velocity)
+    if shifts_path is not None and tof is not None:  # fitted traces (contract.time_of_flight)
+        args = (vset, tof, layout, base, fname, shifts_path.name)
+        series = velocity_models_with_traces(series, problems, *args)
+    elif shifts_path is not None:  # tables, named shapes (polarbeam.contract.velocity)
         series = velocity_models(series, problems, vset, layout, base, fname, shifts_path.name)
 
     camp = Campaign(

@@ -116,6 +116,10 @@ class SeriesData:
     distribution: VelocityDistribution | None = None
     shape: str = "gaussian"  # [beam] velocity_distribution used with velocities/spreads
     spread_error: float = 0.0  # 1σ of the spread (velocity_spread_err_m_s), 0 when not stated
+    #: the fitted time-of-flight trace (polarbeam.contract.time_of_flight.TraceFit), when given,
+    #: and its velocity-scale error terms (tag, relative change per 1σ) for the separation
+    time_of_flight: Any = None
+    velocity_terms: tuple[tuple[str, float], ...] = ()
 
     @property
     def label(self) -> str:

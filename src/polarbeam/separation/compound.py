@@ -16,12 +16,14 @@ from polarbeam._util.provenance import provenance
 from polarbeam.constants import AMU, BOLTZMANN, alpha_a3_from_si, debye_from_si
 from polarbeam.contract.campaign import Campaign, CompoundData
 from polarbeam.contract.paths import input_files
+from polarbeam.contract.time_of_flight import uncertain_velocity
 from polarbeam.contract.velocity import velocity_curve, velocity_extra, velocity_warnings
 from polarbeam.errors import CompoundError
 from polarbeam.extraction.context import Context
 from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
 from polarbeam.extraction.visibility_check import visibility_departures
 from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResult
+from polarbeam.results.velocity import VelocityRecord
 from polarbeam.separation.debye import (
     alpha_with_known_dipole,
     debye_fit,
@@ -74,6 +76,7 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
     )
     results: list[SeriesResult] = []
     temps = []
+    units: dict = {}  # shared time-of-flight inputs (flight length, time offset) of the compound
     for s in cd.series:
         fit = fit_series(
             s,
@@ -90,6 +93,8 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
             if s.velocity.error > 0 and c.layout != "time-domain"
             else s.velocity.value
         )
+        if s.velocity_terms and c.layout != "time-domain":  # errors of a fitted trace
+            vel_u = uncertain_velocity(vel_u, s.velocity.value, s.velocity_terms, units)
         spread_u = (
             ufloat(float(np.mean(s.spreads)), s.spread_error, tag=f"velocity spread: {s.label}")
             if s.spread_error > 0 and c.layout != "time-domain"
@@ -132,7 +137,11 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 p_value=fit.p_value,
                 # the time-domain layout reads no velocities: NaN (null in JSON, blank in CSV)
                 velocity_m_s=math.nan if c.layout == "time-domain" else s.velocity.value,
-                velocity_err_m_s=math.nan if c.layout == "time-domain" else s.velocity.error,
+                velocity_err_m_s=(
+                    math.nan
+                    if c.layout == "time-domain"
+                    else float(getattr(vel_u, "std_dev", s.velocity.error))
+                ),
                 velocity_spread_m_s=(
                     math.nan if c.layout == "time-domain" else float(np.mean(s.spreads))
                 ),
@@ -140,6 +149,11 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 warnings=tuple(sw),
                 visibility=s.visibility,
                 visibility_err=s.visibility_err,
+                time_of_flight=(
+                    VelocityRecord.from_trace_fit(s.time_of_flight)
+                    if s.time_of_flight is not None
+                    else None
+                ),
                 extra=(
                     {
                         "rotational_temperature_K": s.rotational.value,
