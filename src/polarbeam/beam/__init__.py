@@ -1,5 +1,5 @@
 """The beam: velocity distributions (nodes and weights of the velocity average) and the particle's
-response to the field or to photons (Langevin–Debye α_eff; photon recoil).
+response to the field or to photons (Langevin–Debye α_eff, rigid rotors; photon recoil).
 """
 
 from polarbeam.beam.distributions import (
@@ -20,8 +20,12 @@ from polarbeam.beam.photon_recoil import (
     recoil_velocity,
 )
 from polarbeam.beam.response import (
+    RESPONSE_KINDS,
+    AsymmetricTop,
     LangevinDebye,
+    LinearRotor,
     ParticleResponse,
+    SymmetricTop,
 )
 from polarbeam.beam.velocity import (
     averaged_phasor_phase,
@@ -31,10 +35,14 @@ from polarbeam.beam.velocity import (
 
 __all__ = [
     "PLANCK",
+    "RESPONSE_KINDS",
     "SPEED_OF_LIGHT",
+    "AsymmetricTop",
     "GaussianVelocity",
     "LangevinDebye",
+    "LinearRotor",
     "ParticleResponse",
+    "SymmetricTop",
     "VelocityDistribution",
     "averaged_phasor_phase",
     "emission_factor",
