@@ -46,6 +46,7 @@ from polarbeam.contract.numerical import (
 from polarbeam.contract.paths import resolve_data_file
 from polarbeam.contract.plausibility import input_warnings
 from polarbeam.contract.recoil import load_recoil
+from polarbeam.contract.rotors import compound_response
 from polarbeam.contract.scans import reduce_scans_file, series_from_reduction
 from polarbeam.contract.schema import (
     OBSERVABLE_COLUMNS,
@@ -519,6 +520,7 @@ def _load_compounds(
             entry["dipole_known"] = _optional_measured(
                 table, i, "dipole_known_D", "dipole_known_err_D", si_from_debye, nonnegative=True
             )
+            entry["response"] = compound_response(table, i)
         except CompoundError as exc:
             if name in info and "problem" not in info[name]:
                 info[name]["problem"] = str(exc)
@@ -763,6 +765,7 @@ def load_campaign(path: str | Path) -> Campaign:
                 entry.get("alpha_known"),
                 entry.get("dipole_known"),
                 tuple(notes.get(name, ())),
+                entry.get("response"),
             )
         )
     in_recoil = set(recoil.compound_names) if recoil is not None else set()

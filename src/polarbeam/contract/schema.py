@@ -131,3 +131,5 @@ class CompoundData:
     alpha_known: Measured | None = None
     dipole_known: Measured | None = None
     notes: tuple[str, ...] = ()  # e.g. scans dropped by the fringe reduction
+    #: the particle response (compounds.csv rotor columns; contract/rotors.py): None = ergodic
+    response: object | None = None
