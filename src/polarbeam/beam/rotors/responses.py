@@ -6,9 +6,9 @@ state is the α of the sum). Written as α + R·μ²/(3kT), R is the ratio to La
 (:meth:`ratio`). How R is computed (``method = "auto"``):
 
 * ``linear`` — diagonalisation (tridiagonal per M) unless the rotor is hot and the field weak
-  (J_max > 150 and μE/kT ≤ 0.02): then the exact second-order sum (fast path);
-* ``symmetric`` — diagonalisation per (K, M) unless J_max > 60 and μE/kT ≤ 0.02: then the
-  exact second-order sum (→ the closed form R(ρ) as kT/B → ∞);
+  (J_max > 150 and μE/kT ≤ 0.02) or J_max > 400: then the exact second-order sum (fast path);
+* ``symmetric`` — diagonalisation per (K, M) unless J_max > 60 and μE/kT ≤ 0.02, or
+  J_max > 100: then the exact second-order sum (→ the closed form R(ρ) as kT/B → ∞);
 * ``asymmetric`` — dense diagonalisation per M while J_max ≤ 26, else the classical limit
   (hot: μE between the asymmetry doublets and kT).
 
@@ -51,11 +51,11 @@ ROTOR_KINDS = ("linear", "symmetric", "asymmetric")
 WEAK_FIELD = 0.02
 LINEAR_FULL_J_MAX = 150
 SYMMETRIC_FULL_J_MAX = 60
+#: beyond these the diagonalisation is too costly whatever the field: the second-order sums
+#: (their error grows as ≈ 0.45 μE/kT for linear rotors, ≈ 0.08 μE/kT for prolate tops)
+LINEAR_HARD_J_MAX = 400
+SYMMETRIC_HARD_J_MAX = 100
 ASYMMETRIC_FULL_J_MAX = 26
-
-
-def _weak_ratio_or_none(kt: float, mu_e: float, j_max: int, limit: int):
-    return None if (j_max <= limit or mu_e > WEAK_FIELD * kt) else True
 
 
 @dataclass(frozen=True)
@@ -172,16 +172,25 @@ def _ld(mu: float, t: float) -> float:
     return mu**2 / (3.0 * BOLTZMANN * t)
 
 
+@lru_cache(maxsize=256)
+def _weak(b_hz: float, axis_hz: float | None, t: float) -> float:
+    return weak_field_ratio(
+        PLANCK * b_hz, None if axis_hz is None else PLANCK * axis_hz, BOLTZMANN * t
+    )
+
+
+def _use_fast(method, kt, mu_e, j_max, full_limit, hard_limit) -> bool:
+    if method in ("fast", "full"):
+        return method == "fast" or mu_e == 0.0
+    return mu_e == 0.0 or j_max > hard_limit or (j_max > full_limit and mu_e <= WEAK_FIELD * kt)
+
+
 @lru_cache(maxsize=4096)
 def _linear_ratio(b_hz, mu, t, field, method) -> float:
     b, kt = PLANCK * b_hz, BOLTZMANN * t
     j_max = truncation_j_max(kt, b, mu * field)
-    fast = method == "fast" or (
-        method == "auto"
-        and (field == 0.0 or _weak_ratio_or_none(kt, mu * field, j_max, LINEAR_FULL_J_MAX))
-    )
-    if fast or field == 0.0:
-        return weak_field_ratio(b, None, kt)
+    if _use_fast(method, kt, mu * field, j_max, LINEAR_FULL_J_MAX, LINEAR_HARD_J_MAX):
+        return _weak(b_hz, None, t)
     return linear_states(b, mu, field, kt, j_max).mean_mu_eff / field / _ld(mu, t)
 
 
@@ -189,12 +198,8 @@ def _linear_ratio(b_hz, mu, t, field, method) -> float:
 def _symmetric_ratio(b_hz, axis_hz, mu, t, field, method) -> float:
     b, ba, kt = PLANCK * b_hz, PLANCK * axis_hz, BOLTZMANN * t
     j_max = truncation_j_max(kt, min(b, ba), mu * field)
-    fast = method == "fast" or (
-        method == "auto"
-        and (field == 0.0 or _weak_ratio_or_none(kt, mu * field, j_max, SYMMETRIC_FULL_J_MAX))
-    )
-    if fast or field == 0.0:
-        return weak_field_ratio(b, ba, kt)
+    if _use_fast(method, kt, mu * field, j_max, SYMMETRIC_FULL_J_MAX, SYMMETRIC_HARD_J_MAX):
+        return _weak(b_hz, axis_hz, t)
     return symmetric_states(b, ba, mu, field, kt, j_max).mean_mu_eff / field / _ld(mu, t)
 
 
