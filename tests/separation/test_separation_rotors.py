@@ -134,3 +134,20 @@ def test_rigid_round_trip_pulls_and_langevin_debye_fails(tmp_path):
     # the Langevin–Debye analysis misses the symmetric tops' dipoles (R = 0.82 and 0.57)
     assert np.mean(ld_mu["ST-1"]) < -2.0 and np.mean(ld_mu["ST-2"]) < -4.0
     assert np.mean(ld_mu["LR-2"]) < -1.0  # the cold linear rotor: R = 0.95–0.99
+
+
+@pytest.mark.slow
+def test_cold_beam_example_matches_its_readme():
+    # the numbers quoted in examples/cold-beam/README.md (rotor model as given)
+    from pathlib import Path
+
+    camp = Path(__file__).resolve().parents[2] / "examples" / "cold-beam" / "campaign.toml"
+    by = {c.compound: c for c in analyze(camp).compounds}
+    quoted = {"CB-301": (1.070, 0.026, "linear"), "CB-302": (1.591, 0.040, "symmetric")}
+    for name, (mu, err, kind) in quoted.items():
+        c = by[name]
+        assert c.extra["response"] == kind
+        assert debye_from_si(c.dipole.nominal_value) == pytest.approx(mu, abs=6e-4)
+        assert debye_from_si(c.dipole.std_dev) == pytest.approx(err, abs=6e-4)
+    assert [round(s.extra["ld_ratio"], 3) for s in by["CB-302"].series] == [0.739, 0.773, 0.789]
+    assert by["CB-303"].extra["response"] == "ergodic"
