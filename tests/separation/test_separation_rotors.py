@@ -10,6 +10,7 @@ a Langevin–Debye reading of the same data misses the dipole of symmetric tops 
 from __future__ import annotations
 
 import csv
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -139,8 +140,6 @@ def test_rigid_round_trip_pulls_and_langevin_debye_fails(tmp_path):
 @pytest.mark.slow
 def test_cold_beam_example_matches_its_readme():
     # the numbers quoted in examples/cold-beam/README.md (rotor model as given)
-    from pathlib import Path
-
     camp = Path(__file__).resolve().parents[2] / "examples" / "cold-beam" / "campaign.toml"
     by = {c.compound: c for c in analyze(camp).compounds}
     quoted = {"CB-301": (1.070, 0.026, "linear"), "CB-302": (1.591, 0.040, "symmetric")}
