@@ -20,33 +20,18 @@ import numpy as np
 from scipy.optimize import least_squares
 
 from polarbeam.beam.distributions import GaussianVelocity
-from polarbeam.beam.rotors.profiles import expected_counts, reweighted_populations
+from polarbeam.beam.rotors.profiles import (
+    Profile,
+    ProfileSeries,
+    expected_counts,
+    reweighted_populations,
+)
 from polarbeam.constants import ANGSTROM3_SI, si_from_debye
 from polarbeam.errors import CompoundError, FitError
 
 __all__ = ["Profile", "ProfileFit", "ProfileSeries", "fit_profiles", "profile_model"]
 
 _UM = 1e-6
-
-
-@dataclass(frozen=True)
-class Profile:
-    """One recorded profile: voltage (V), bin centres (m) and counts."""
-
-    voltage: float
-    positions: np.ndarray
-    counts: np.ndarray
-
-
-@dataclass(frozen=True)
-class ProfileSeries:
-    """The profiles of one compound at one source temperature."""
-
-    label: str
-    velocity: float
-    spread: float
-    profiles: tuple[Profile, ...]
-    rotational_k: float | None = None  # stated rotational temperature; None: fitted
 
 
 @dataclass(frozen=True)

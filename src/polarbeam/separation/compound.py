@@ -26,6 +26,7 @@ from polarbeam.separation.debye import (
     dipole_from_known_alpha,
 )
 from polarbeam.separation.dipole import INTERVAL_CL, DipoleStatement, dipole_statement
+from polarbeam.separation.profiles import profile_result
 from polarbeam.separation.rotors import dipole_exponent, rotor_temperatures
 
 __all__ = [
@@ -56,6 +57,8 @@ def separate(cd: CompoundData, c: Campaign, ctx: Context) -> CompoundResult:
         return _failed(cd, f"compound {cd.name!r}: no mass")
     mass_u = cd.mass.value / AMU
     try:
+        if cd.profiles:  # whole beam profiles: the Poisson profile fit (separation/profiles.py)
+            return profile_result(cd, c, ctx, mass_u)
         return _separate(cd, c, ctx, mass_u)
     except CompoundError as exc:
         return _failed(cd, str(exc), mass_u)

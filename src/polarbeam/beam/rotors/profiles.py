@@ -16,13 +16,40 @@ made on a fine grid of displacements (cloud-in-cell weights), then convolved wit
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.special import erf
 
 from polarbeam.constants import BOLTZMANN
 
-__all__ = ["displacement_density", "expected_counts", "reweighted_populations"]
+__all__ = [
+    "Profile",
+    "ProfileSeries",
+    "displacement_density",
+    "expected_counts",
+    "reweighted_populations",
+]
+
+
+@dataclass(frozen=True)
+class Profile:
+    """One recorded profile: voltage (V), bin centres (m) and counts."""
+
+    voltage: float
+    positions: np.ndarray
+    counts: np.ndarray
+
+
+@dataclass(frozen=True)
+class ProfileSeries:
+    """The profiles of one compound at one source temperature."""
+
+    label: str
+    velocity: float
+    spread: float
+    profiles: tuple[Profile, ...]
+    rotational_k: float | None = None  # stated rotational temperature; None: fitted
 
 
 def reweighted_populations(states, t_ref_k: float, t_k: float) -> np.ndarray:
