@@ -46,7 +46,9 @@ from polarbeam.contract.numerical import (
 )
 from polarbeam.contract.paths import resolve_data_file
 from polarbeam.contract.plausibility import input_warnings
+from polarbeam.contract.profiles import load_profiles
 from polarbeam.contract.recoil import load_recoil
+from polarbeam.contract.rotors import compound_response
 from polarbeam.contract.scans import reduce_scans_file, series_from_reduction
 from polarbeam.contract.schema import (
     OBSERVABLE_COLUMNS,
@@ -127,6 +129,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "visibilities": None,
         "time_of_flight": None,
         "velocities": None,
+        "profiles": None,
     },
     "analysis": {
         "velocity_nodes": None,
@@ -552,6 +555,7 @@ def _load_compounds(
             entry["dipole_known"] = _optional_measured(
                 table, i, "dipole_known_D", "dipole_known_err_D", si_from_debye, nonnegative=True
             )
+            entry["response"] = compound_response(table, i)
         except CompoundError as exc:
             if name in info and "problem" not in info[name]:
                 info[name]["problem"] = str(exc)
@@ -740,6 +744,7 @@ def load_campaign(path: str | Path) -> Campaign:
     compounds_path = data_path(base, doc, "compounds", fname)
     structures = load_structures(base, doc, fname)
     reduction = None
+    profiles: dict = {}
     notes: dict[str, list[str]] = {}
     ignored: tuple[str, ...] = ()
     table_notes: list[str] = []
@@ -757,9 +762,16 @@ def load_campaign(path: str | Path) -> Campaign:
         series, problems, notes = series_from_reduction(reduction)
         problems.update(bad)
     else:
-        shifts_path = data_path(base, doc, "shifts", fname, required=not has_recoil)
+        profiles_path = data_path(base, doc, "profiles", fname, required=False)
+        shifts_path = data_path(
+            base, doc, "shifts", fname, required=not (has_recoil or "profiles" in data)
+        )
         info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
-        if shifts_path is not None:
+        if profiles_path is not None:  # whole profiles (contract/profiles.py)
+            profiles, problems = load_profiles(profiles_path, layout, fname)
+            series = {name: () for name in profiles}
+            shifts_path = None
+        elif shifts_path is not None:
             tabled = vset.tables is not None or tof is not None
             series, problems, ignored = _load_shifts(shifts_path, layout, table_notes, tabled)
         else:
@@ -815,6 +827,8 @@ def load_campaign(path: str | Path) -> Campaign:
                 entry.get("alpha_known"),
                 entry.get("dipole_known"),
                 tuple(notes.get(name, ())),
+                entry.get("response"),
+                profiles.get(name, ()) if problem is None else (),
             )
         )
     in_recoil = set(recoil.compound_names) if recoil is not None else set()

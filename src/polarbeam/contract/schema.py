@@ -142,3 +142,7 @@ class CompoundData:
     alpha_known: Measured | None = None
     dipole_known: Measured | None = None
     notes: tuple[str, ...] = ()  # e.g. scans dropped by the fringe reduction
+    #: the particle response (compounds.csv rotor columns; contract/rotors.py): None = ergodic
+    response: object | None = None
+    #: whole beam profiles ([data] profiles; contract/profiles.py), one ProfileSeries per T
+    profiles: tuple = ()

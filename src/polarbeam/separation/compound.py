@@ -7,12 +7,14 @@ numerical failure marks only that compound ``failed``. The structure cross-check
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
 from uncertainties import ufloat
 
 from polarbeam._util.provenance import provenance
+from polarbeam.beam.response import LangevinDebye
 from polarbeam.constants import AMU, BOLTZMANN, alpha_a3_from_si, debye_from_si
 from polarbeam.contract.campaign import Campaign, CompoundData
 from polarbeam.contract.paths import input_files
@@ -30,6 +32,8 @@ from polarbeam.separation.debye import (
     dipole_from_known_alpha,
 )
 from polarbeam.separation.dipole import INTERVAL_CL, DipoleStatement, dipole_statement
+from polarbeam.separation.profiles import profile_result
+from polarbeam.separation.rotors import dipole_exponent, rotor_temperatures
 
 __all__ = [
     "DIPOLE_PLAUSIBLE_MAX_D",
@@ -59,6 +63,8 @@ def separate(cd: CompoundData, c: Campaign, ctx: Context) -> CompoundResult:
         return _failed(cd, f"compound {cd.name!r}: no mass")
     mass_u = cd.mass.value / AMU
     try:
+        if cd.profiles:  # whole beam profiles: the Poisson profile fit (separation/profiles.py)
+            return profile_result(cd, c, ctx, mass_u)
         return _separate(cd, c, ctx, mass_u)
     except CompoundError as exc:
         return _failed(cd, str(exc), mass_u)
@@ -180,6 +186,28 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
             f"({distinct.pop():g} K); expected at least two different temperatures to separate "
             "α and μ"
         )
+    response = cd.response if cd.response is not None else LangevinDebye()
+    rigid = response.name != "ergodic"
+    t_orient = temps  # the rotational temperatures (temps become T_s/R_s for a rigid rotor)
+    if rigid:  # α_eff = α + R_s μ²/(3kT_s): the Debye line in R_s/T_s (separation/rotors.py)
+        temps, ratios, _mu = rotor_temperatures(
+            response, results, temps, ctx.field_per_volt, st.fit_offset, cd
+        )
+        results = [
+            dataclasses.replace(r, extra={**r.extra, "ld_ratio": q})
+            for r, q in zip(results, ratios, strict=True)
+        ]
+        messages.append(
+            f"rigid {response.name} rotor: α_eff = α + R·μ²/3kT with R = "
+            + ", ".join(f"{q:.3f}" for q in ratios)
+            + " (ratio to Langevin–Debye per series)"
+            + (
+                ""
+                if ctx.field_per_volt
+                else f"; the field magnitude is unknown for the '{c.model}' deflector: R in the "
+                "weak-field limit (state field_per_volt)"
+            )
+        )
     if len(results) >= 2:
         fit = debye_fit([r.alpha_eff for r in results], temps)
         alpha, mu2, chi2, ndof = fit.alpha, fit.mu2, fit.chi2, fit.ndof
@@ -219,6 +247,8 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         )
     elif mu2 is not None:
         statement = dipole_statement(mu2, limit_cl=st.upper_limit_cl)
+        if rigid and statement.value is not None:  # R depends on μ: slope ∝ μⁿ, n ≤ 2
+            statement = _rescaled(statement, response, results, t_orient, ctx, st)
         dipole, upper = statement.value, statement.limit
         if upper is not None:
             messages.append(
@@ -251,12 +281,12 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
     orientation, note = orientation_ratio(ctx, c.model, results, dipole, upper, statement)
     if note:
         messages.append(note)
-    if orientation is not None and orientation > st.orientation_warning:
+    if orientation is not None and orientation > st.orientation_warning and not rigid:
         vmax = max(float(np.max(np.abs(r.voltages))) for r in results)
         tmin = min(orientation_temperature_K(r) for r in results)
         warnings.append(
             f"μE/kT = {orientation:.2f} at {vmax:g} V and {tmin:g} K: the weak-field "
-            "Langevin–Debye limit is not well satisfied"
+            "Langevin–Debye limit is not well satisfied; strong field: use a rotor model"
         )
     status = "warning" if warnings else "ok"
     message = "; ".join(messages + warnings) or "ok"
@@ -276,7 +306,22 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         debye_chi2=chi2,
         debye_ndof=ndof,
         warnings=tuple(warnings),
-        extra={"mu_E_over_kT": orientation},
+        extra={"mu_E_over_kT": orientation, "response": response.name},
+    )
+
+
+def _rescaled(statement, response, results, temps, ctx, st):
+    """The dipole statement with its errors scaled by 2/n̄ (separation/rotors.py)."""
+    mu = statement.value.nominal_value
+    n = dipole_exponent(response, mu, results, temps, ctx.field_per_volt, st.fit_offset)
+    if not (n > 0.1 and abs(n - 2.0) > 1e-3):
+        return statement
+    f = 2.0 / n
+    return dataclasses.replace(
+        statement,
+        lower=max(mu - f * (mu - statement.lower), 0.0),
+        upper=mu + f * (statement.upper - mu),
+        value=mu + (statement.value - mu) * f,
     )
 
 
