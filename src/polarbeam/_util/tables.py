@@ -44,6 +44,17 @@ class Table:
     def name(self) -> str:
         return self.path.name
 
+    def check_row(self, i: int) -> str:
+        """The compound name of row ``i``; :class:`RowValueError` (a compound error) for a row
+        with the wrong number of cells or an empty compound name, naming the file and line."""
+        row = self.rows[i]
+        if "__bad__" in row:
+            raise RowValueError(f"{self.name} line {self.lines[i]}: {row['__bad__']}")
+        name = row.get("compound", "").strip(CELL_BLANKS)
+        if not name:
+            raise RowValueError(f"{self.name} line {self.lines[i]}: empty compound name")
+        return name
+
     def number(
         self,
         i: int,

@@ -484,10 +484,7 @@ def _load_compounds(
         name = row.get("compound", "").strip(CELL_BLANKS)
         entry: dict[str, Any] = {"extra": {k: v for k, v in row.items() if k != "__bad__"}}
         try:
-            if "__bad__" in row:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
-            if not name:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            table.check_row(i)
             if name in info:
                 raise CompoundError(
                     f"{table.name} line {table.lines[i]}: compound {name!r} listed twice"
@@ -547,10 +544,7 @@ def _load_shifts(
         if name in problems:
             continue
         try:
-            if "__bad__" in row:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
-            if not name:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            table.check_row(i)
             num = table.number
             if layout == "time-domain":
                 v = dv = sv = 0.0  # placeholders, never used

@@ -48,10 +48,7 @@ def load_profiles(path: Path, layout: str, fname: str):
         if name in problems:
             continue
         try:
-            if "__bad__" in row:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
-            if not name:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            table.check_row(i)
             num = table.number
             temp = num(i, "temperature_K", positive=True)
             g = groups.setdefault(name, {}).setdefault(

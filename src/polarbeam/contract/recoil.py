@@ -454,10 +454,7 @@ def load_recoil(
         if name in problems:
             continue
         try:
-            if "__bad__" in row:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
-            if not name:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            table.check_row(i)
             rec, drop = _row(table, i, by_name[laser], timing)
             temp = table.number(i, "temperature_K", positive=True)
         except CompoundError as exc:

@@ -162,10 +162,7 @@ def load_traces(path: Path) -> tuple[dict[tuple[str, float], Trace], dict[str, s
         if name in problems:
             continue
         try:
-            if "__bad__" in row:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
-            if not name:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            table.check_row(i)
             temp = table.number(i, "temperature_K", positive=True)
             t = table.number(i, "time_s")
             raw = (row.get("counts") or "").strip()

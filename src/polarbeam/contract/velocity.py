@@ -132,10 +132,7 @@ def load_velocity_tables(path: Path):
         if name in problems:
             continue
         try:
-            if "__bad__" in row:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
-            if not name:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            table.check_row(i)
             temp = table.number(i, "temperature_K", positive=True)
             rec = (
                 table.number(i, "velocity_m_s"),

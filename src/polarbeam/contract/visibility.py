@@ -317,10 +317,7 @@ def load_visibilities(
         if name in problems:
             continue
         try:
-            if "__bad__" in row:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: {row['__bad__']}")
-            if not name:
-                raise CompoundError(f"{table.name} line {table.lines[i]}: empty compound name")
+            table.check_row(i)
             rec = _row(table, i)
         except CompoundError as exc:
             problems[name] = str(exc)
