@@ -17,7 +17,7 @@ derivative of the least-squares solution.  :func:`alpha_eff_with_errors` assembl
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import lmfit
 import numpy as np
@@ -32,7 +32,14 @@ from polarbeam.errors import FitError
 from polarbeam.extraction.whitening import whitener
 from polarbeam.uncertain import FIT_TAG
 
-__all__ = ["SeriesFit", "alpha_eff_with_errors", "fit_series", "observable_model"]
+__all__ = [
+    "CURVE_POINTS",
+    "SeriesFit",
+    "alpha_eff_with_errors",
+    "fit_series",
+    "model_curve",
+    "observable_model",
+]
 
 
 def observable_model(
@@ -84,6 +91,9 @@ class SeriesFit:
     modulus: np.ndarray
     dalpha_dvelocity: float  # ∂α̂/∂v̄ (C·m²/V per m/s), 0 for the time domain
     error_scale: float = 1.0
+    #: the fitted model on a dense voltage grid (for figures): voltages (V) and observable
+    curve_voltages: np.ndarray = field(default_factory=lambda: np.empty(0))
+    curve: np.ndarray = field(default_factory=lambda: np.empty(0))
 
     @property
     def reduced_chi2(self) -> float:
@@ -178,6 +188,7 @@ def fit_series(
         J = np.column_stack(jac)
         dtheta = -np.linalg.solve(J.T @ J, J.T @ drdv)
         dadv = float(dtheta[0])
+    curve_v, curve = model_curve(alpha, offset, V, com, vel, spr, kind, nodes)
     return SeriesFit(
         alpha_si=alpha,
         offset=offset,
@@ -189,7 +200,24 @@ def fit_series(
         modulus=modulus,
         dalpha_dvelocity=dadv,
         error_scale=scale,
+        curve_voltages=curve_v,
+        curve=curve,
     )
+
+
+#: Points of the dense model curve stored with every series fit (figures draw it).
+CURVE_POINTS = 160
+
+
+def model_curve(alpha_si, offset, voltages, coupling_over_mass, velocities, spreads, kind, nodes):
+    """The fitted model on :data:`CURVE_POINTS` voltages from the lowest to the highest measured
+    one, with the series' median velocity class (the one class of the usual series)."""
+    V = np.asarray(voltages, dtype=float)
+    grid = np.linspace(float(V.min()), float(V.max()), CURVE_POINTS)
+    vel = np.full_like(grid, float(np.median(velocities))) if np.size(velocities) else velocities
+    spr = np.full_like(grid, float(np.median(spreads))) if np.size(spreads) else spreads
+    model = observable_model(alpha_si, grid, coupling_over_mass, vel, spr, kind, nodes)[0]
+    return grid, model + offset
 
 
 def alpha_eff_with_errors(fit: SeriesFit, label: str, coupling_ratio, mass_ratio, velocity_u):

@@ -78,11 +78,18 @@ def _csv(df, first: tuple[str, ...]) -> str:
 
 
 def write_results(result: CampaignResult, out: str | Path) -> None:
-    """Write ``series.csv``, ``properties.csv``, ``results.json`` and ``report.md`` atomically."""
+    """Write ``series.csv``, ``properties.csv``, ``results.json`` and ``report.md`` atomically.
+
+    A campaign without deflection compounds (recoil or visibility data only) gets no
+    ``series.csv`` / ``properties.csv``: its tables are ``recoil.csv`` / ``optical.csv``."""
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
-    write_text_atomic(out / "series.csv", _csv(result.series, SERIES_COLUMNS))
-    write_text_atomic(out / "properties.csv", _csv(result.properties, PROPERTY_COLUMNS))
+    only_other = not result.compounds and (
+        getattr(result, "recoil", None) is not None or getattr(result, "optical", None) is not None
+    )
+    if not only_other:
+        write_text_atomic(out / "series.csv", _csv(result.series, SERIES_COLUMNS))
+        write_text_atomic(out / "properties.csv", _csv(result.properties, PROPERTY_COLUMNS))
     write_text_atomic(
         out / "results.json",
         json.dumps(_clean(result.summary()), indent=1, ensure_ascii=False, allow_nan=False) + "\n",
