@@ -3,8 +3,11 @@ response to the field or to photons (Langevin–Debye α_eff; photon recoil).
 """
 
 from polarbeam.beam.distributions import (
+    FluxVelocity,
     GaussianVelocity,
+    TabulatedVelocity,
     VelocityDistribution,
+    distribution_from_moments,
 )
 from polarbeam.beam.photon_recoil import (
     PLANCK,
@@ -32,11 +35,14 @@ from polarbeam.beam.velocity import (
 __all__ = [
     "PLANCK",
     "SPEED_OF_LIGHT",
+    "FluxVelocity",
     "GaussianVelocity",
     "LangevinDebye",
     "ParticleResponse",
+    "TabulatedVelocity",
     "VelocityDistribution",
     "averaged_phasor_phase",
+    "distribution_from_moments",
     "emission_factor",
     "fringe_nodes",
     "gaussian_effective_area",

@@ -57,6 +57,15 @@ from polarbeam.contract.schema import (
     SeriesData,
 )
 from polarbeam.contract.temperatures import row_rotational, series_rotational, thermometer_offset
+from polarbeam.contract.velocity import (
+    BEAM_KEYS,
+    INSTRUMENT_VELOCITY_KEYS,
+    VelocitySettings,
+    row_velocity_extras,
+    series_velocity_extras,
+    velocity_models,
+    velocity_settings,
+)
 from polarbeam.contract.visibility import GRATING_KEYS, load_visibilities
 from polarbeam.errors import CompoundError, InputError, QuantityError
 from polarbeam.instrument.deflectors import (
@@ -84,6 +93,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "grating_positions": "m",
         "detector_position": "m",
         "pulse_times": "s",
+        **INSTRUMENT_VELOCITY_KEYS,
     },
     "deflector": {
         "model": None,
@@ -110,6 +120,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "computed_outputs": None,
         "recoil": None,
         "visibilities": None,
+        "velocities": None,
     },
     "analysis": {
         "velocity_nodes": None,
@@ -126,6 +137,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
     },
     "source": {"thermometer_offset": "K"},
     "gratings": dict(GRATING_KEYS),  # polarbeam.contract.visibility
+    "beam": BEAM_KEYS,
 }
 # the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
 _SCHEMA["deflector"].update(
@@ -175,6 +187,7 @@ class Campaign:
     table_notes: tuple[str, ...] = ()  # comment lines skipped above the headers of the tables
     warnings: tuple[str, ...] = ()  # implausible inputs (likely unit slips), one line each
     thermometer_offset: Measured | None = None  # [source]: one error common to every series' T
+    velocity: VelocitySettings = field(default_factory=VelocitySettings)  # [beam], tables
 
     @property
     def observable(self) -> str:
@@ -542,7 +555,9 @@ def _load_compounds(
     return info
 
 
-def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
+def _load_shifts(
+    path: Path, layout: str, table_notes: list[str] | None = None, tabled: bool = False
+):
     obs, obs_err = OBSERVABLE_COLUMNS[layout]
     required = (*SHIFT_COLUMNS_COMMON, obs, obs_err)
     if layout == "time-domain":
@@ -573,10 +588,12 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
             num = table.number
             if layout == "time-domain":
                 v = dv = sv = 0.0  # placeholders, never used
-            else:
-                v = num(i, "velocity_m_s", positive=True)
+            else:  # with [data] velocities, empty means "from the table" (checked later)
+                v = num(i, "velocity_m_s", positive=True, default=np.nan if tabled else None)
                 dv = num(i, "velocity_err_m_s", nonnegative=True)
-                sv = num(i, "velocity_spread_m_s", nonnegative=True)
+                sv = num(
+                    i, "velocity_spread_m_s", nonnegative=True, default=np.nan if tabled else None
+                )
             rec = (
                 num(i, "voltage_V"),
                 num(i, obs),
@@ -587,6 +604,7 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
                 num(i, "temperature_err_K", nonnegative=True),
                 table.lines[i],
                 row_rotational(table, i) if rotational else ("", None, 0.0),
+                row_velocity_extras(table, i),
             )
             temp = num(i, "temperature_K", positive=True)
         except CompoundError as exc:
@@ -617,7 +635,9 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
                 SeriesData(
                     compound=name,
                     temperature=Measured(temp, float(np.mean(arr[:, 6]))),
-                    velocity=Measured(float(np.mean(arr[:, 3])), float(np.mean(arr[:, 4]))),
+                    velocity=Measured(  # 0: empty cells, from the velocity table
+                        float(np.nan_to_num(np.mean(arr[:, 3]))), float(np.mean(arr[:, 4]))
+                    ),
                     velocities=arr[:, 3],
                     spreads=arr[:, 5],
                     voltages=volts,
@@ -625,6 +645,7 @@ def _load_shifts(path: Path, layout: str, table_notes: list[str] | None = None):
                     errors=arr[:, 2],
                     lines=tuple(r[7] for r in recs),
                     rotational=rot,
+                    **series_velocity_extras([r[9] for r in recs]),
                 )
             )
         else:
@@ -705,6 +726,7 @@ def load_campaign(path: str | Path) -> Campaign:
     stated = stated_inputs(doc, fname, layout, model)
     settings = analysis_settings(doc, fname)
     offset = thermometer_offset(doc, fname)
+    vset = velocity_settings(doc, fname, layout)
     base = path.parent
     field_map, waveform = deflector_files(defl, base, fname, layout, model)
     data = doc.get("data", {})
@@ -731,9 +753,12 @@ def load_campaign(path: str | Path) -> Campaign:
         shifts_path = data_path(base, doc, "shifts", fname, required=not has_recoil)
         info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
         if shifts_path is not None:
-            series, problems, ignored = _load_shifts(shifts_path, layout, table_notes)
+            tabled = vset.tables is not None
+            series, problems, ignored = _load_shifts(shifts_path, layout, table_notes, tabled)
         else:
             series, problems = {}, {}
+    if shifts_path is not None:  # tables, named shapes (polarbeam.contract.velocity)
+        series = velocity_models(series, problems, vset, layout, base, fname, shifts_path.name)
 
     camp = Campaign(
         path=path,
@@ -832,6 +857,7 @@ def load_campaign(path: str | Path) -> Campaign:
         table_notes=tuple(table_notes),
         warnings=warnings,
         thermometer_offset=offset,
+        velocity=vset,
     )
 
 

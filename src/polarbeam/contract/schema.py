@@ -8,6 +8,7 @@ from typing import Any
 
 import numpy as np
 
+from polarbeam.beam.distributions import VelocityDistribution
 from polarbeam.errors import InputError
 from polarbeam.quantities import Measured
 
@@ -110,6 +111,11 @@ class SeriesData:
     visibility: np.ndarray | None = None
     visibility_err: np.ndarray | None = None
     rotational: Measured | None = None  # rotational temperature in the deflector, when stated
+    #: the series' measured distribution (a velocities.csv table or a time-of-flight fit); when
+    #: set it replaces ``velocities``/``spreads`` (which then hold its mean and rms spread)
+    distribution: VelocityDistribution | None = None
+    shape: str = "gaussian"  # [beam] velocity_distribution used with velocities/spreads
+    spread_error: float = 0.0  # 1σ of the spread (velocity_spread_err_m_s), 0 when not stated
 
     @property
     def label(self) -> str:

@@ -22,6 +22,7 @@ from polarbeam.instrument.deflectors import coupling
 
 __all__ = [
     "Context",
+    "acceleration_kappa",
     "build_context",
     "field_factor_sensitivities",
     "log_sensitivities",
@@ -42,6 +43,10 @@ class Context:
     #: ``[source] thermometer_offset`` as one uncertain number tagged "source: thermometer
     #: offset", shared by every compound (0.0 when not stated)
     temperature_offset: object = 0.0
+    #: Talbot–Lau phase constant κ₀ = 2π·a·W_tot/d of ``[instrument] background_acceleration``
+    #: (rad·m²/s²; every class turns by κ₀/v² at zero field), an uncertain number tagged
+    #: "instrument: background acceleration" when a has an error (0.0 when not stated)
+    kappa_zero: object = 0.0
 
 
 def build_context(c: Campaign) -> Context:
@@ -70,7 +75,28 @@ def build_context(c: Campaign) -> Context:
         shift = shift + s_key * (u - m.value)
     ratio = 1.0 / (1.0 + shift)
     fpv = deflector.field_per_volt
-    return Context(layout, deflector, c0, ratio, sens, fpv, temperature_offset(c))
+    return Context(
+        layout,
+        deflector,
+        c0,
+        ratio,
+        sens,
+        fpv,
+        temperature_offset(c),
+        acceleration_kappa(c, layout),
+    )
+
+
+def acceleration_kappa(c: Campaign, layout):
+    """κ₀ = 2π·a·W_tot/d with W_tot = ∫ w dz over the interferometer, L2(L1 + L2)/2, for
+    ``[instrument] background_acceleration`` a (an uncertain number when a has an error)."""
+    m = getattr(c.velocity, "acceleration", None)
+    if m is None or c.layout != "talbot-lau":
+        return 0.0
+    per_a = layout.scale * layout.weight_integral(layout.z1, layout.z3)
+    if m.error <= 0:
+        return per_a * m.value
+    return per_a * ufloat(m.value, m.error, tag=input_label("instrument.background_acceleration"))
 
 
 def temperature_offset(c: Campaign):

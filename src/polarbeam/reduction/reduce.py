@@ -443,7 +443,7 @@ def _estimate_noise(
             noise[key] = pooled_est
             if noise_scope == "series" and noise_model != "none" and n_sig[s]:
                 fallback[s] = (
-                    f"{source}: {key[0]} at {key[1]:g} K has {refs.count[s]} usable "
+                    f"{source}: series ({key[0]}, {key[1]:g} K) has {refs.count[s]} usable "
                     f"reference(s); excess phase noise taken from all series pooled"
                 )
         else:

@@ -42,6 +42,7 @@ __all__ = [
     "styled",
     "to_png",
     "to_svg",
+    "velocity_figure",
     "visibility_figure",
 ]
 
@@ -554,12 +555,48 @@ def parity_figure(result: CampaignResult):
     return fig
 
 
+@_styled
+def velocity_figure(c: CompoundResult):
+    """The velocity distribution of every series (density; a table's classes as steps) and its
+    relative fringe contrast where stated. Drawn when some series is not the default Gaussian."""
+    rows = [s for s in c.series if getattr(s, "velocity_curve", None) is not None]
+    if not rows or not any("velocity_distribution" in s.extra for s in c.series):
+        return None
+    fig, ax = _new(5.6, 3.0)
+    twin = None
+    for i, s in enumerate(rows):
+        v, p, con = (
+            np.asarray(x, dtype=float) if x is not None else None for x in s.velocity_curve
+        )
+        col = _CYCLE[i % len(_CYCLE)]
+        kind = s.extra.get("velocity_distribution", "gaussian")
+        if not np.all(np.isfinite(p)):
+            ax.axvline(float(v[0]), color=col, lw=1.1, label=f"{_tname(s)} (one velocity)")
+            continue
+        style = {"where": "mid"} if kind == "table" else {}
+        draw = ax.step if kind == "table" else ax.plot
+        draw(v, p * 1e3, color=col, lw=1.1, label=f"{_tname(s)} ({kind})", **style)
+        if con is not None:
+            twin = twin or ax.twinx()
+            twin.plot(v, con, ":", color=col, lw=1.0)
+    ax.set_xlabel("velocity (m/s)")
+    ax.set_ylabel("density (per km/s)")
+    if twin is not None:
+        twin.set_ylabel("relative contrast (dotted)")
+        twin.grid(False)
+        fig.subplots_adjust(right=1 - 0.75 / 5.6)
+    ax.set_title(f"{c.compound}: velocity distribution of each series")
+    ax.legend(frameon=False, loc="upper right")
+    return fig
+
+
 def compound_figures(c: CompoundResult) -> dict[str, Any]:
     """The figures of one compound, in report order: {kind: Figure} (absent kinds left out)."""
     out = {}
     for kind, make in (
         ("series", series_figure),
         ("visibility", visibility_figure),
+        ("velocity", velocity_figure),
         ("debye", debye_figure),
         ("comparison", comparison_figure),
         ("budget", budget_figure),

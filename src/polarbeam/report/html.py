@@ -67,6 +67,9 @@ _CAPTIONS = {
     "voltage range; below, the residuals in units of their error.",
     "visibility": "Fringe visibility relative to the lowest-field point: the velocity-averaging "
     "contrast factor of the fitted model (line) and the measured visibility where recorded.",
+    "velocity": "Velocity distribution of each series as analysed (density; a measured table's "
+    "classes as steps) and, dotted on the right axis, the relative fringe contrast of its classes "
+    "where the table states one.",
     "debye": "α_eff of each series against 10³/T with the fitted line α + ⟨μ²⟩/(3kT) and α at "
     "1/T = 0; the band is ±1σ from the full α–⟨μ²⟩ covariance, the error bars include the shared "
     "scale errors; below, the residuals from the line in units of their error.",

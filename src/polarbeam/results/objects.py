@@ -81,6 +81,9 @@ class SeriesResult:
     #: the fitted model on a dense voltage grid (V; observable), for figures (None: not stored)
     curve_voltages: np.ndarray | None = field(default=None, repr=False)
     curve: np.ndarray | None = field(default=None, repr=False)
+    #: (velocities m/s, density per m/s, relative contrast or None) of the velocity model, for
+    #: the report's distribution figure (not written to the tables)
+    velocity_curve: tuple | None = None
 
     def __repr__(self) -> str:
         return (

@@ -17,9 +17,11 @@ from polarbeam._util.provenance import provenance
 from polarbeam.constants import AMU, BOLTZMANN, alpha_a3_from_si, debye_from_si
 from polarbeam.contract.campaign import Campaign, CompoundData
 from polarbeam.contract.paths import input_files
+from polarbeam.contract.velocity import velocity_curve, velocity_extra, velocity_warnings
 from polarbeam.errors import CompoundError
 from polarbeam.extraction.context import Context
 from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
+from polarbeam.extraction.visibility_check import visibility_departures
 from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResult
 from polarbeam.separation.debye import (
     alpha_with_known_dipole,
@@ -82,14 +84,24 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
             fit_offset=st.fit_offset,
             nodes=st.velocity_nodes,
             scale_errors=st.scale_errors,
+            kappa_zero=float(getattr(ctx.kappa_zero, "nominal_value", ctx.kappa_zero)),
         )
         vel_u = (
             ufloat(s.velocity.value, s.velocity.error, tag=f"velocity: {s.label}")
             if s.velocity.error > 0 and c.layout != "time-domain"
             else s.velocity.value
         )
-        a_eff, _ = alpha_eff_with_errors(fit, s.label, ctx.coupling_ratio, mass_ratio, vel_u)
-        sw = []
+        spread_u = (
+            ufloat(float(np.mean(s.spreads)), s.spread_error, tag=f"velocity spread: {s.label}")
+            if s.spread_error > 0 and c.layout != "time-domain"
+            else None
+        )
+        a_eff, _ = alpha_eff_with_errors(
+            fit, s.label, ctx.coupling_ratio, mass_ratio, vel_u, spread_u, ctx.kappa_zero
+        )
+        sw = velocity_warnings(s, c.layout)
+        if c.layout == "talbot-lau":
+            sw.extend(visibility_departures(s, fit.modulus))
         if fit.ndof > 0 and fit.p_value < 0.01:
             sw.append(
                 f"{s.label}: reduced χ² = {fit.reduced_chi2:.2f} (p = {fit.p_value:.1e}); "
@@ -138,7 +150,9 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                     }
                     if s.rotational is not None
                     else {}
-                ),
+                )
+                | velocity_extra(s, c.layout),
+                velocity_curve=velocity_curve(s, c.layout),
             )
         )
     if not results:

@@ -18,6 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam._util.atomic import make_folder, write_text_atomic
+from polarbeam.beam.distributions import distribution_from_moments
 from polarbeam.beam.response import LangevinDebye, ParticleResponse
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.campaign import build_layout
@@ -31,6 +32,7 @@ from polarbeam.instrument.deflectors import (
     coupling,
 )
 from polarbeam.simulation import scans as scansim
+from polarbeam.simulation.velocity import stated_table, velocity_csv, velocity_table
 
 #: the default particle response of simulated compounds.
 LANGEVIN_DEBYE = LangevinDebye()
@@ -218,6 +220,12 @@ def simulate_campaign(
     velocity_columns: bool = True,
     response: ParticleResponse = LANGEVIN_DEBYE,
     rotational_err_K: float = 1.0,
+    shape: str = "gaussian",
+    spread_err_frac: float = 0.0,
+    table_shape: str | None = None,
+    contrast_slope: float | None = None,
+    acceleration: tuple[float, float] | None = None,
+    thermal_velocity: bool = False,
 ) -> SimulationTruth:
     """Write ``campaign.toml``, ``shifts.csv`` and ``compounds.csv`` into ``out_dir``.
 
@@ -235,6 +243,22 @@ def simulate_campaign(
     rotational_err_K
         Stated (and drawn) error of the rotational temperatures of compounds that give
         ``rotational_temperatures_K``.
+    shape, spread_err_frac
+        ``[beam] velocity_distribution`` of the beam (the truth and the analysis), and the
+        stated relative error of the spread (drawn into the truth, written as
+        ``velocity_spread_err_m_s``; 0: no column).
+    table_shape, contrast_slope
+        Measured tables instead (:func:`polarbeam.simulation.velocity.velocity_table`): each
+        series' true distribution has this shape, mean ``velocity_m_s`` and relative spread
+        ``spread_frac``; the stated table (``velocities.csv``) is the truth times one draw of
+        ``velocity_err_frac`` (a common scale), the velocity and spread cells of shifts.csv are
+        left empty. ``contrast_slope`` adds the contrast column c = 1 + k·(v − v̄)/v̄.
+    acceleration
+        (a, 1σ) in m/s² of ``[instrument] background_acceleration`` (Talbot–Lau): the true a is
+        drawn from it.
+    thermal_velocity
+        Scale the mean velocity of each series as sqrt(T/T_first) (an oven): ``velocity_m_s``
+        is then the mean at the compound's first temperature.
     """
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     spec = spec or InstrumentSpec.talbot_lau()
@@ -242,6 +266,12 @@ def simulate_campaign(
     make_folder(out)
     _, true, c_nom, c_true = _draw_instrument(spec, rng)
     kind = spec.layout
+    kappa_zero = 0.0
+    if acceleration is not None:
+        lay = build_layout(kind, true)
+        a_true = acceleration[0] + acceleration[1] * rng.standard_normal()
+        kappa_zero = lay.scale * lay.weight_integral(lay.z1, lay.z3) * a_true
+    tables: list = []
     is_profile = kind == "beam-profile"
     signal = max_signal * (1e-6 if is_profile else 1.0)
     err = noise * (signal if is_profile else 1.0)
@@ -263,10 +293,25 @@ def simulate_campaign(
             if t_stated in rot:  # the rotation in the deflector sets the orientational term
                 t_true = rot[t_stated] + rotational_err_K * rng.standard_normal()
             a_eff = response.alpha_eff(a_si, mu_si, t_true)
+            if thermal_velocity:
+                v_nom = velocity_m_s * math.sqrt(t_stated / comp.temperatures_K[0])
             v_err = velocity_err_frac * v_nom
             v_true = v_nom + v_err * rng.standard_normal()
             spread = spread_frac * v_nom
             offset = offset_scale * err * rng.standard_normal() * 10
+            groups = None
+            spread_err = spread_err_frac * spread
+            if table_shape is not None:
+                true_table = velocity_table(
+                    table_shape, v_nom, spread_frac, contrast_slope=contrast_slope
+                )
+                stated, v_err = stated_table(true_table, velocity_err_frac, rng)
+                tables.append((comp.name, t_stated, stated))
+                groups = [(np.ones(n_voltages, dtype=bool), true_table)]
+            elif shape != "gaussian" or spread_err > 0:
+                s_true = spread + spread_err * rng.standard_normal()
+                d = distribution_from_moments(shape, v_true, max(s_true, 0.0))
+                groups = [(np.ones(n_voltages, dtype=bool), d)]
             model, _ = observable_model(
                 a_eff,
                 ladder,
@@ -274,25 +319,36 @@ def simulate_campaign(
                 np.full(n_voltages, v_true),
                 np.full(n_voltages, spread),
                 kind,
+                groups=groups,
+                kappa_zero=kappa_zero,
             )
             y = offset + model + err * rng.standard_normal(n_voltages)
             truth_eff[(comp.name, t_stated)] = a_eff / alpha_si_from_a3(1.0)
             for V, yy in zip(ladder, y, strict=True):
+                vcells = (
+                    ("", f"{v_err:.6g}", "")
+                    if table_shape is not None
+                    else (f"{v_nom:.6g}", f"{v_err:.4g}", f"{spread:.4g}")
+                )
+                if spread_err_frac > 0:
+                    vcells = (*vcells[:2], f"{vcells[2]},{spread_err:.4g}")
                 rows.append(
-                    (comp.name, t_stated, temperature_err_K, v_nom, v_err, spread, V, yy, err)
+                    (comp.name, t_stated, temperature_err_K, vcells, None, None, V, yy, err)
                     + ((rot[t_stated],) if t_stated in rot else ())
                 )
     obs = ("shift_m", "shift_err_m") if is_profile else ("phase_rad", "phase_err_rad")
     if not velocity_columns and kind != "time-domain":
         raise ValueError("velocity columns can only be left out for the time-domain layout")
     vcols = "velocity_m_s,velocity_err_m_s,velocity_spread_m_s," if velocity_columns else ""
+    if velocity_columns and spread_err_frac > 0:
+        vcols += "velocity_spread_err_m_s,"
     head = f"compound,temperature_K,temperature_err_K,{vcols}voltage_V,{obs[0]},{obs[1]}"
     with_rot = any(c.rotational_temperatures_K for c in compounds)
     if with_rot:
         head += ",rotational_temperature_K,rotational_temperature_err_K"
     lines = [head] + [
         f"{r[0]},{r[1]:g},{r[2]:g},"
-        + (f"{r[3]:.6g},{r[4]:.4g},{r[5]:.4g}," if velocity_columns else "")
+        + (",".join(r[3]) + "," if velocity_columns else "")
         + f"{r[6]:.6g},{r[7]:.10g},{r[8]:.6g}"
         + ((f",{r[9]:g},{rotational_err_K:g}" if len(r) > 9 else ",,") if with_rot else "")
         for r in rows
@@ -304,7 +360,16 @@ def simulate_campaign(
     chead = "compound,mass_u,mass_err_u,smiles"
     clines = [chead] + [f"{c.name},{c.mass_u:.6g},{c.mass_err_u:g},{c.smiles}" for c in compounds]
     write_text_atomic(out / "compounds.csv", "\n".join(clines) + "\n")
-    write_text_atomic(out / "campaign.toml", _toml(spec, title))
+    toml = _toml(spec, title)
+    if tables:
+        write_text_atomic(out / "velocities.csv", velocity_csv(tables))
+        toml += 'velocities = "velocities.csv"\n'
+    if shape != "gaussian":
+        toml += f'\n[beam]\nvelocity_distribution = "{shape}"\n'
+    if acceleration is not None:
+        q = f'background_acceleration = "{acceleration[0]:.10g} ± {acceleration[1]:.4g} m/s^2"'
+        toml = toml.replace("\n\n[deflector]", f"\n{q}\n\n[deflector]", 1)
+    write_text_atomic(out / "campaign.toml", toml)
     return SimulationTruth(true, {c.name: c for c in compounds}, truth_eff, out)
 
 
@@ -462,8 +527,15 @@ def simulate_scan_campaign(
     parquet: bool = False,
     response: ParticleResponse = LANGEVIN_DEBYE,
     rotational_err_K: float = 1.0,
+    table_shape: str | None = None,
+    contrast_slope: float | None = None,
 ) -> SimulationTruth:
     """Like :func:`simulate_campaign` but writes raw fringe scans (``[data] scans``).
+
+    The signal scans' visibility follows the velocity average's phasor modulus |Z(κ)|/|Z(0)|.
+    With ``table_shape`` (and ``contrast_slope``) each series' beam is a measured table as in
+    :func:`simulate_campaign` (``velocities.csv``; the scans' velocity cells hold the stated
+    table's mean and rms spread).
 
     Compounds that give ``rotational_temperatures_K`` have their orientational term set by the
     rotational temperature (drawn with ``rotational_err_K``), and the scan table gets the
@@ -486,6 +558,7 @@ def simulate_scan_campaign(
     period_true = true.get("instrument.grating_period", nominal["instrument.grating_period"])
     kind = spec.layout
     tables = []
+    tables_out: list = []
     truth_eff: dict[tuple[str, float], float] = {}
     first_scan, t0 = 0, 0.0
     for comp in compounds:
@@ -507,14 +580,26 @@ def simulate_scan_campaign(
             volts = np.repeat(ladder, scans_per_voltage)
             volts = volts * rng.choice([-1.0, 1.0], size=volts.size)
             rng.shuffle(volts)
-            phases, _ = observable_model(
+            groups = None
+            v_cell, s_cell = velocity_m_s, spread_frac * velocity_m_s
+            if table_shape is not None:
+                true_table = velocity_table(
+                    table_shape, velocity_m_s, spread_frac, contrast_slope=contrast_slope
+                )
+                stated, v_err = stated_table(true_table, velocity_err_frac, rng)
+                tables_out.append((comp.name, t_stated, stated))
+                groups = [(np.ones(volts.size, dtype=bool), true_table)]
+                v_cell, s_cell = stated.mean, stated.spread
+            phases, modulus = observable_model(
                 a_eff,
                 volts,
                 c_true / m_true,
                 np.full(volts.size, v_true),
                 np.full(volts.size, spread_frac * velocity_m_s),
                 kind,
+                groups=groups,
             )
+            factors = modulus  # the signal scans lose visibility as the phasor modulus
             truth_eff[(comp.name, t_stated)] = a_eff / alpha_si_from_a3(1.0)
             sim = scansim.simulate_series(
                 phases,
@@ -522,9 +607,9 @@ def simulate_scan_campaign(
                 compound=comp.name,
                 temperature_K=t_stated,
                 temperature_err_K=temperature_err_K,
-                velocity_m_s=velocity_m_s,
+                velocity_m_s=v_cell,
                 velocity_err_m_s=v_err,
-                velocity_spread_m_s=spread_frac * velocity_m_s,
+                velocity_spread_m_s=s_cell,
                 period_m=period_true,
                 bins=bins,
                 signal_per_bin=signal_per_bin,
@@ -534,6 +619,7 @@ def simulate_scan_campaign(
                 start_time_s=t0,
                 first_scan=first_scan,
                 rng=rng,
+                contrast_factors=factors,
             )
             if t_stated in rot:
                 sim.table["rotational_temperature_K"] = rot[t_stated]
@@ -554,6 +640,9 @@ def simulate_scan_campaign(
     ]
     write_text_atomic(out / "compounds.csv", "\n".join(clines) + "\n")
     toml = _toml(spec, title).replace('shifts = "shifts.csv"', f'scans = "{name}"')
+    if tables_out:
+        write_text_atomic(out / "velocities.csv", velocity_csv(tables_out))
+        toml += 'velocities = "velocities.csv"\n'
     write_text_atomic(out / "campaign.toml", toml)
     return SimulationTruth(true, {c.name: c for c in compounds}, truth_eff, out)
 

@@ -109,6 +109,7 @@ def simulate_series(
     start_time_s: float = 0.0,
     first_scan: int = 0,
     rng: np.random.Generator | None = None,
+    contrast_factors: ArrayLike | None = None,
 ) -> SimulatedScans:
     """Simulate one series: references interleaved with signal scans of known phase shifts.
 
@@ -143,6 +144,9 @@ velocity_spread_m_s
         Id of the first scan; ids increase by one in acquisition order.
     rng : numpy.random.Generator, optional
         Random source.
+    contrast_factors : array_like, shape (n,), optional
+        Relative visibility of each signal scan (the velocity average's phasor modulus relative
+        to zero field); 1 when omitted. References keep the full visibility.
 
     Returns
     -------
@@ -190,8 +194,14 @@ velocity_spread_m_s
     t_bins = (np.arange(bins) + 0.5) * (scan_duration_s / bins)
     x = np.tile(x_bins, n_scans)
     t = np.repeat(t_start, bins) + np.tile(t_bins, n_scans)
+    bin_vis = vis
+    if contrast_factors is not None:
+        factor = np.ones(n_scans)
+        factor[sig_slots] = np.asarray(contrast_factors, dtype=float)
+        vis = vis * factor
+        bin_vis = np.repeat(vis, bins)
     _, counts = fringe_counts(
-        x, period_m, np.repeat(measured, bins), signal_per_bin, vis, dark_per_bin, rng
+        x, period_m, np.repeat(measured, bins), signal_per_bin, bin_vis, dark_per_bin, rng
     )
     n_rows = n_scans * bins
     scan_ids = first_scan + np.arange(n_scans)
