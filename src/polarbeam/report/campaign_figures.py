@@ -14,7 +14,7 @@ import math
 
 import numpy as np
 
-from polarbeam.report.figures import MARKERS, OKABE_ITO, PALETTE, new_figure, styled
+from polarbeam.report.figures import MARKERS, OKABE_ITO, PALETTE, new_figure, plain_text, styled
 
 __all__ = ["drift_figure", "optical_figure", "recoil_fit_figure", "recoil_spectrum_figure"]
 
@@ -38,7 +38,7 @@ def recoil_spectrum_figure(recoil):
             ms=4,
             capsize=3,
             lw=0.8,
-            label=c.compound,
+            label=plain_text(c.compound),
         )
     ax.axhline(0.0, color="#aaaaaa", lw=0.8)
     ax.set_xlabel("wavelength (nm)")
@@ -69,7 +69,7 @@ def recoil_fit_figure(c):
             ms=4,
             capsize=2,
             lw=0.8,
-            label=f"{f.laser} ({f.wavelength_m * 1e9:g} nm)",
+            label=f"{plain_text(f.laser)} ({f.wavelength_m * 1e9:g} nm)",
         )
         ax.plot(e, np.asarray(f.model_phases)[order], "-", color=col, lw=1.0)
         vax.errorbar(
@@ -85,7 +85,7 @@ def recoil_fit_figure(c):
         )
         vax.plot(e, np.asarray(f.model_visibility)[order], "-", color=col, lw=1.0)
     ax.set_ylabel("fringe phase (rad)")
-    ax.set_title(f"{c.compound}: photon recoil, measured (1σ) and fitted (lines)")
+    ax.set_title(f"{plain_text(c.compound)}: photon recoil, measured (1σ) and fitted (lines)")
     ax.legend(frameon=False, loc="best")
     vax.set_ylabel("visibility ratio")
     vax.set_xlabel("pulse energy (J) or power (W)")
@@ -121,7 +121,7 @@ def optical_figure(c):
     ax.plot([], [], "-", color=OKABE_ITO["black"], label="quantum model")
     ax.plot([], [], ":", color=OKABE_ITO["black"], label="classical model")
     ax.set_ylabel("visibility")
-    ax.set_title(f"{c.compound}: visibility (preferred model: {c.preferred_model})")
+    ax.set_title(f"{plain_text(c.compound)}: visibility (preferred model: {c.preferred_model})")
     ax.legend(frameon=False, loc="best")
     rax.axhline(0.0, color="#555555", lw=0.8)
     rax.set_ylabel("residual / σ")
@@ -188,6 +188,6 @@ def drift_figure(reduction, key):
         )
     ax.set_xlabel("time (s)")
     ax.set_ylabel("reference phase (rad)")
-    ax.set_title(f"{key[0]} at {key[1]:g} K: reference-phase drift")
+    ax.set_title(f"{plain_text(key[0])} at {key[1]:g} K: reference-phase drift")
     ax.legend(frameon=False, loc="best")
     return fig

@@ -38,6 +38,7 @@ __all__ = [
     "have_matplotlib",
     "new_figure",
     "parity_figure",
+    "plain_text",
     "series_figure",
     "styled",
     "to_png",
@@ -162,6 +163,13 @@ def to_png(fig, dpi: int = PNG_DPI) -> bytes:
     return buf.getvalue()
 
 
+def plain_text(name) -> str:
+    """A user string (compound name, laser) safe as figure text: control characters dropped,
+    ``$`` escaped so that it is never read as mathtext."""
+    text = "".join(ch for ch in str(name) if ch.isprintable())
+    return text.replace("$", r"\$")
+
+
 # Public names of the figure helpers, for the other figure modules of the report stage.
 def styled(make):
     """Decorator: build a figure with the report style (palette, fonts, deterministic SVG)."""
@@ -222,7 +230,7 @@ def series_figure(c: CompoundResult):
             ms=3.5,
         )
     ax.set_ylabel(ylab)
-    ax.set_title(f"{c.compound}: measured (points, 1σ) and fitted model (lines)")
+    ax.set_title(f"{plain_text(c.compound)}: measured (points, 1σ) and fitted model (lines)")
     ax.legend(frameon=False, loc="best")
     rax.axhline(0.0, color="#555555", lw=0.8)
     for y in (-2, 2):
@@ -291,7 +299,7 @@ def visibility_figure(c: CompoundResult):
             )
     ax.set_xlabel("deflector voltage (V)")
     ax.set_ylabel("relative visibility")
-    ax.set_title(f"{c.compound}: visibility relative to the lowest-field point")
+    ax.set_title(f"{plain_text(c.compound)}: visibility relative to the lowest-field point")
     ax.legend(frameon=False, loc="lower center")
     return fig
 
@@ -399,7 +407,7 @@ def debye_figure(c: CompoundResult):
     ax.set_ylim(lo - pad, hi + pad)
     ax.set_xlim(-0.04 * float(grid[-1]) * k, float(grid[-1]) * k)
     ax.set_ylabel("α_eff (Å³)")
-    ax.set_title(f"{c.compound}: Debye plot")
+    ax.set_title(f"{plain_text(c.compound)}: Debye plot")
     ax.legend(frameon=True, framealpha=0.85, edgecolor="none", loc="best", fontsize=7)
     rax.errorbar(
         xs * k,
@@ -441,7 +449,7 @@ def budget_figure(c: CompoundResult, top: int = 10):
     ax.set_xlim(0, min(100.0, float(vals.max()) * 1.25 + 5))
     ax.set_xlabel(f"share of the variance of {what} (%)")
     ax.grid(axis="y", visible=False)
-    ax.set_title(f"{c.compound}: uncertainty budget")
+    ax.set_title(f"{plain_text(c.compound)}: uncertainty budget")
     return fig
 
 
@@ -493,7 +501,7 @@ def comparison_figure(c: CompoundResult):
         ax.set_ylim(-0.7, len(names) - 0.3)
         ax.set_xlabel(label)
         ax.grid(axis="y", visible=False)
-    axes[0].set_title(f"{c.compound}: measured versus predicted / computed (1σ)")
+    axes[0].set_title(f"{plain_text(c.compound)}: measured versus predicted / computed (1σ)")
     return fig
 
 
@@ -532,7 +540,12 @@ def parity_figure(result: CampaignResult):
         )
         for x, y, *_rest, name in pts:
             ax.annotate(
-                name, (x, y), xytext=(4, 3), textcoords="offset points", fontsize=7, gid="label"
+                plain_text(name),
+                (x, y),
+                xytext=(4, 3),
+                textcoords="offset points",
+                fontsize=7,
+                gid="label",
             )
         lo = min(lo, float((arr[:, 0] - arr[:, 3]).min()), float((arr[:, 1] - arr[:, 2]).min()))
         hi = max(hi, float((arr[:, 0] + arr[:, 3]).max()), float((arr[:, 1] + arr[:, 2]).max()))
@@ -585,7 +598,7 @@ def velocity_figure(c: CompoundResult):
         twin.set_ylabel("relative contrast (dotted)")
         twin.grid(False)
         fig.subplots_adjust(right=1 - 0.75 / 5.6)
-    ax.set_title(f"{c.compound}: velocity distribution of each series")
+    ax.set_title(f"{plain_text(c.compound)}: velocity distribution of each series")
     ax.legend(frameon=False, loc="upper right")
     return fig
 

@@ -68,8 +68,12 @@ def figure_block(fig: Rendered | None, caption: str) -> str:
 def inputs_section(result) -> str:
     """Every stated instrument input (SI value, 1σ error, source key, default or stated), the
     per-series temperatures and velocities, and the analysis settings."""
+    stated = dict(result.stated_inputs)
+    for extra in (getattr(result, "recoil", None),):  # the lasers' stated inputs
+        for key, d in (getattr(extra, "stated_inputs", None) or {}).items():
+            stated.setdefault(key, d)
     rows = []
-    for key, d in sorted(result.stated_inputs.items()):
+    for key, d in sorted(stated.items()):
         value, err = d.get("value"), d.get("error")
         rel = abs(err / value) if value and err else None
         sens = d.get("dlnC_dp")
