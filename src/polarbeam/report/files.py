@@ -17,6 +17,12 @@ from polarbeam._util.cautions import CAUTIONS
 from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
 from polarbeam.quantities import value_error_text
 from polarbeam.report.latex import latex_table
+from polarbeam.report.markdown_sections import (
+    inputs_lines,
+    mu_lines,
+    noise_lines,
+    provenance_lines,
+)
 from polarbeam.report.recoil import (
     recoil_markdown_lines,
     recoil_terminal_lines,
@@ -119,7 +125,7 @@ def render_markdown(result: CampaignResult) -> str:
         )
         if optical is not None:
             text += "\n" + "\n".join(optical_markdown_lines(optical)) + "\n"
-        return text
+        return text + "\n".join([*inputs_lines(result), *provenance_lines(result)]) + "\n"
     obs = "phase (rad)" if result.layout in ("talbot-lau", "time-domain") else "shift (m)"
     lines = [
         f"# {md_escape(result.title)}",
@@ -200,10 +206,12 @@ def render_markdown(result: CampaignResult) -> str:
             lines += ["", f"Uncertainty budget of {what} (share of variance):", ""]
             lines += ["| input | share |", "|---|---|"]
             lines += [f"| {md_escape(k)} | {v:.1%} |" for k, v in budget.items()]
+        lines += mu_lines(c)
         lines += _crosscheck_lines(c)
         if c.warnings:
             lines += ["", "Warnings:", ""] + [f"- {md_escape(w)}" for w in c.warnings]
     lines += _parity_lines(result)
+    lines += noise_lines(getattr(result, "reduction", None))
     if recoil is not None:
         lines += ["", *recoil_markdown_lines(recoil)]
     if optical is not None:
@@ -221,6 +229,7 @@ def render_markdown(result: CampaignResult) -> str:
         "",
     ]
     lines += [f"- {c}" for c in CAUTIONS]
+    lines += inputs_lines(result) + provenance_lines(result)
     return "\n".join(lines) + "\n"
 
 
