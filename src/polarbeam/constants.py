@@ -22,6 +22,7 @@ __all__ = [
     "DEBYE_SI",
     "EPSILON0",
     "HBAR",
+    "PLANCK",
     "Constant",
     "alpha_a3_from_si",
     "alpha_au_from_si",
@@ -48,6 +49,7 @@ _CODATA = f"CODATA via scipy.constants {_sc.__name__} (scipy)"
 EPSILON0 = _sc.epsilon_0
 BOLTZMANN = _sc.k
 HBAR = _sc.hbar
+PLANCK = _sc.h
 AMU = _sc.physical_constants["atomic mass constant"][0]
 BOHR = _sc.physical_constants["Bohr radius"][0]
 #: 1 Å³ of polarizability volume expressed as a polarizability in C·m²/V.
@@ -63,6 +65,7 @@ CONSTANTS = {
         Constant("epsilon_0", EPSILON0, "F/m", _CODATA),
         Constant("k_B", BOLTZMANN, "J/K", _CODATA),
         Constant("hbar", HBAR, "J s", _CODATA),
+        Constant("h", PLANCK, "J s", _CODATA),
         Constant("atomic mass constant", AMU, "kg", _CODATA),
         Constant("Bohr radius", BOHR, "m", _CODATA),
         Constant("atomic unit of polarizability", AU_POLARIZABILITY_SI, "C m^2/V", _CODATA),

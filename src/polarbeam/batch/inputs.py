@@ -126,9 +126,10 @@ def compound_hashes(campaign, key: str) -> dict[str, str]:
     whole = {}  # files whose content every compound depends on
     if "structures" in data:
         whole["structures"] = _file_sha(_data_file(campaign, "structures"))
-    if "shifts" in data:
-        shifts = _data_file(campaign, "shifts")
-        srows = _rows_by_compound(shifts, "shifts")
+    if "shifts" in data or "profiles" in data:  # whole profiles: rows by compound as well
+        table = "shifts" if "shifts" in data else "profiles"
+        shifts = _data_file(campaign, table)
+        srows = _rows_by_compound(shifts, table)
     else:  # raw scans: the drift/noise estimate may pool series, so the whole file counts
         shifts = _data_file(campaign, "scans")
         whole["scans"] = _file_sha(shifts)

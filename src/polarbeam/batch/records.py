@@ -19,12 +19,17 @@ from uncertainties import UFloat
 from uncertainties.core import AffineScalarFunc, LinearCombination, Variable
 
 from polarbeam.results.objects import CompoundResult, SeriesResult
+from polarbeam.results.velocity import VelocityRecord
 
 __all__ = ["RECORD_FORMAT", "decode_compound", "encode_compound"]
 
 RECORD_FORMAT = "polarbeam-compound-record/1"
 
-_CLASSES = {"CompoundResult": CompoundResult, "SeriesResult": SeriesResult}
+_CLASSES = {
+    "CompoundResult": CompoundResult,
+    "SeriesResult": SeriesResult,
+    "VelocityRecord": VelocityRecord,  # a series' time-of-flight fit (results.velocity)
+}
 
 
 def _float(x: float):

@@ -1,5 +1,5 @@
 """The beam: velocity distributions (nodes and weights of the velocity average) and the particle's
-response to the field or to photons (Langevin–Debye α_eff; photon recoil).
+response to the field or to photons (Langevin–Debye α_eff, rigid rotors; photon recoil).
 """
 
 from polarbeam.beam.distributions import (
@@ -23,8 +23,12 @@ from polarbeam.beam.photon_recoil import (
     recoil_velocity,
 )
 from polarbeam.beam.response import (
+    RESPONSE_KINDS,
+    AsymmetricTop,
     LangevinDebye,
+    LinearRotor,
     ParticleResponse,
+    SymmetricTop,
 )
 from polarbeam.beam.velocity import (
     averaged_phasor_phase,
@@ -34,11 +38,15 @@ from polarbeam.beam.velocity import (
 
 __all__ = [
     "PLANCK",
+    "RESPONSE_KINDS",
     "SPEED_OF_LIGHT",
+    "AsymmetricTop",
     "FluxVelocity",
     "GaussianVelocity",
     "LangevinDebye",
+    "LinearRotor",
     "ParticleResponse",
+    "SymmetricTop",
     "TabulatedVelocity",
     "VelocityDistribution",
     "averaged_phasor_phase",

@@ -38,6 +38,7 @@ from polarbeam._util.tables import CELL_BLANKS, Table, read_table
 from polarbeam._util.text import close_name
 from polarbeam.chemistry import read_computed, read_sdf
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
+from polarbeam.contract.deflector_files import deflector_files
 from polarbeam.contract.numerical import (
     NUMERICAL_KEYS,
     numerical_deflector,
@@ -46,7 +47,9 @@ from polarbeam.contract.numerical import (
 )
 from polarbeam.contract.paths import resolve_data_file
 from polarbeam.contract.plausibility import input_warnings
+from polarbeam.contract.profiles import load_profiles
 from polarbeam.contract.recoil import load_recoil
+from polarbeam.contract.rotors import compound_response
 from polarbeam.contract.scans import reduce_scans_file, series_from_reduction
 from polarbeam.contract.schema import (
     OBSERVABLE_COLUMNS,
@@ -57,6 +60,11 @@ from polarbeam.contract.schema import (
     SeriesData,
 )
 from polarbeam.contract.temperatures import row_rotational, series_rotational, thermometer_offset
+from polarbeam.contract.time_of_flight import (
+    TOF_BEAM_KEYS,
+    time_of_flight_settings,
+    velocity_models_with_traces,
+)
 from polarbeam.contract.velocity import (
     BEAM_KEYS,
     INSTRUMENT_VELOCITY_KEYS,
@@ -120,7 +128,9 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
         "computed_outputs": None,
         "recoil": None,
         "visibilities": None,
+        "time_of_flight": None,
         "velocities": None,
+        "profiles": None,
     },
     "analysis": {
         "velocity_nodes": None,
@@ -137,7 +147,7 @@ _SCHEMA: dict[str, dict[str, str | None]] = {
     },
     "source": {"thermometer_offset": "K"},
     "gratings": dict(GRATING_KEYS),  # polarbeam.contract.visibility
-    "beam": BEAM_KEYS,
+    "beam": {**BEAM_KEYS, **TOF_BEAM_KEYS},
 }
 # the numerical model's cross-section keys (fieldmodel.py; docs/calibration.md)
 _SCHEMA["deflector"].update(
@@ -389,51 +399,6 @@ def stated_inputs(doc: dict, fname: str, layout: str, model: str) -> dict[str, M
     return stated
 
 
-def _read_profile(path: Path, cols: tuple[str, str], what: str):
-    table = read_table(path, cols, what)
-    xs, ys = [], []
-    for i in range(len(table.rows)):
-        try:
-            xs.append(table.number(i, cols[0]))
-            ys.append(table.number(i, cols[1]))
-        except CompoundError as exc:  # a bad map is structural: it concerns every compound
-            raise InputError(str(exc)) from exc
-    order = np.argsort(xs)
-    return tuple(np.asarray(xs)[order]), tuple(np.asarray(ys)[order])
-
-
-def _read_waveform(path: Path):
-    """Waveform CSV ``t_s, amplitude``: t relative to the switch-on, amplitude in 0..1."""
-    table = read_table(path, ("t_s", "amplitude"), "waveform")
-    ts, amps = [], []
-    try:
-        for i in range(len(table.rows)):
-            if "__bad__" in table.rows[i]:
-                raise InputError(f"{table.name} line {table.lines[i]}: {table.rows[i]['__bad__']}")
-            ts.append(table.number(i, "t_s"))
-            a = table.number(i, "amplitude")
-            if not 0.0 <= a <= 1.0:
-                raise InputError(
-                    f"{table.name} line {table.lines[i]}: column 'amplitude' expected a relative "
-                    f"amplitude in 0..1, found {table.rows[i]['amplitude']!r}"
-                )
-            amps.append(a)
-            if i and ts[-1] <= ts[-2]:
-                raise InputError(
-                    f"{table.name} line {table.lines[i]}: column 't_s' expected increasing times, "
-                    f"found {table.rows[i]['t_s']!r} after {table.rows[i - 1]['t_s']!r}"
-                )
-    except CompoundError as exc:  # a bad waveform is structural: it concerns every compound
-        raise InputError(str(exc)) from None
-    if len(ts) < 2:
-        raise InputError(
-            f"{table.name}: expected at least two rows (t_s, amplitude), found {len(ts)}"
-        )
-    if max(amps) <= 0:
-        raise InputError(f"{table.name}: column 'amplitude' is zero everywhere; the field is off")
-    return tuple(ts), tuple(amps)
-
-
 def analysis_settings(doc: dict, fname: str) -> AnalysisSettings:
     a = doc.get("analysis", {})
     kinds: dict[str, Callable] = {
@@ -546,6 +511,7 @@ def _load_compounds(
             entry["dipole_known"] = _optional_measured(
                 table, i, "dipole_known_D", "dipole_known_err_D", si_from_debye, nonnegative=True
             )
+            entry["response"] = compound_response(table, i)
         except CompoundError as exc:
             if name in info and "problem" not in info[name]:
                 info[name]["problem"] = str(exc)
@@ -668,23 +634,6 @@ def check_geometry(camp: Campaign):
         raise InputError(f"{camp.path.name} {exc}") from None
 
 
-def deflector_files(defl: dict, base: Path, fname: str, layout: str, model: str):
-    """(field map, waveform) profiles named in ``[deflector]``, read and validated (or None)."""
-    field_map = waveform = None
-    if model == "field-map" and layout != "time-domain":
-        fm = defl["field_map"]
-        if not isinstance(fm, str):
-            raise InputError(f"{fname} [deflector] field_map: expected a file path, found {fm!r}")
-        fm_path = resolve_data_file(base, fm, f"{fname} [deflector] field_map")
-        field_map = _read_profile(fm_path, ("z_m", "field_factor_m3"), "field map")
-    if "waveform" in defl:
-        wf = defl["waveform"]
-        if not isinstance(wf, str):
-            raise InputError(f"{fname} [deflector] waveform: expected a file path, found {wf!r}")
-        waveform = _read_waveform(resolve_data_file(base, wf, f"{fname} [deflector] waveform"))
-    return field_map, waveform
-
-
 def read_toml(path: Path) -> dict:
     """The TOML document of a campaign file, or a one-line :class:`InputError`."""
     if not path.is_file():
@@ -727,12 +676,14 @@ def load_campaign(path: str | Path) -> Campaign:
     settings = analysis_settings(doc, fname)
     offset = thermometer_offset(doc, fname)
     vset = velocity_settings(doc, fname, layout)
+    tof = time_of_flight_settings(doc, fname, layout)  # [data] time_of_flight, [beam] keys
     base = path.parent
     field_map, waveform = deflector_files(defl, base, fname, layout, model)
     data = doc.get("data", {})
     compounds_path = data_path(base, doc, "compounds", fname)
     structures = load_structures(base, doc, fname)
     reduction = None
+    profiles: dict = {}
     notes: dict[str, list[str]] = {}
     ignored: tuple[str, ...] = ()
     table_notes: list[str] = []
@@ -750,14 +701,24 @@ def load_campaign(path: str | Path) -> Campaign:
         series, problems, notes = series_from_reduction(reduction)
         problems.update(bad)
     else:
-        shifts_path = data_path(base, doc, "shifts", fname, required=not has_recoil)
+        profiles_path = data_path(base, doc, "profiles", fname, required=False)
+        shifts_path = data_path(
+            base, doc, "shifts", fname, required=not (has_recoil or "profiles" in data)
+        )
         info = _load_compounds(compounds_path, structures, settings.mass, table_notes)
-        if shifts_path is not None:
-            tabled = vset.tables is not None
+        if profiles_path is not None:  # whole profiles (contract/profiles.py)
+            profiles, problems = load_profiles(profiles_path, layout, fname)
+            series = {name: () for name in profiles}
+            shifts_path = None
+        elif shifts_path is not None:
+            tabled = vset.tables is not None or tof is not None
             series, problems, ignored = _load_shifts(shifts_path, layout, table_notes, tabled)
         else:
             series, problems = {}, {}
-    if shifts_path is not None:  # tables, named shapes (polarbeam.contract.velocity)
+    if shifts_path is not None and tof is not None:  # fitted traces (contract.time_of_flight)
+        args = (vset, tof, layout, base, fname, shifts_path.name)
+        series = velocity_models_with_traces(series, problems, *args)
+    elif shifts_path is not None:  # tables, named shapes (polarbeam.contract.velocity)
         series = velocity_models(series, problems, vset, layout, base, fname, shifts_path.name)
 
     camp = Campaign(
@@ -805,6 +766,8 @@ def load_campaign(path: str | Path) -> Campaign:
                 entry.get("alpha_known"),
                 entry.get("dipole_known"),
                 tuple(notes.get(name, ())),
+                entry.get("response"),
+                profiles.get(name, ()) if problem is None else (),
             )
         )
     in_recoil = set(recoil.compound_names) if recoil is not None else set()

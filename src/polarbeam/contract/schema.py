@@ -116,6 +116,10 @@ class SeriesData:
     distribution: VelocityDistribution | None = None
     shape: str = "gaussian"  # [beam] velocity_distribution used with velocities/spreads
     spread_error: float = 0.0  # 1σ of the spread (velocity_spread_err_m_s), 0 when not stated
+    #: the fitted time-of-flight trace (polarbeam.contract.time_of_flight.TraceFit), when given,
+    #: and its velocity-scale error terms (tag, relative change per 1σ) for the separation
+    time_of_flight: Any = None
+    velocity_terms: tuple[tuple[str, float], ...] = ()
 
     @property
     def label(self) -> str:
@@ -138,3 +142,7 @@ class CompoundData:
     alpha_known: Measured | None = None
     dipole_known: Measured | None = None
     notes: tuple[str, ...] = ()  # e.g. scans dropped by the fringe reduction
+    #: the particle response (compounds.csv rotor columns; contract/rotors.py): None = ergodic
+    response: object | None = None
+    #: whole beam profiles ([data] profiles; contract/profiles.py), one ProfileSeries per T
+    profiles: tuple = ()

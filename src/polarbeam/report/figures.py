@@ -41,6 +41,7 @@ __all__ = [
     "plain_text",
     "series_figure",
     "styled",
+    "time_of_flight_figure",
     "to_png",
     "to_svg",
     "velocity_figure",
@@ -569,6 +570,31 @@ def parity_figure(result: CampaignResult):
 
 
 @_styled
+def time_of_flight_figure(c: CompoundResult):
+    """Each series' time-of-flight trace (counts per bin) with the fitted model, one panel each."""
+    recs = [s.time_of_flight for s in c.series if s.time_of_flight is not None]
+    if not recs:
+        return None
+    fig, axes = _new(5.6, 1.2 + 1.9 * len(recs), rows=len(recs))
+    axes = np.atleast_1d(axes)
+    for i, (ax, r) in enumerate(zip(axes, recs, strict=True)):
+        col = _CYCLE[i % len(_CYCLE)]
+        t = (r.starts + 0.5 * r.width) * 1e3
+        ax.step(t, r.counts, where="mid", color="#777777", lw=0.7, label="measured counts")
+        ax.plot(t, r.model, "-", color=col, lw=1.3, label="fitted model")
+        ax.set_ylabel("counts / bin")
+        ax.set_title(
+            f"{plain_text(c.compound)} at {r.temperature_K:g} K: ⟨v⟩ = {r.mean_m_s:.4g} m/s, "
+            f"rms {r.spread_m_s:.3g} m/s; "
+            f"deviance {r.deviance:.0f} / {r.ndof}",
+            fontsize=8,
+        )
+        ax.legend(frameon=False, loc="upper right")
+    axes[-1].set_xlabel("time after the gate opens (ms)")
+    return fig
+
+
+@_styled
 def velocity_figure(c: CompoundResult):
     """The velocity distribution of every series (density; a table's classes as steps) and its
     relative fringe contrast where stated. Drawn when some series is not the default Gaussian."""
@@ -613,6 +639,7 @@ def compound_figures(c: CompoundResult) -> dict[str, Any]:
         ("debye", debye_figure),
         ("comparison", comparison_figure),
         ("budget", budget_figure),
+        ("time_of_flight", time_of_flight_figure),
     ):
         fig = make(c)
         if fig is not None:

@@ -14,7 +14,8 @@ from pathlib import Path
 from polarbeam._util.outfolder import output_folder
 from polarbeam.report.files import render_markdown, write_results
 from polarbeam.report.html import write_html
-from polarbeam.results.objects import CampaignResult, register_writer
+from polarbeam.report.velocities import write_velocities
+from polarbeam.results.objects import CampaignResult, register_writer, writer
 
 __all__ = ["write_report"]
 
@@ -38,9 +39,11 @@ def write_report(
     :class:`~polarbeam.errors.FolderInUseError`."""
     with output_folder(out):
         write_results(result, out)
+        writer("velocities")(result, out)  # velocities.csv of time-of-flight fits, when any
         if html:
             write_html(result, out, details=details, rendered=rendered)
 
 
 register_writer("markdown", render_markdown)
 register_writer("folder", write_report)
+register_writer("velocities", write_velocities)

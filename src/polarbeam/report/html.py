@@ -76,6 +76,8 @@ _CAPTIONS = {
     "comparison": "Measured value (band: 1σ) against the predicted and computed values stored "
     "with the compound.",
     "budget": "Share of each stated input in the variance (fit statistics pooled).",
+    "time_of_flight": "Time-of-flight trace of each series (counts per bin) with the fitted "
+    "gate-convolved model; its distribution is in velocities.csv.",
 }
 
 _CSS = """

@@ -23,6 +23,7 @@ from polarbeam._version import __version__
 from polarbeam.constants import alpha_a3_from_si, alpha_au_from_si, debye_from_si
 from polarbeam.errors import PolarbeamError
 from polarbeam.quantities import format_value_error
+from polarbeam.results.velocity import VelocityRecord
 from polarbeam.uncertain import variance_budget
 
 __all__ = [
@@ -81,6 +82,7 @@ class SeriesResult:
     #: the fitted model on a dense voltage grid (V; observable), for figures (None: not stored)
     curve_voltages: np.ndarray | None = field(default=None, repr=False)
     curve: np.ndarray | None = field(default=None, repr=False)
+    time_of_flight: VelocityRecord | None = None  # distribution fitted to a trace, when given
     #: (velocities m/s, density per m/s, relative contrast or None) of the velocity model, for
     #: the report's distribution figure (not written to the tables)
     velocity_curve: tuple | None = None
@@ -175,6 +177,11 @@ class SeriesResult:
             "budget": variance_budget(self.alpha_eff),
             "warnings": list(self.warnings),
             **{k: finite_or_none(v) if isinstance(v, float) else v for k, v in self.extra.items()},
+            **(
+                {"time_of_flight": self.time_of_flight.summary()}
+                if self.time_of_flight is not None
+                else {}
+            ),
         }
 
 

@@ -7,6 +7,7 @@ numerical failure marks only that compound ``failed``. The structure cross-check
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from typing import Any
 
@@ -14,21 +15,26 @@ import numpy as np
 from uncertainties import ufloat
 
 from polarbeam._util.provenance import provenance
+from polarbeam.beam.response import LangevinDebye
 from polarbeam.constants import AMU, BOLTZMANN, alpha_a3_from_si, debye_from_si
 from polarbeam.contract.campaign import Campaign, CompoundData
 from polarbeam.contract.paths import input_files
+from polarbeam.contract.time_of_flight import uncertain_velocity
 from polarbeam.contract.velocity import velocity_curve, velocity_extra, velocity_warnings
 from polarbeam.errors import CompoundError
 from polarbeam.extraction.context import Context
 from polarbeam.extraction.series import alpha_eff_with_errors, fit_series
 from polarbeam.extraction.visibility_check import visibility_departures
 from polarbeam.results.objects import CampaignResult, CompoundResult, SeriesResult
+from polarbeam.results.velocity import VelocityRecord
 from polarbeam.separation.debye import (
     alpha_with_known_dipole,
     debye_fit,
     dipole_from_known_alpha,
 )
 from polarbeam.separation.dipole import INTERVAL_CL, DipoleStatement, dipole_statement
+from polarbeam.separation.profiles import profile_result
+from polarbeam.separation.rotors import dipole_exponent, rotor_temperatures
 
 __all__ = [
     "DIPOLE_PLAUSIBLE_MAX_D",
@@ -58,6 +64,8 @@ def separate(cd: CompoundData, c: Campaign, ctx: Context) -> CompoundResult:
         return _failed(cd, f"compound {cd.name!r}: no mass")
     mass_u = cd.mass.value / AMU
     try:
+        if cd.profiles:  # whole beam profiles: the Poisson profile fit (separation/profiles.py)
+            return profile_result(cd, c, ctx, mass_u)
         return _separate(cd, c, ctx, mass_u)
     except CompoundError as exc:
         return _failed(cd, str(exc), mass_u)
@@ -75,6 +83,7 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
     )
     results: list[SeriesResult] = []
     temps = []
+    units: dict = {}  # shared time-of-flight inputs (flight length, time offset) of the compound
     for s in cd.series:
         fit = fit_series(
             s,
@@ -91,6 +100,8 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
             if s.velocity.error > 0 and c.layout != "time-domain"
             else s.velocity.value
         )
+        if s.velocity_terms and c.layout != "time-domain":  # errors of a fitted trace
+            vel_u = uncertain_velocity(vel_u, s.velocity.value, s.velocity_terms, units)
         spread_u = (
             ufloat(float(np.mean(s.spreads)), s.spread_error, tag=f"velocity spread: {s.label}")
             if s.spread_error > 0 and c.layout != "time-domain"
@@ -135,7 +146,11 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 p_value=fit.p_value,
                 # the time-domain layout reads no velocities: NaN (null in JSON, blank in CSV)
                 velocity_m_s=math.nan if c.layout == "time-domain" else s.velocity.value,
-                velocity_err_m_s=math.nan if c.layout == "time-domain" else s.velocity.error,
+                velocity_err_m_s=(
+                    math.nan
+                    if c.layout == "time-domain"
+                    else float(getattr(vel_u, "std_dev", s.velocity.error))
+                ),
                 velocity_spread_m_s=(
                     math.nan if c.layout == "time-domain" else float(np.mean(s.spreads))
                 ),
@@ -143,6 +158,11 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 warnings=tuple(sw),
                 visibility=s.visibility,
                 visibility_err=s.visibility_err,
+                time_of_flight=(
+                    VelocityRecord.from_trace_fit(s.time_of_flight)
+                    if s.time_of_flight is not None
+                    else None
+                ),
                 extra=(
                     {
                         "rotational_temperature_K": s.rotational.value,
@@ -168,6 +188,28 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
             f"compound {cd.name!r}: every series states the same rotational temperature "
             f"({distinct.pop():g} K); expected at least two different temperatures to separate "
             "α and μ"
+        )
+    response = cd.response if cd.response is not None else LangevinDebye()
+    rigid = response.name != "ergodic"
+    t_orient = temps  # the rotational temperatures (temps become T_s/R_s for a rigid rotor)
+    if rigid:  # α_eff = α + R_s μ²/(3kT_s): the Debye line in R_s/T_s (separation/rotors.py)
+        temps, ratios, _mu = rotor_temperatures(
+            response, results, temps, ctx.field_per_volt, st.fit_offset, cd
+        )
+        results = [
+            dataclasses.replace(r, extra={**r.extra, "ld_ratio": q})
+            for r, q in zip(results, ratios, strict=True)
+        ]
+        messages.append(
+            f"rigid {response.name} rotor: α_eff = α + R·μ²/3kT with R = "
+            + ", ".join(f"{q:.3f}" for q in ratios)
+            + " (ratio to Langevin–Debye per series)"
+            + (
+                ""
+                if ctx.field_per_volt
+                else f"; the field magnitude is unknown for the '{c.model}' deflector: R in the "
+                "weak-field limit (state field_per_volt)"
+            )
         )
     if len(results) >= 2:
         fit = debye_fit([r.alpha_eff for r in results], temps)
@@ -208,6 +250,8 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         )
     elif mu2 is not None:
         statement = dipole_statement(mu2, limit_cl=st.upper_limit_cl)
+        if rigid and statement.value is not None:  # R depends on μ: slope ∝ μⁿ, n ≤ 2
+            statement = _rescaled(statement, response, results, t_orient, ctx, st)
         dipole, upper = statement.value, statement.limit
         if upper is not None:
             messages.append(
@@ -240,12 +284,12 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
     orientation, note = orientation_ratio(ctx, c.model, results, dipole, upper, statement)
     if note:
         messages.append(note)
-    if orientation is not None and orientation > st.orientation_warning:
+    if orientation is not None and orientation > st.orientation_warning and not rigid:
         vmax = max(float(np.max(np.abs(r.voltages))) for r in results)
         tmin = min(orientation_temperature_K(r) for r in results)
         warnings.append(
             f"μE/kT = {orientation:.2f} at {vmax:g} V and {tmin:g} K: the weak-field "
-            "Langevin–Debye limit is not well satisfied"
+            "Langevin–Debye limit is not well satisfied; strong field: use a rotor model"
         )
     status = "warning" if warnings else "ok"
     message = "; ".join(messages + warnings) or "ok"
@@ -265,7 +309,22 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         debye_chi2=chi2,
         debye_ndof=ndof,
         warnings=tuple(warnings),
-        extra={"mu_E_over_kT": orientation},
+        extra={"mu_E_over_kT": orientation, "response": response.name},
+    )
+
+
+def _rescaled(statement, response, results, temps, ctx, st):
+    """The dipole statement with its errors scaled by 2/n̄ (separation/rotors.py)."""
+    mu = statement.value.nominal_value
+    n = dipole_exponent(response, mu, results, temps, ctx.field_per_volt, st.fit_offset)
+    if not (n > 0.1 and abs(n - 2.0) > 1e-3):
+        return statement
+    f = 2.0 / n
+    return dataclasses.replace(
+        statement,
+        lower=max(mu - f * (mu - statement.lower), 0.0),
+        upper=mu + f * (statement.upper - mu),
+        value=mu + (statement.value - mu) * f,
     )
 
 

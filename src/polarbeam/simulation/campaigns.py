@@ -66,6 +66,11 @@ class CompoundTruth:
     #: differs from the source temperature (a supersonic expansion): the true α_eff follows it,
     #: and shifts.csv gets the rotational_temperature_K/_err_K columns
     rotational_temperatures_K: tuple[float, ...] = ()
+    #: the compound's own particle response (a rigid rotor of polarbeam.beam.rotors; None: the
+    #: campaign's ``response``), followed per voltage when the deflector knows its field
+    response: object | None = None
+    #: extra compounds.csv cells, e.g. (("rotor", "linear"), ("rot_B_MHz", "2000"))
+    columns: tuple[tuple[str, str], ...] = ()
 
 
 @dataclass(frozen=True)
@@ -141,7 +146,7 @@ def _deflector_inputs(model: str, rel: float):
     return {"deflector.field_factor": (1.5e8, 1.5e8 * rel, "m^-3")}
 
 
-_UNIT_SCALE = {"m": 1.0, "mm": 1e-3, "nm": 1e-9, "us": 1e-6, "m^-3": 1.0, "s": 1.0}
+_UNIT_SCALE = {"m": 1.0, "mm": 1e-3, "nm": 1e-9, "us": 1e-6, "m^-3": 1.0, "s": 1.0, "m^-1": 1.0}
 
 
 def _fmt_q(value: float, err: float, unit: str) -> str:
@@ -187,6 +192,7 @@ def _setup(spec: InstrumentSpec, values: dict[str, float]):
             values["deflector.field_factor"],
             values["deflector.entrance"],
             values["deflector.length"],
+            g("deflector.field_per_volt"),
         )
     elif spec.model == "two-wire":
         d = TwoWireDeflector(
@@ -265,6 +271,7 @@ def simulate_campaign(
     out = Path(out_dir)
     make_folder(out)
     _, true, c_nom, c_true = _draw_instrument(spec, rng)
+    fpv_true = getattr(_setup(spec, true)[1], "field_per_volt", None)
     kind = spec.layout
     kappa_zero = 0.0
     if acceleration is not None:
@@ -292,7 +299,8 @@ def simulate_campaign(
             t_true = t_stated + temperature_err_K * rng.standard_normal()
             if t_stated in rot:  # the rotation in the deflector sets the orientational term
                 t_true = rot[t_stated] + rotational_err_K * rng.standard_normal()
-            a_eff = response.alpha_eff(a_si, mu_si, t_true)
+            resp = comp.response if comp.response is not None else response
+            a_eff = resp.alpha_eff(a_si, mu_si, t_true)
             if thermal_velocity:
                 v_nom = velocity_m_s * math.sqrt(t_stated / comp.temperatures_K[0])
             v_err = velocity_err_frac * v_nom
@@ -312,15 +320,28 @@ def simulate_campaign(
                 s_true = spread + spread_err * rng.standard_normal()
                 d = distribution_from_moments(shape, v_true, max(s_true, 0.0))
                 groups = [(np.ones(n_voltages, dtype=bool), d)]
-            model, _ = observable_model(
-                a_eff,
-                ladder,
-                c_true / m_true,
-                np.full(n_voltages, v_true),
-                np.full(n_voltages, spread),
-                kind,
-                groups=groups,
-                kappa_zero=kappa_zero,
+            per_volt = [a_eff]
+            if comp.response is not None and fpv_true:  # α_eff follows the field: per voltage
+                per_volt = [resp.alpha_eff(a_si, mu_si, t_true, fpv_true * abs(V)) for V in ladder]
+            one = len(per_volt) == 1
+            model = np.concatenate(
+                [
+                    observable_model(
+                        a,
+                        ladder if one else ladder[i : i + 1],
+                        c_true / m_true,
+                        np.full(n_voltages if one else 1, v_true),
+                        np.full(n_voltages if one else 1, spread),
+                        kind,
+                        groups=(
+                            groups
+                            if groups is None or one
+                            else [(np.ones(1, dtype=bool), groups[0][1])]
+                        ),
+                        kappa_zero=kappa_zero,
+                    )[0]
+                    for i, a in enumerate(per_volt)
+                ]
             )
             y = offset + model + err * rng.standard_normal(n_voltages)
             truth_eff[(comp.name, t_stated)] = a_eff / alpha_si_from_a3(1.0)
@@ -358,7 +379,13 @@ def simulate_campaign(
         wl = ["t_s,amplitude"] + [f"{t:.10g},{a:.10g}" for t, a in zip(*spec.waveform, strict=True)]
         write_text_atomic(out / "waveform.csv", "\n".join(wl) + "\n")
     chead = "compound,mass_u,mass_err_u,smiles"
-    clines = [chead] + [f"{c.name},{c.mass_u:.6g},{c.mass_err_u:g},{c.smiles}" for c in compounds]
+    extra_cols = list(dict.fromkeys(k for c in compounds for k, _ in c.columns))
+    chead += "".join(f",{k}" for k in extra_cols)
+    clines = [chead] + [
+        f"{c.name},{c.mass_u:.6g},{c.mass_err_u:g},{c.smiles}"
+        + "".join(f',"{dict(c.columns).get(k, "")}"' for k in extra_cols)
+        for c in compounds
+    ]
     write_text_atomic(out / "compounds.csv", "\n".join(clines) + "\n")
     toml = _toml(spec, title)
     if tables:
