@@ -2,13 +2,12 @@
 
 Profiles are simulated here from the same model (polarbeam.beam.rotors.profiles: Stark states of
 the rotor, checked against textbook formulas in tests/beam/test_beam_rotors.py) with Poisson
-counts, and fitted back: the pulls of μ and T_rot must be honest. The benchmark of issue 19: one
-compound, a 15 K linear rotor, 5 voltages × 200 bins, fitted in < 10 s of CPU.
+counts, and fitted back: the pulls of μ and T_rot must be honest. The speed of one such fit (a
+15 K linear rotor, 5 voltages × 200 bins; target < 10 s on 2 cores) is measured by
+benchmarks/bench_profile_fit.py in a fresh process, never here.
 """
 
 from __future__ import annotations
-
-import time
 
 import numpy as np
 import pytest
@@ -46,17 +45,13 @@ def _simulate(rng, response, mu_d, t_rot, alpha_a3=8.0, velocity=600.0, spread=3
     return ProfileSeries("sim @ 300 K", velocity, spread, tuple(profiles))
 
 
-def test_profile_fit_benchmark_linear_rotor_15_k():
+def test_profile_fit_linear_rotor_15_k():
     rng = np.random.default_rng(3)
     rotor = LinearRotor(5000e6)
     s = _simulate(rng, rotor, 1.5, 15.0)
-    t0, c0 = time.perf_counter(), time.process_time()
     fit = fit_profiles(
         [s], rotor, COM, FPV, alpha_known=alpha_si_from_a3(8.0), dipole_guess=si_from_debye(1.0)
     )
-    cpu, wall = time.process_time() - c0, time.perf_counter() - t0
-    print(f"profile fit: {cpu:.2f} s CPU, {wall:.2f} s wall, {fit.evaluations} evaluations")
-    assert cpu < 10.0
     mu = debye_from_si(fit.dipole)
     assert abs(mu - 1.5) < 4 * debye_from_si(fit.dipole_err)
     assert abs(fit.rotational_k[0] - 15.0) < 4 * fit.rotational_err_k[0]

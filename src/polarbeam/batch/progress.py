@@ -35,7 +35,11 @@ class TerminalProgress:
         self._bar = None
         self._task = None
         self._last = 0.0
+        # rates count from the start of the run, as the closing "N compound(s) in T s" does
+        self._t0 = time.perf_counter()
         self._first: tuple[float, int] | None = None
+        self._prior = 0  # compounds of the campaigns already finished in this run
+        self._seen = 0
         if not self.plain and not has("rich"):  # optional extra polarbeam[batch]
             self.plain = True
         if not self.plain:
@@ -67,8 +71,9 @@ class TerminalProgress:
     def __call__(self, ev: ProgressEvent) -> None:
         now = time.perf_counter()
         if ev.compound is None:
-            # rates count from the campaign's start, as the closing "N compound(s) in T s" does
-            self._first, self._last = (now, ev.done), now
+            self._prior += self._seen
+            self._seen = ev.done
+            self._first, self._last = (self._t0, -self._prior), now
             if self._bar is not None:
                 if self._task is not None:
                     self._bar.stop_task(self._task)
@@ -86,6 +91,7 @@ class TerminalProgress:
         if self._bar is not None:
             self._bar.update(self._task, completed=ev.done)
             return
+        self._seen = ev.done
         if ev.done == ev.total or now - self._last >= self.every_s:
             self._last = now
             t1, d1 = self._first
