@@ -4,6 +4,7 @@ by the simulator) and the output files a batch is compared by."""
 from __future__ import annotations
 
 import json
+import re
 
 from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 
@@ -27,9 +28,21 @@ def _without_provenance(raw: bytes) -> bytes:
     return json.dumps(doc, sort_keys=True).encode()
 
 
+def _report_without_provenance(name: str, raw: bytes) -> bytes:
+    """report.html / report.md without their provenance section (date and command line)."""
+    text = raw.decode("utf-8")
+    if name == "report.html":
+        text = re.sub(r'<section id="provenance">.*?</section>', "", text, flags=re.S)
+    else:
+        text = text.split("\n## Provenance\n")[0]
+    return text.encode("utf-8")
+
+
 def output_files(folder):
     out = {name: (folder / name).read_bytes() for name in OUTPUTS}
     out["results.json"] = _without_provenance(out["results.json"])
+    for name in ("report.html", "report.md"):
+        out[name] = _report_without_provenance(name, out[name])
     for f in sorted((folder / "compounds").glob("*.json")):
         out[f"compounds/{f.name}"] = f.read_bytes()
     return out

@@ -393,7 +393,7 @@ def test_report_files_and_reemission_note(camp, tmp_path):
     first = text[1].split(",")
     assert float(first[3]) == pytest.approx(rows[(first[0], first[1])]["cross_section_cm2"])
     pytest.importorskip("matplotlib", reason=missing_reason("matplotlib"))
-    assert (out / "recoil_spectrum.png").read_bytes()[:4] == b"\x89PNG"
+    assert (out / "figures" / "recoil_spectrum.png").read_bytes()[:4] == b"\x89PNG"
 
 
 def test_fitted_yield_column(camp, tmp_path):

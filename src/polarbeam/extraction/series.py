@@ -17,7 +17,7 @@ derivative of the least-squares solution.  :func:`alpha_eff_with_errors` assembl
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import lmfit
 import numpy as np
@@ -33,9 +33,11 @@ from polarbeam.extraction.whitening import whitener
 from polarbeam.uncertain import FIT_TAG
 
 __all__ = [
+    "CURVE_POINTS",
     "SeriesFit",
     "alpha_eff_with_errors",
     "fit_series",
+    "model_curve",
     "observable_model",
     "series_distributions",
 ]
@@ -135,6 +137,9 @@ class SeriesFit:
     error_scale: float = 1.0
     dalpha_dspread: float = 0.0  # ∂α̂/∂σ_v (per m/s), 0 without a stated spread error
     dalpha_dkappa_zero: float = 0.0  # ∂α̂/∂κ₀ of the background-acceleration phase constant
+    #: the fitted model on a dense voltage grid (for figures): voltages (V) and observable
+    curve_voltages: np.ndarray = field(default_factory=lambda: np.empty(0))
+    curve: np.ndarray = field(default_factory=lambda: np.empty(0))
 
     @property
     def reduced_chi2(self) -> float:
@@ -293,6 +298,9 @@ def fit_series(
         if kind == "talbot-lau" and kappa_zero != 0.0:
             hk = abs(kappa_zero) * 1e-4
             dadk = implicit((rv(None, kappa_zero + hk) - rv(None, kappa_zero - hk)) / (2 * hk))
+    curve_v, curve = model_curve(
+        alpha, offset, V, com, kind, nodes, nominal_groups, kappa_zero=kappa_zero
+    )
     return SeriesFit(
         alpha_si=alpha,
         offset=offset,
@@ -306,7 +314,37 @@ def fit_series(
         error_scale=scale,
         dalpha_dspread=dads,
         dalpha_dkappa_zero=dadk,
+        curve_voltages=curve_v,
+        curve=curve,
     )
+
+
+#: Points of the dense model curve stored with every series fit (figures draw it).
+CURVE_POINTS = 160
+
+
+def model_curve(
+    alpha_si, offset, voltages, coupling_over_mass, kind, nodes, groups, kappa_zero=0.0
+):
+    """The fitted model (with its offset) on :data:`CURVE_POINTS` voltages from the lowest to the
+    highest measured one, for figures.  The velocity distribution is that of the series' first
+    velocity class (``groups`` from :func:`series_distributions`: the one class of the usual
+    series)."""
+    V = np.asarray(voltages, dtype=float)
+    grid = np.linspace(float(V.min()), float(V.max()), CURVE_POINTS)
+    grid_groups = [(np.ones(grid.size, dtype=bool), groups[0][1])] if groups else []
+    model = observable_model(
+        alpha_si,
+        grid,
+        coupling_over_mass,
+        np.empty(0),
+        np.empty(0),
+        kind,
+        nodes,
+        groups=grid_groups,
+        kappa_zero=kappa_zero,
+    )[0]
+    return grid, model + offset
 
 
 def alpha_eff_with_errors(

@@ -15,6 +15,7 @@ from polarbeam._util.optional import has
 from polarbeam.planning.rehearsal import write_rehearsal
 from polarbeam.planning.results import CampaignPlan, CompoundPlan
 from polarbeam.planning.visibility import VISIBILITY_PLAN_COLUMNS
+from polarbeam.report.figures import PALETTE
 
 __all__ = ["write_plan"]
 
@@ -27,11 +28,12 @@ def _plot_compound(c: CompoundPlan, cplan: CampaignPlan, path: Path) -> None:
     fig = Figure(figsize=(7, 6))
     FigureCanvasAgg(fig)
     ax1, ax2 = fig.subplots(2, 1, sharex=True)
-    for s in c.series:
+    for i, s in enumerate(c.series):
         model = s.model
         vv = np.linspace(0.0, 1.15 * s.voltage_max_V, 300)[1:]
         ph, mod = model.phase(vv)
-        (line,) = ax1.plot(vv, ph, label=f"{s.temperature_K:g} K")
+        col = PALETTE[i % len(PALETTE)]  # the report's colour-blind-safe palette
+        (line,) = ax1.plot(vv, ph, color=col, label=f"{s.temperature_K:g} K")
         ax2.plot(vv, st.visibility * mod, color=line.get_color())
         lev = np.asarray(s.ladder.levels_V)
         ax1.plot(lev, s.ladder.phase_rad, "o", color=line.get_color())

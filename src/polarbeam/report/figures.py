@@ -22,18 +22,25 @@ import numpy as np
 
 from polarbeam._util.optional import has
 from polarbeam.constants import BOLTZMANN, alpha_a3_from_si, debye_from_si
+from polarbeam.quantities import format_value_error
 from polarbeam.results.objects import CampaignResult, CompoundResult
 from polarbeam.uncertain import variance_budget
 
 __all__ = [
+    "MARKERS",
     "OKABE_ITO",
+    "PALETTE",
+    "PNG_DPI",
     "budget_figure",
     "comparison_figure",
     "compound_figures",
     "debye_figure",
     "have_matplotlib",
+    "new_figure",
     "parity_figure",
+    "plain_text",
     "series_figure",
+    "styled",
     "time_of_flight_figure",
     "to_png",
     "to_svg",
@@ -54,6 +61,11 @@ OKABE_ITO = {
 }
 _CYCLE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
 _MARKERS = ("o", "s", "^", "D", "v", "P", "X")
+#: The colour cycle of every polarbeam figure (Okabe–Ito order) and the matching marker shapes.
+PALETTE = _CYCLE
+MARKERS = _MARKERS
+#: Resolution of the PNG files written for papers.
+PNG_DPI = 300
 
 #: (extra key, error key or None, label) of α values to compare with the measurement.
 ALPHA_PREDICTIONS = (
@@ -142,7 +154,7 @@ def to_svg(fig) -> str:
     return text[text.index("<svg") :]  # drop the XML prolog and DOCTYPE for inline use
 
 
-def to_png(fig, dpi: int = 150) -> bytes:
+def to_png(fig, dpi: int = PNG_DPI) -> bytes:
     """The figure as PNG bytes."""
     import matplotlib
 
@@ -150,6 +162,24 @@ def to_png(fig, dpi: int = 150) -> bytes:
     with matplotlib.rc_context(getattr(fig, "_polarbeam_style", {})):
         fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": "polarbeam"})
     return buf.getvalue()
+
+
+def plain_text(name) -> str:
+    """A user string (compound name, laser) safe as figure text: control characters dropped,
+    ``$`` escaped so that it is never read as mathtext."""
+    text = "".join(ch for ch in str(name) if ch.isprintable())
+    return text.replace("$", r"\$")
+
+
+# Public names of the figure helpers, for the other figure modules of the report stage.
+def styled(make):
+    """Decorator: build a figure with the report style (palette, fonts, deterministic SVG)."""
+    return _styled(make)
+
+
+def new_figure(width=5.6, height=3.4, rows=1, ratios=None, sharex=False, left=0.8):
+    """A styled-layout figure with fixed margins in inches (see :func:`styled`)."""
+    return _new(width, height, rows, ratios, sharex, left)
 
 
 def _obs_label(observable: str) -> tuple[str, float]:
@@ -164,7 +194,10 @@ def _tname(s) -> str:
 
 @_styled
 def series_figure(c: CompoundResult):
-    """Observable versus voltage per series with the fitted model, and the normalised residuals."""
+    """Observable versus voltage per series with the fitted model, and the normalised residuals.
+
+    The model is the smooth curve the fit stored (``SeriesResult.curve``, evaluated on a dense
+    voltage grid); a series without one falls back to the model at the measured voltages."""
     if not c.series:
         return None
     ylab, scale = _obs_label(c.series[0].observable)
@@ -178,23 +211,27 @@ def series_figure(c: CompoundResult):
             s.values[order] * scale,
             yerr=s.errors[order] * scale,
             fmt=mk,
+            ls="none",
             ms=4,
             color=col,
             capsize=2,
             lw=0.8,
             label=f"{_tname(s)}  α_eff = {s.alpha_eff_A3:.4g} Å³",
         )
-        ax.plot(v, s.model[order] * scale, "-", color=col, lw=1.1, alpha=0.85)
+        cv, cm = getattr(s, "curve_voltages", None), getattr(s, "curve", None)
+        if cv is None or cm is None or len(cv) < 2:
+            cv, cm = v, s.model[order]
+        ax.plot(cv, np.asarray(cm) * scale, "-", color=col, lw=1.1, alpha=0.85, gid="model")
         rax.plot(
             v,
             (s.values[order] - s.model[order]) / s.errors[order],
-            mk + "-",
+            mk,
+            ls="none",
             color=col,
             ms=3.5,
-            lw=0.6,
         )
     ax.set_ylabel(ylab)
-    ax.set_title("measured (points, 1σ) and fitted model (lines)")
+    ax.set_title(f"{plain_text(c.compound)}: measured (points, 1σ) and fitted model (lines)")
     ax.legend(frameon=False, loc="best")
     rax.axhline(0.0, color="#555555", lw=0.8)
     for y in (-2, 2):
@@ -263,7 +300,7 @@ def visibility_figure(c: CompoundResult):
             )
     ax.set_xlabel("deflector voltage (V)")
     ax.set_ylabel("relative visibility")
-    ax.set_title("visibility relative to the lowest-field point")
+    ax.set_title(f"{plain_text(c.compound)}: visibility relative to the lowest-field point")
     ax.legend(frameon=False, loc="lower center")
     return fig
 
@@ -280,9 +317,19 @@ def _debye_band(c: CompoundResult, x: np.ndarray):
     return alpha_a3_from_si(line), alpha_a3_from_si(sd)
 
 
+def _mu_label(c: CompoundResult) -> str:
+    if c.dipole is not None:
+        d = debye_from_si(c.dipole.nominal_value)
+        return f"μ = {format_value_error(d, debye_from_si(c.dipole.std_dev))} D"
+    if c.dipole_upper_si is not None:
+        return f"μ < {debye_from_si(c.dipole_upper_si):.2f} D"
+    return "μ: none"
+
+
 @_styled
 def debye_figure(c: CompoundResult):
-    """α_eff versus 1/T with the fitted line α + ⟨μ²⟩/(3kT) and its 1σ band."""
+    """α_eff versus 10³/T with the fitted line α + ⟨μ²⟩/(3kT), its 1σ band, α at 1/T = 0 with its
+    error bar, and the residuals of each series from the line in units of their error."""
     if c.alpha is None or c.mu2 is None or len(c.series) < 2:
         return None
     xs = np.array([1.0 / s.temperature_K for s in c.series])
@@ -291,7 +338,8 @@ def debye_figure(c: CompoundResult):
     yerr = np.array([s.alpha_eff_err_A3 for s in c.series])
     grid = np.linspace(0.0, 1.08 * float(xs.max()), 120)
     line, sd = _debye_band(c, grid)
-    fig, ax = _new(5.6, 3.4)
+    at_x, _ = _debye_band(c, xs)
+    fig, (ax, rax) = _new(5.6, 4.4, rows=2, ratios=(3, 1.2), sharex=True)
     k = 1e3  # plot 1000/T
     ax.fill_between(
         grid * k,
@@ -309,6 +357,7 @@ def debye_figure(c: CompoundResult):
         xerr=xerr * k,
         yerr=yerr,
         fmt="o",
+        ls="none",
         color=OKABE_ITO["vermillion"],
         ms=5,
         capsize=2,
@@ -316,13 +365,15 @@ def debye_figure(c: CompoundResult):
         label="α_eff per series (1σ)",
     )
     pred = [s.extra.get("alpha_eff_pred_A3") for s in c.series]
+    lows, highs = [line - sd, ys - yerr], [line + sd, ys + yerr]
     if all(p is not None and np.isfinite(p) for p in pred):
         # the structure cross-check's α_additive + ⟨μ²⟩(T)/3kT at each measured temperature
         order = np.argsort(xs)
         perr = np.array([s.extra.get("alpha_eff_pred_err_A3", np.nan) for s in c.series])
+        pv = np.asarray(pred, dtype=float)
         ax.errorbar(
             xs[order] * k,
-            np.asarray(pred, dtype=float)[order],
+            pv[order],
             yerr=perr[order],
             fmt="s--",
             mfc="none",
@@ -332,20 +383,47 @@ def debye_figure(c: CompoundResult):
             lw=0.9,
             label="structure prediction α_add + ⟨μ²⟩(T)/(3kT) (1σ)",
         )
-    ax.plot(
+        pe = np.nan_to_num(perr, nan=0.0)
+        lows.append(pv - pe)
+        highs.append(pv + pe)
+    a0 = alpha_a3_from_si(c.alpha.nominal_value)
+    a0e = alpha_a3_from_si(c.alpha.std_dev)
+    ax.errorbar(
         [0.0],
-        [alpha_a3_from_si(c.alpha.nominal_value)],
-        marker="D",
+        [a0],
+        yerr=[a0e],
+        fmt="D",
         ls="none",
         color=OKABE_ITO["black"],
         ms=5,
-        label=f"α = {alpha_a3_from_si(c.alpha.nominal_value):.4g} Å³",
+        capsize=3,
+        lw=1.0,
+        clip_on=False,
+        label=f"α = {format_value_error(a0, a0e)} Å³ (1/T = 0)",
     )
-    ax.set_xlim(left=0.0)
-    ax.set_xlabel("1000 / T  (1/K)")
+    ax.plot([], [], ls="none", label=_mu_label(c))  # μ (or its limit) in the legend
+    lo = min(float(np.min(x)) for x in lows)
+    hi = max(float(np.max(x)) for x in highs)
+    pad = 0.06 * (hi - lo if hi > lo else max(abs(hi), 1.0))
+    ax.set_ylim(lo - pad, hi + pad)
+    ax.set_xlim(-0.04 * float(grid[-1]) * k, float(grid[-1]) * k)
     ax.set_ylabel("α_eff (Å³)")
-    ax.set_title("Debye plot")
-    ax.legend(frameon=False, loc="best")
+    ax.set_title(f"{plain_text(c.compound)}: Debye plot")
+    ax.legend(frameon=True, framealpha=0.85, edgecolor="none", loc="best", fontsize=7)
+    rax.errorbar(
+        xs * k,
+        (ys - at_x) / yerr,
+        yerr=1.0,
+        fmt="o",
+        ls="none",
+        color=OKABE_ITO["vermillion"],
+        ms=4,
+        capsize=2,
+        lw=0.8,
+    )
+    rax.axhline(0.0, color="#555555", lw=0.8)
+    rax.set_ylabel("residual / σ")
+    rax.set_xlabel("10³/T (K⁻¹)")
     return fig
 
 
@@ -372,7 +450,7 @@ def budget_figure(c: CompoundResult, top: int = 10):
     ax.set_xlim(0, min(100.0, float(vals.max()) * 1.25 + 5))
     ax.set_xlabel(f"share of the variance of {what} (%)")
     ax.grid(axis="y", visible=False)
-    ax.set_title("uncertainty budget")
+    ax.set_title(f"{plain_text(c.compound)}: uncertainty budget")
     return fig
 
 
@@ -424,24 +502,27 @@ def comparison_figure(c: CompoundResult):
         ax.set_ylim(-0.7, len(names) - 0.3)
         ax.set_xlabel(label)
         ax.grid(axis="y", visible=False)
-    axes[0].set_title("measured versus predicted / computed (1σ)")
+    axes[0].set_title(f"{plain_text(c.compound)}: measured versus predicted / computed (1σ)")
     return fig
 
 
 @_styled
 def parity_figure(result: CampaignResult):
-    """Measured α versus each kind of predicted or computed α over the campaign."""
-    groups: dict[str, list[tuple[float, float, float, float | None]]] = {}
+    """Measured α versus each kind of predicted or computed α over the campaign: every point
+    labelled with its compound, equal aspect, limits that hold every error bar."""
+    groups: dict[str, list[tuple[float, float, float, float | None, str]]] = {}
     for c in result.compounds:
         if c.alpha is None:
             continue
         m = alpha_a3_from_si(c.alpha.nominal_value)
         me = alpha_a3_from_si(c.alpha.std_dev)
         for label, v, e in predictions(c)["alpha"]:
-            groups.setdefault(label, []).append((v, m, me, e))
+            method = c.extra.get("computed_method") if label == "computed" else None
+            key = f"{label} ({method})" if isinstance(method, str) and method else label
+            groups.setdefault(key, []).append((v, m, me, e, c.compound))
     if not groups:
         return None
-    fig, ax = _new(4.6, 4.4, left=0.7)
+    fig, ax = _new(4.8, 4.8, left=0.7)
     lo, hi = math.inf, -math.inf
     for i, (label, pts) in enumerate(groups.items()):
         arr = np.array([(p[0], p[1], p[2], p[3] if p[3] is not None else 0.0) for p in pts])
@@ -458,9 +539,18 @@ def parity_figure(result: CampaignResult):
             ls="none",
             label=f"{label} ({len(pts)})",
         )
-        lo = min(lo, float(arr[:, :2].min()))
-        hi = max(hi, float(arr[:, :2].max()))
-    pad = 0.06 * (hi - lo if hi > lo else 1.0)
+        for x, y, *_rest, name in pts:
+            ax.annotate(
+                plain_text(name),
+                (x, y),
+                xytext=(4, 3),
+                textcoords="offset points",
+                fontsize=7,
+                gid="label",
+            )
+        lo = min(lo, float((arr[:, 0] - arr[:, 3]).min()), float((arr[:, 1] - arr[:, 2]).min()))
+        hi = max(hi, float((arr[:, 0] + arr[:, 3]).max()), float((arr[:, 1] + arr[:, 2]).max()))
+    pad = 0.08 * (hi - lo if hi > lo else max(abs(hi), 1.0))
     ax.plot(
         [lo - pad, hi + pad],
         [lo - pad, hi + pad],
@@ -474,7 +564,7 @@ def parity_figure(result: CampaignResult):
     ax.set_aspect("equal")
     ax.set_xlabel("predicted / computed α (Å³)")
     ax.set_ylabel("measured α (Å³)")
-    ax.set_title("parity")
+    ax.set_title("parity: measured against predicted α")
     ax.legend(frameon=False, loc="upper left")
     return fig
 
@@ -494,7 +584,8 @@ def time_of_flight_figure(c: CompoundResult):
         ax.plot(t, r.model, "-", color=col, lw=1.3, label="fitted model")
         ax.set_ylabel("counts / bin")
         ax.set_title(
-            f"{r.temperature_K:g} K: ⟨v⟩ = {r.mean_m_s:.4g} m/s, rms {r.spread_m_s:.3g} m/s; "
+            f"{plain_text(c.compound)} at {r.temperature_K:g} K: ⟨v⟩ = {r.mean_m_s:.4g} m/s, "
+            f"rms {r.spread_m_s:.3g} m/s; "
             f"deviance {r.deviance:.0f} / {r.ndof}",
             fontsize=8,
         )
@@ -533,7 +624,7 @@ def velocity_figure(c: CompoundResult):
         twin.set_ylabel("relative contrast (dotted)")
         twin.grid(False)
         fig.subplots_adjust(right=1 - 0.75 / 5.6)
-    ax.set_title("velocity distribution of each series")
+    ax.set_title(f"{plain_text(c.compound)}: velocity distribution of each series")
     ax.legend(frameon=False, loc="upper right")
     return fig
 

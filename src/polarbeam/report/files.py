@@ -17,6 +17,12 @@ from polarbeam._util.cautions import CAUTIONS
 from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
 from polarbeam.quantities import value_error_text
 from polarbeam.report.latex import latex_table
+from polarbeam.report.markdown_sections import (
+    inputs_lines,
+    mu_lines,
+    noise_lines,
+    provenance_lines,
+)
 from polarbeam.report.recoil import (
     recoil_markdown_lines,
     recoil_terminal_lines,
@@ -78,11 +84,18 @@ def _csv(df, first: tuple[str, ...]) -> str:
 
 
 def write_results(result: CampaignResult, out: str | Path) -> None:
-    """Write ``series.csv``, ``properties.csv``, ``results.json`` and ``report.md`` atomically."""
+    """Write ``series.csv``, ``properties.csv``, ``results.json`` and ``report.md`` atomically.
+
+    A campaign without deflection compounds (recoil or visibility data only) gets no
+    ``series.csv`` / ``properties.csv``: its tables are ``recoil.csv`` / ``optical.csv``."""
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
-    write_text_atomic(out / "series.csv", _csv(result.series, SERIES_COLUMNS))
-    write_text_atomic(out / "properties.csv", _csv(result.properties, PROPERTY_COLUMNS))
+    only_other = not result.compounds and (
+        getattr(result, "recoil", None) is not None or getattr(result, "optical", None) is not None
+    )
+    if not only_other:
+        write_text_atomic(out / "series.csv", _csv(result.series, SERIES_COLUMNS))
+        write_text_atomic(out / "properties.csv", _csv(result.properties, PROPERTY_COLUMNS))
     write_text_atomic(
         out / "results.json",
         json.dumps(_clean(result.summary()), indent=1, ensure_ascii=False, allow_nan=False) + "\n",
@@ -112,7 +125,7 @@ def render_markdown(result: CampaignResult) -> str:
         )
         if optical is not None:
             text += "\n" + "\n".join(optical_markdown_lines(optical)) + "\n"
-        return text
+        return text + "\n".join([*inputs_lines(result), *provenance_lines(result)]) + "\n"
     obs = "phase (rad)" if result.layout in ("talbot-lau", "time-domain") else "shift (m)"
     lines = [
         f"# {md_escape(result.title)}",
@@ -193,10 +206,12 @@ def render_markdown(result: CampaignResult) -> str:
             lines += ["", f"Uncertainty budget of {what} (share of variance):", ""]
             lines += ["| input | share |", "|---|---|"]
             lines += [f"| {md_escape(k)} | {v:.1%} |" for k, v in budget.items()]
+        lines += mu_lines(c)
         lines += _crosscheck_lines(c)
         if c.warnings:
             lines += ["", "Warnings:", ""] + [f"- {md_escape(w)}" for w in c.warnings]
     lines += _parity_lines(result)
+    lines += noise_lines(getattr(result, "reduction", None))
     if recoil is not None:
         lines += ["", *recoil_markdown_lines(recoil)]
     if optical is not None:
@@ -214,6 +229,7 @@ def render_markdown(result: CampaignResult) -> str:
         "",
     ]
     lines += [f"- {c}" for c in CAUTIONS]
+    lines += inputs_lines(result) + provenance_lines(result)
     return "\n".join(lines) + "\n"
 
 

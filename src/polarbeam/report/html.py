@@ -20,8 +20,15 @@ from pathlib import Path
 from polarbeam._util.atomic import write_bytes_atomic, write_text_atomic
 from polarbeam._util.cautions import CAUTIONS
 from polarbeam._util.text import safe_name
+from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE as ELECTRONIC_NOTE
 from polarbeam.constants import alpha_a3_from_si, debye_from_si
 from polarbeam.quantities import format_value_error
+from polarbeam.report.campaign_figures import (
+    drift_figure,
+    optical_figure,
+    recoil_fit_figure,
+    recoil_spectrum_figure,
+)
 from polarbeam.report.figures import (
     compound_figures,
     have_matplotlib,
@@ -29,6 +36,17 @@ from polarbeam.report.figures import (
     predictions,
     to_png,
     to_svg,
+)
+from polarbeam.report.sections import (
+    computed_section,
+    correlation_line,
+    dipole_budget_table,
+    drift_section,
+    inputs_section,
+    optical_section,
+    point_tables,
+    provenance_section,
+    recoil_section,
 )
 from polarbeam.results.objects import CampaignResult, CompoundResult
 from polarbeam.uncertain import variance_budget
@@ -45,15 +63,16 @@ __all__ = [
 DEFAULT_DETAILS = 20
 
 _CAPTIONS = {
-    "series": "Measured points (1σ) with the fitted model at the measured voltages; below, the "
-    "residuals in units of their error.",
+    "series": "Measured points (1σ) with the fitted model drawn as a smooth curve over the "
+    "voltage range; below, the residuals in units of their error.",
     "visibility": "Fringe visibility relative to the lowest-field point: the velocity-averaging "
     "contrast factor of the fitted model (line) and the measured visibility where recorded.",
     "velocity": "Velocity distribution of each series as analysed (density; a measured table's "
     "classes as steps) and, dotted on the right axis, the relative fringe contrast of its classes "
     "where the table states one.",
-    "debye": "α_eff of each series against 1/T with the fitted line α + ⟨μ²⟩/(3kT); the band is "
-    "±1σ from the full α–⟨μ²⟩ covariance, the error bars include the shared scale errors.",
+    "debye": "α_eff of each series against 10³/T with the fitted line α + ⟨μ²⟩/(3kT) and α at "
+    "1/T = 0; the band is ±1σ from the full α–⟨μ²⟩ covariance, the error bars include the shared "
+    "scale errors; below, the residuals from the line in units of their error.",
     "comparison": "Measured value (band: 1σ) against the predicted and computed values stored "
     "with the compound.",
     "budget": "Share of each stated input in the variance (fit statistics pooled).",
@@ -300,13 +319,16 @@ def _compound_section(i, c, figs: dict[str, tuple[str, tuple[str, str] | None]])
         out.append(f'<p class="values">{line}</p>')
     if c.message and c.message != "ok":
         out.append(f'<p class="note">{_e(c.message)}</p>')
+    out.append(correlation_line(c))
     out.append(_series_table(c))
+    out.append(point_tables(c))
     out.append(_predictions_table(c))
     if figs:
         out.append('<div class="figs">')
         out += [_figure_html(k, svg, files) for k, (svg, files) in figs.items()]
         out.append("</div>")
     out.append(_budget_table(c))
+    out.append(dipole_budget_table(c))
     if c.warnings:
         out.append('<ul class="warn">' + "".join(f"<li>{_e(w)}</li>" for w in c.warnings) + "</ul>")
     out.append("</section>")
@@ -375,6 +397,37 @@ def render_html(
 
     idx = detail_indices(len(result.compounds), details)
     counts = {s: sum(c.status == s for c in result.compounds) for s in ("ok", "warning", "failed")}
+    recoil = getattr(result, "recoil", None)  # photon-recoil results (results.recoil)
+    optical = getattr(result, "optical", None)  # visibility fits (results.visibility)
+    reduction = getattr(result, "reduction", None)  # raw-scan reduction (reduction.result)
+    deflection = bool(result.compounds) or (recoil is None and optical is None)
+
+    def drawn(make, stem, *args):
+        if not plots:
+            return None
+        try:
+            fig = make(*args)
+        except Exception:  # a figure that cannot be drawn must not cost the whole report
+            return None
+        return None if fig is None else render(fig, stem)
+
+    nav = ['<a href="#summary">Summary</a>']
+    if deflection:
+        nav.append('<a href="#compounds">Compounds</a>')
+    if result.comparison is not None or result.parity is not None:
+        nav.append('<a href="#computed">Computed chemistry</a>')
+    if reduction is not None:
+        nav.append('<a href="#drift">Raw scans</a>')
+    if recoil is not None:
+        nav.append('<a href="#recoil">Photon recoil</a>')
+    if optical is not None:
+        nav.append('<a href="#optical">Visibility</a>')
+    nav += [
+        '<a href="#inputs">Inputs</a>',
+        '<a href="#provenance">Provenance</a>',
+        '<a href="#method">Method</a>',
+        '<a href="#cautions">Cautions</a>',
+    ]
     parts = [
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
@@ -384,54 +437,92 @@ def render_html(
         f"<header><h1>{_e(result.title)}</h1>",
         f'<p class="meta">polarbeam {_e(result.version)} · layout {_e(result.layout)} · '
         f"deflector {_e(result.model)} · source {_e(result.source)}</p>",
-        '<nav><a href="#summary">Summary</a><a href="#compounds">Compounds</a>'
-        '<a href="#method">Method</a><a href="#cautions">Cautions</a></nav></header><main>',
+        f"<nav>{''.join(nav)}</nav></header><main>",
         '<section id="summary"><h2>Summary</h2>',
-        f'<p class="counts"><span>{len(result.compounds)} compound(s)</span>'
-        f'<span class="status-ok">{counts["ok"]} ok</span>'
-        f'<span class="status-warning">{counts["warning"]} with warnings</span>'
-        f'<span class="status-failed">{counts["failed"]} failed</span></p>',
-        '<p class="note">Click a column heading to sort. Errors are 1σ standard '
-        "uncertainties; μ limits are upper limits at the stated confidence level.</p>",
-        f'<div class="wrap">{_summary_table(result, set(idx))}</div>',
     ]
-    parts += [f'<p class="note">{_e(n)}</p>' for n in result.notes]
-    if plots:
-        fig = parity_figure(result)
-        if fig is not None:
-            svg, files = render(fig, "parity")
-            parts.append(
-                "<h3>Measured versus predicted</h3>"
-                + _figure_html("parity", svg, files).replace(
-                    "<figcaption>",
-                    "<figcaption>Measured α against each kind of predicted or computed α "
-                    "(1σ); the line is equality.",
-                    1,
-                )
+    if deflection:
+        parts += [
+            f'<p class="counts"><span>{len(result.compounds)} compound(s)</span>'
+            f'<span class="status-ok">{counts["ok"]} ok</span>'
+            f'<span class="status-warning">{counts["warning"]} with warnings</span>'
+            f'<span class="status-failed">{counts["failed"]} failed</span></p>',
+            '<p class="note">Click a column heading to sort. Errors are 1σ standard '
+            "uncertainties; μ limits are upper limits at the stated confidence level.</p>",
+            f'<div class="wrap">{_summary_table(result, set(idx))}</div>',
+        ]
+    else:
+        kinds = []
+        if recoil is not None:
+            kinds.append(
+                f'<span><a href="#recoil">{len(recoil.compounds)} compound(s) with photon-recoil '
+                "data</a></span>"
             )
-    parts.append("</section>")
-    parts.append('<section id="compounds"><h2>Compounds</h2>')
-    if not plots:
-        parts.append('<p class="note">Figures need matplotlib: pip install "polarbeam[plots]".</p>')
-    if len(idx) < len(result.compounds):
+        if optical is not None:
+            kinds.append(
+                f'<span><a href="#optical">{len(optical.compounds)} compound(s) with visibility '
+                "data</a></span>"
+            )
+        parts.append(f'<p class="counts">{"".join(kinds)}</p>')
         parts.append(
-            f'<p class="note">Sections with figures for the first {len(idx)} of '
-            f"{len(result.compounds)} compounds (all compounds are in the table above and in "
-            "properties.csv / results.json).</p>"
+            '<p class="note">This campaign has no deflection data: its results are in the '
+            "sections below. Errors are 1σ standard uncertainties.</p>"
         )
-    for i in idx:
-        c = result.compounds[i]
-        stem = safe_name(c.compound)
-        if i in rendered:
-            made = rendered[i]
-        else:
-            try:
-                made = compound_figure_files(c) if plots else {}
-            except Exception:  # a figure that cannot be drawn must not cost the whole report
-                made = {}
-        figs = {kind: place(svg, png, f"{stem}-{kind}") for kind, (svg, png) in made.items()}
-        parts.append(_compound_section(i, c, figs))
+    parts += [f'<p class="note">{_e(n)}</p>' for n in result.notes]
     parts.append("</section>")
+    if deflection:
+        parts.append('<section id="compounds"><h2>Compounds</h2>')
+        if not plots:
+            parts.append(
+                '<p class="note">Figures need matplotlib: pip install "polarbeam[plots]".</p>'
+            )
+        if len(idx) < len(result.compounds):
+            parts.append(
+                f'<p class="note">Sections with figures for the first {len(idx)} of '
+                f"{len(result.compounds)} compounds (all compounds are in the table above and in "
+                "properties.csv / results.json).</p>"
+            )
+        for i in idx:
+            c = result.compounds[i]
+            stem = safe_name(c.compound)
+            if i in rendered:
+                made = rendered[i]
+            else:
+                try:
+                    made = compound_figure_files(c) if plots else {}
+                except Exception:  # a figure that cannot be drawn must not cost the whole report
+                    made = {}
+            figs = {kind: place(svg, png, f"{stem}-{kind}") for kind, (svg, png) in made.items()}
+            parts.append(_compound_section(i, c, figs))
+        parts.append("</section>")
+    elif not plots:
+        parts.append('<p class="note">Figures need matplotlib: pip install "polarbeam[plots]".</p>')
+    parts.append(computed_section(result, drawn(parity_figure, "parity", result), ELECTRONIC_NOTE))
+    if reduction is not None:
+        parts.append(
+            drift_section(
+                reduction,
+                lambda key: drawn(
+                    drift_figure, f"drift-{safe_name(key[0])}-{key[1]:g}K", reduction, key
+                ),
+            )
+        )
+    if recoil is not None:
+        spectrum = drawn(recoil_spectrum_figure, "recoil_spectrum", recoil)
+        per = {
+            c.compound: drawn(recoil_fit_figure, f"{safe_name(c.compound)}-recoil", c)
+            for c in recoil.compounds
+            if c.status != "failed"
+        }
+        parts.append(recoil_section(recoil, spectrum, {k: v for k, v in per.items() if v}))
+    if optical is not None:
+        per = {
+            c.compound: drawn(optical_figure, f"{safe_name(c.compound)}-visibility-power", c)
+            for c in optical.compounds
+            if c.status != "failed"
+        }
+        parts.append(optical_section(optical, {k: v for k, v in per.items() if v}))
+    parts.append(inputs_section(result))
+    parts.append(provenance_section(result))
     parts += [
         '<section id="method"><h2>Method</h2><ul>',
         "<li>α_eff = α + ⟨μ²⟩/(3kT) (Langevin–Debye, weak-field high-temperature limit); α is "

@@ -9,6 +9,8 @@ from polarbeam._util.atomic import write_bytes_atomic, write_text_atomic
 from polarbeam._util.cautions import CAUTIONS
 from polarbeam._util.optional import has
 from polarbeam.quantities import value_error_text
+from polarbeam.report.campaign_figures import recoil_spectrum_figure
+from polarbeam.report.figures import to_png, to_svg
 from polarbeam.report.text import guarded_frame, md_code, md_escape, terminal_safe
 from polarbeam.results.recoil import (
     RecoilCampaignResult,
@@ -44,10 +46,11 @@ def render_recoil_only(result: RecoilCampaignResult) -> str:
 
 
 def write_recoil_results(recoil: RecoilResult, out: str | Path) -> list[str]:
-    """Write ``recoil.csv`` (and ``recoil_spectrum.png`` when several lasers were used).
+    """Write ``recoil.csv`` (and ``figures/recoil_spectrum.png`` / ``.svg`` when several lasers
+    were used).
 
-    Returns the names of the files written.  The plot needs matplotlib (``polarbeam[plots]``);
-    without it the plot is skipped and a note saying so is written into the CSV's folder.
+    Returns the names of the files written (relative to ``out``).  The plot needs matplotlib
+    (``polarbeam[plots]``); without it the plot is skipped.
     """
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
@@ -56,44 +59,14 @@ def write_recoil_results(recoil: RecoilResult, out: str | Path) -> list[str]:
     write_text_atomic(out / "recoil.csv", buf.getvalue())
     written = ["recoil.csv"]
     if len(recoil.lasers) >= 2 and any(len(c.fits) >= 1 for c in recoil.compounds):
-        png = _spectrum_png(recoil)
-        if png is not None:
-            write_bytes_atomic(out / SPECTRUM_PLOT, png)
-            written.append(SPECTRUM_PLOT)
+        fig = recoil_spectrum_figure(recoil) if has("matplotlib") else None
+        if fig is not None:
+            (out / "figures").mkdir(exist_ok=True)
+            write_bytes_atomic(out / "figures" / SPECTRUM_PLOT, to_png(fig))
+            svg = SPECTRUM_PLOT.replace(".png", ".svg")
+            write_text_atomic(out / "figures" / svg, to_svg(fig))
+            written += [f"figures/{SPECTRUM_PLOT}", f"figures/{svg}"]
     return written
-
-
-def _spectrum_png(recoil: RecoilResult) -> bytes | None:
-    if not has("matplotlib"):  # optional extra polarbeam[plots]
-        return None
-    import matplotlib
-
-    matplotlib.use("Agg", force=False)
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(6.0, 4.0), dpi=120)
-    ax = fig.add_subplot()
-    for c in recoil.compounds:
-        if not c.fits:
-            continue
-        fits = sorted(c.fits, key=lambda f: f.wavelength_m)
-        ax.errorbar(
-            [f.wavelength_m * 1e9 for f in fits],
-            [f.cross_section_cm2 / 1e-16 for f in fits],
-            yerr=[f.cross_section_err_cm2 / 1e-16 for f in fits],
-            marker="o",
-            capsize=3,
-            label=c.compound,
-        )
-    ax.set_xlabel("wavelength (nm)")
-    ax.set_ylabel("absorption cross-section (10⁻¹⁶ cm²)")
-    ax.set_title("photon-recoil cross-sections (1σ errors)")
-    ax.axhline(0.0, color="0.7", lw=0.8)
-    ax.legend(fontsize="small")
-    fig.tight_layout()
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    return buf.getvalue()
 
 
 SPECTRUM_PLOT = "recoil_spectrum.png"

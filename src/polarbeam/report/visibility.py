@@ -9,6 +9,7 @@ from pathlib import Path
 from polarbeam._util.atomic import write_bytes_atomic, write_text_atomic
 from polarbeam._util.optional import has
 from polarbeam.quantities import value_error_text
+from polarbeam.report.figures import PALETTE, PNG_DPI
 from polarbeam.report.text import guarded_frame, md_escape, terminal_safe
 from polarbeam.results.visibility import OpticalResult
 
@@ -23,7 +24,8 @@ VISIBILITY_PLOT = "visibility.png"
 
 
 def write_optical_results(optical: OpticalResult, out: str | Path) -> list[str]:
-    """Write ``optical.csv`` and ``visibility.png`` (the latter needs ``polarbeam[plots]``)."""
+    """Write ``optical.csv`` and ``figures/visibility.png`` (the latter needs
+    ``polarbeam[plots]``)."""
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
     buf = io.StringIO()
@@ -33,8 +35,9 @@ def write_optical_results(optical: OpticalResult, out: str | Path) -> list[str]:
     if any(c.curves for c in optical.compounds):
         png = _figure_png(optical)
         if png is not None:
-            write_bytes_atomic(out / VISIBILITY_PLOT, png)
-            written.append(VISIBILITY_PLOT)
+            (out / "figures").mkdir(exist_ok=True)
+            write_bytes_atomic(out / "figures" / VISIBILITY_PLOT, png)
+            written.append(f"figures/{VISIBILITY_PLOT}")
     return written
 
 
@@ -54,7 +57,7 @@ def _figure_png(optical: OpticalResult) -> bytes | None:
         top = fig.add_subplot(grid[0, j])
         bottom = fig.add_subplot(grid[1, j], sharex=top)
         for k, s in enumerate(c.curves):
-            color = f"C{k}"
+            color = PALETTE[k % len(PALETTE)]
             top.errorbar(
                 s.powers,
                 s.visibilities,
@@ -79,7 +82,7 @@ def _figure_png(optical: OpticalResult) -> bytes | None:
         bottom.set_ylabel("residual (σ), quantum")
     fig.tight_layout()
     buf = io.BytesIO()
-    fig.savefig(buf, format="png")
+    fig.savefig(buf, format="png", dpi=PNG_DPI)
     return buf.getvalue()
 
 

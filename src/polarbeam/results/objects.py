@@ -79,6 +79,9 @@ class SeriesResult:
     extra: dict[str, Any] = field(default_factory=dict)
     visibility: np.ndarray | None = None  # relative to the zero-field references (raw scans)
     visibility_err: np.ndarray | None = None
+    #: the fitted model on a dense voltage grid (V; observable), for figures (None: not stored)
+    curve_voltages: np.ndarray | None = field(default=None, repr=False)
+    curve: np.ndarray | None = field(default=None, repr=False)
     time_of_flight: VelocityRecord | None = None  # distribution fitted to a trace, when given
     #: (velocities m/s, density per m/s, relative contrast or None) of the velocity model, for
     #: the report's distribution figure (not written to the tables)
@@ -397,6 +400,8 @@ class CampaignResult:
     calibration: dict[str, Any] | None = None  # reference-compound calibration (calibration.py)
     input_warnings: tuple[str, ...] = ()  # implausible inputs (also in notes), for stderr
     provenance: dict[str, Any] = field(default_factory=dict)  # date, software, input hashes
+    #: the raw-scan reduction (reduction.ReducedPhases) when the campaign started from scans
+    reduction: Any = field(default=None, repr=False, compare=False)
 
     @property
     def series(self) -> pd.DataFrame:

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from typing import Any
 
 import numpy as np
 from uncertainties import ufloat
@@ -136,6 +137,8 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
                 errors=s.errors,
                 model=fit.model,
                 modulus=fit.modulus,
+                curve_voltages=fit.curve_voltages,
+                curve=fit.curve,
                 alpha_eff=a_eff,
                 offset=fit.offset,
                 chi2=fit.chi2,
@@ -325,14 +328,36 @@ def _rescaled(statement, response, results, temps, ctx, st):
     )
 
 
+def stated_in(doc: dict, key: str) -> bool:
+    """Whether the stated-input ``key`` (``"section.name"`` or ``"section.name[i]"``) was written
+    in the campaign file ``doc``; False means the value is a default."""
+    node: Any = doc
+    for part in key.split("."):
+        name = part.partition("[")[0]
+        if not isinstance(node, dict) or name not in node:
+            return False
+        node = node[name]
+    return True
+
+
 def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
     stated = {
-        k: {"value": m.value, "error": m.error, "dlnC_dp": ctx.sensitivities.get(k)}
+        k: {
+            "value": m.value,
+            "error": m.error,
+            "dlnC_dp": ctx.sensitivities.get(k),
+            "default": not stated_in(c.raw, k),
+        }
         for k, m in c.stated.items()
     }
     if c.thermometer_offset is not None:  # not an input of the coupling: no dlnC_dp
         m = c.thermometer_offset
-        stated["source.thermometer_offset"] = {"value": m.value, "error": m.error, "dlnC_dp": None}
+        stated["source.thermometer_offset"] = {
+            "value": m.value,
+            "error": m.error,
+            "dlnC_dp": None,
+            "default": not stated_in(c.raw, "source.thermometer_offset"),
+        }
     notes = list(c.warnings)  # implausible inputs first: the likely unit slips
     notes += c.table_notes
     if c.layout == "time-domain":
@@ -364,6 +389,7 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         notes=tuple(notes),
         input_warnings=c.warnings,
         provenance=provenance(input_files(c.path, c.raw)),
+        reduction=c.reduction,
     )
 
 

@@ -19,6 +19,10 @@ from polarbeam.instrument.fields.result import DeflectorSolution
 __all__ = ["plot_cross_section"]
 
 
+#: Vermillion of the Okabe–Ito palette (the report's colour-blind-safe palette) for the beam.
+BEAM_COLOUR = "#D55E00"
+
+
 def plot_cross_section(
     solution: FieldSolution | DeflectorSolution,
     path: str | Path,
@@ -71,11 +75,11 @@ def plot_cross_section(
                 max(x1 - x0, 1e-9) * MM,
                 max(y1 - y0, 1e-9) * MM,
                 fill=False,
-                ec="r",
+                ec=BEAM_COLOUR,
                 lw=1.5,
             )
         )
-        ax.plot([beam.x0 * MM], [beam.y0 * MM], "r+")
+        ax.plot([beam.x0 * MM], [beam.y0 * MM], "+", color=BEAM_COLOUR)
     ax.set_xlim(box.xmin * MM, box.xmax * MM)
     ax.set_ylim(box.ymin * MM, box.ymax * MM)
     ax.set_aspect("equal")
