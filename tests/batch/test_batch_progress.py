@@ -4,9 +4,12 @@ campaigns (times scripted, no clock involved)."""
 from __future__ import annotations
 
 import io
+from pathlib import Path
 
 from polarbeam.batch import progress as progress_module
 from polarbeam.batch.progress import ProgressEvent, TerminalProgress
+from polarbeam.batch.state import result_compounds
+from polarbeam.pipeline.analysis import analyze
 
 
 def test_rate_counts_from_the_start_of_the_run(monkeypatch):
@@ -22,3 +25,11 @@ def test_rate_counts_from_the_start_of_the_run(monkeypatch):
     lines = out.getvalue().splitlines()
     assert lines[2] == "a: 2/2 compounds (0.1/s)"  # 2 / 14 s, as "2 compound(s) in 14 s" says
     assert lines[-1] == "b: 2/2 compounds (0.2/s)"  # 4 / 20 s over the whole run
+
+
+def test_recoil_and_visibility_compounds_are_counted():
+    root = Path(__file__).resolve().parents[2] / "examples"
+    recoil = analyze(root / "recoil" / "campaign.toml")
+    assert not recoil.compounds and result_compounds(recoil) == ["chromo-A", "chromo-B"]
+    optical = analyze(root / "visibility" / "campaign.toml")
+    assert len(result_compounds(optical)) == len(optical.optical.compounds) >= 1

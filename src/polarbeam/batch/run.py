@@ -43,6 +43,7 @@ from polarbeam.batch.state import (
     CampaignRun,
     load_record,
     record_text,
+    result_compounds,
     write_index,
     write_state,
 )
@@ -369,7 +370,8 @@ def run_cli(
             n_warn = sum(c.status == "warning" for c in r.compounds)
             reused = f", {run.reused} reused" if run.reused else ""
             echo(
-                f"{run.name}: {len(r.compounds)} compound(s), {n_fail} failed, {n_warn} with "
+                f"{run.name}: {len(result_compounds(r))} compound(s), {n_fail} failed, "
+                f"{n_warn} with "
                 f"warnings{reused}; written to {run.out}/ "
                 f"({', '.join(written_files(run.out)) or 'no files'})"
             )

@@ -19,6 +19,7 @@ __all__ = [
     "CampaignRun",
     "load_record",
     "record_text",
+    "result_compounds",
     "write_index",
     "write_state",
 ]
@@ -61,7 +62,16 @@ class BatchOutcome:
 
     @property
     def n_compounds(self) -> int:
-        return sum(len(r.result.compounds) for r in self.runs if r.result is not None)
+        return sum(len(result_compounds(r.result)) for r in self.runs if r.result is not None)
+
+
+def result_compounds(result) -> list[str]:
+    """The distinct compounds a campaign result holds: deflection, photon-recoil and visibility
+    (optical) results together (a compound measured both ways counts once)."""
+    names = [c.compound for c in result.compounds]
+    for extra in ("recoil", "optical"):
+        names += [c.compound for c in getattr(getattr(result, extra, None), "compounds", ())]
+    return list(dict.fromkeys(names))
 
 
 def write_state(out: Path, **state) -> None:
