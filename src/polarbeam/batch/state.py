@@ -66,12 +66,9 @@ class BatchOutcome:
 
 
 def result_compounds(result) -> list[str]:
-    """The distinct compounds a campaign result holds: deflection, photon-recoil and visibility
-    (optical) results together (a compound measured both ways counts once)."""
-    names = [c.compound for c in result.compounds]
-    for extra in ("recoil", "optical"):
-        names += [c.compound for c in getattr(getattr(result, extra, None), "compounds", ())]
-    return list(dict.fromkeys(names))
+    """The distinct compounds a campaign result holds, over every part (deflection, photon
+    recoil, visibility …; a compound measured two ways counts once)."""
+    return result.compound_names()
 
 
 def write_state(out: Path, **state) -> None:

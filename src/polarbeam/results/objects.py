@@ -430,18 +430,31 @@ class CampaignResult:
             f"{self.n_failed} failed, {self.layout}, {self.model} deflector)"
         )
 
+    def parts(self) -> tuple[tuple[str, tuple[Any, ...]], ...]:
+        """Every kind of per-compound result this campaign holds, as ``(kind, compounds)``.
+
+        A campaign result that attaches another kind (photon recoil, visibility, …) extends this
+        one method; the failure count, the exit code and the batch's compound count all read it.
+        """
+        return (("deflection", tuple(self.compounds)),)
+
+    def compound_names(self) -> list[str]:
+        """The distinct compounds of every part (a compound measured two ways counts once)."""
+        return list(dict.fromkeys(c.compound for _, part in self.parts() for c in part))
+
     @property
     def n_failed(self) -> int:
-        return sum(c.status == "failed" for c in self.compounds)
+        return sum(c.status == "failed" for _, part in self.parts() for c in part)
 
     @property
     def exit_code(self) -> int:
-        """0 when no compound failed, 2 when every compound failed, else 1."""
-        if not self.compounds:
+        """0 when no compound of any part failed, 2 when every one failed (or none), else 1."""
+        total = sum(len(part) for _, part in self.parts())
+        if total == 0:
             return 2
         if self.n_failed == 0:
             return 0
-        return 2 if self.n_failed == len(self.compounds) else 1
+        return 2 if self.n_failed == total else 1
 
     def summary(self) -> dict[str, Any]:
         return {

@@ -215,20 +215,9 @@ class RecoilCampaignResult(CampaignResult):
 
     recoil: RecoilResult | None = None
 
-    @property
-    def n_failed(self) -> int:
-        extra = self.recoil.n_failed if self.recoil is not None else 0
-        return sum(c.status == "failed" for c in self.compounds) + extra
-
-    @property
-    def exit_code(self) -> int:
-        """0 when nothing failed, 2 when every compound (deflection and recoil) failed, else 1."""
-        total = len(self.compounds) + (len(self.recoil.compounds) if self.recoil else 0)
-        if total == 0:
-            return 2
-        if self.n_failed == 0:
-            return 0
-        return 2 if self.n_failed == total else 1
+    def parts(self) -> tuple[tuple[str, tuple[Any, ...]], ...]:
+        own = (("recoil", tuple(self.recoil.compounds)),) if self.recoil is not None else ()
+        return super().parts() + own
 
     def summary(self) -> dict[str, Any]:
         out = super().summary()

@@ -174,24 +174,9 @@ class OpticalCampaignResult(RecoilCampaignResult):
 
     optical: OpticalResult | None = None
 
-    @property
-    def n_failed(self) -> int:
-        extra = self.optical.n_failed if self.optical is not None else 0
-        return super().n_failed + extra
-
-    @property
-    def exit_code(self) -> int:
-        """0 when nothing failed, 2 when every compound of every kind failed, else 1."""
-        total = (
-            len(self.compounds)
-            + (len(self.recoil.compounds) if self.recoil else 0)
-            + (len(self.optical.compounds) if self.optical else 0)
-        )
-        if total == 0:
-            return 2
-        if self.n_failed == 0:
-            return 0
-        return 2 if self.n_failed == total else 1
+    def parts(self) -> tuple[tuple[str, tuple[Any, ...]], ...]:
+        own = (("optical", tuple(self.optical.compounds)),) if self.optical is not None else ()
+        return super().parts() + own
 
     def summary(self) -> dict[str, Any]:
         out = super().summary()
