@@ -275,7 +275,7 @@ def simulate(
     seed: int = typer.Option(0, help="random seed"),
     layout: str = typer.Option("talbot-lau", help="talbot-lau, beam-profile or time-domain"),
 ):
-    """Write a simulated campaign (random compound, known truth) in the input contract."""
+    """Write a simulated campaign (random compound) in the input contract, its truth.json beside."""
     import json
 
     try:
@@ -288,6 +288,7 @@ def simulate(
                 "alpha_A3": comp.alpha_A3,
                 "dipole_D": comp.dipole_D,
                 "campaign": str(truth.path / "campaign.toml"),
+                "truth": str(truth.path / "truth.json"),
             }
         )
     )
