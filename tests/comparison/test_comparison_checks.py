@@ -35,3 +35,14 @@ def test_z_score_by_hand():
 )
 def test_verdict_by_hand(alpha_z, eff_z, dipole, start):
     assert verdict(alpha_z, eff_z, dipole).startswith(start)
+
+
+def test_structure_columns_name_the_dipole_as_estimate_does():
+    """properties.csv / results.json carry the structure dipole as `dipole_rms_D`, the column
+    `polarbeam estimate --dipoles` writes (one name per dipole quantity)."""
+    from polarbeam.comparison.structure_check import StructurePrediction
+
+    pred = StructurePrediction("CCO", 46.07, 5.1, 0.2, {}, (), dipole_rms_D=1.6)
+    cols = pred.columns()
+    assert cols["dipole_rms_D"] == 1.6
+    assert not [k for k in cols if "dipole_pred" in k]

@@ -148,7 +148,7 @@ def plan(
             "compound",
             "temperature_K",
             "alpha_eff_pred_A3",
-            "sigma_alpha_eff_pred_A3",
+            "alpha_eff_expected_err_A3",
             "voltage_max_V",
             "beam_time_h",
         ]

@@ -293,10 +293,10 @@ def _crosscheck_lines(c) -> list[str]:
     )
     if x.get("alpha_z") is not None and math.isfinite(x["alpha_z"]):
         out += ["", f"measured α − additive: z = {x['alpha_z']:+.1f}"]
-    if x.get("dipole_predicted_D") is not None:
+    if x.get("dipole_rms_D") is not None:
         out += [
             "",
-            f"force-field conformer dipole √⟨μ²⟩ ≈ {x['dipole_predicted_D']:.2f} D "
+            f"force-field conformer dipole √⟨μ²⟩ ≈ {x['dipole_rms_D']:.2f} D "
             "(force-field charges give rough dipoles: expect tens of percent)",
         ]
     rows = [s for s in c.series if "alpha_eff_pred_A3" in s.extra]
