@@ -246,7 +246,8 @@ def _parity_lines(result: CampaignResult) -> list[str]:
     ]
     for r in par.to_dict(orient="records"):
         out.append(
-            f"| {md_escape(r['method'])} | {r['n_compounds']} | {r['mean_signed_dev_A3']:+.2f} | "
+            f"| {md_escape(r['qc_method'])} | {r['n_compounds']} | "
+            f"{r['mean_signed_dev_A3']:+.2f} | "
             f"{r['mean_signed_dev_pct']:+.1f} | {r['mean_abs_dev_A3']:.2f} | "
             f"{r['mean_abs_dev_pct']:.1f} | {md_escape(r['verdict'])} |"
         )
@@ -265,7 +266,7 @@ def _parity_lines(result: CampaignResult) -> list[str]:
         ]
         for r in cmp_.to_dict(orient="records"):
             out.append(
-                f"| {md_escape(r['compound'])} | {md_escape(r['method'])} | "
+                f"| {md_escape(r['compound'])} | {md_escape(r['qc_method'])} | "
                 f"{r['alpha_computed_A3']:.2f} | "
                 f"{value_error_text(r['alpha_measured_A3'], r['alpha_measured_err_A3'])} | "
                 f"{r['alpha_diff_A3']:+.2f} |"

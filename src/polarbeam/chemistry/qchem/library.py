@@ -15,6 +15,7 @@ from pathlib import Path
 
 from polarbeam._util.atomic import write_text_atomic
 from polarbeam._util.tables import read_table
+from polarbeam.chemistry.computed import COMPUTED_CSV_COLUMNS
 from polarbeam.chemistry.qchem.compute import (
     ProgressCallback,
     compute_properties,
@@ -38,19 +39,6 @@ __all__ = [
 
 #: Response schemes of the polarizability a library run accepts.
 POLARIZABILITY_SCHEMES = ("analytic", "finite-field")
-
-#: Columns of ``computed.csv`` (the ``[data] computed`` contract), in order.
-_COMPUTED_CSV = (
-    "compound",
-    "method",
-    "alpha",
-    "alpha_unit",
-    "dipole_D",
-    "alpha_xx",
-    "alpha_yy",
-    "alpha_zz",
-    "source",
-)
 
 
 def check_conformer_options(conformers: int, temperature_K: float) -> None:
@@ -210,17 +198,12 @@ def _conformer_result(
 
 
 def write_computed(results: list[ComputedResult], out: str | Path) -> None:
-    """Write ``computed.csv`` (Å³ and debye, ``alpha_unit = A3``) atomically."""
+    """Write ``computed.csv`` atomically, units in the column names (:data:`COMPUTED_CSV_COLUMNS`:
+    ``compound, qc_method, alpha_A3, dipole_D, alpha_xx_A3 …, source``), the layout
+    :func:`~polarbeam.chemistry.read_computed` reads."""
     table = results_table(results).rename(
-        columns={
-            "alpha_computed_A3": "alpha",
-            "dipole_computed_D": "dipole_D",
-            "alpha_xx_A3": "alpha_xx",
-            "alpha_yy_A3": "alpha_yy",
-            "alpha_zz_A3": "alpha_zz",
-        }
+        columns={"alpha_computed_A3": "alpha_A3", "dipole_computed_D": "dipole_D"}
     )
-    table.insert(3, "alpha_unit", "A3")  # the [data] computed input contract
     buf = io.StringIO()
-    table[[c for c in _COMPUTED_CSV if c in table]].to_csv(buf, index=False, lineterminator="\n")
+    table[list(COMPUTED_CSV_COLUMNS)].to_csv(buf, index=False, lineterminator="\n")
     write_text_atomic(out, buf.getvalue())
