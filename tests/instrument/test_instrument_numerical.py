@@ -412,3 +412,10 @@ def test_plot_labels_the_applied_potentials_and_names_the_axes(tmp_path):
         assert not [x for x in texts if "14.59" in x or "24.59" in x or "e+04" in x]
         assert "x, deflection direction (mm)" in texts
         assert "y, height across the deflection (mm)" in texts
+
+
+def test_field_json_names_errors_with_err(tmp_path):
+    """One error naming: the 1σ of g from the stated inputs is `field_factor_err_per_m3`."""
+    d = _field_json(_two_wire_campaign(tmp_path))
+    assert d["field_factor_err_per_m3"] > 0
+    assert not [k for k in d if "sigma" in k]

@@ -85,7 +85,7 @@ class FieldReport:
                 "field_factor_rel_rms": self.field_factor_rel_rms,
                 "numerical_error_per_m3": self.numerical_error_per_m3,
                 "numerical_error_note": self.numerical_error_note,
-                "tolerance_sigma_per_m3": self.tolerance_sigma_per_m3,
+                "field_factor_err_per_m3": self.tolerance_sigma_per_m3,  # 1σ from stated inputs
                 "tolerance_budget": dict(self.tolerance_budget),
                 "beam": dict(self.beam),
                 "grid_h_m": self.grid_h_m,
