@@ -43,6 +43,8 @@ _API: dict[str, str] = {
     "SeriesResult": "polarbeam.results.objects",
     "Measured": "polarbeam.quantities",
     "parse_quantity": "polarbeam.quantities",
+    "parse_duration": "polarbeam.contract.arguments",
+    "parse_temperature": "polarbeam.contract.arguments",
     "PolarbeamError": "polarbeam.errors",
     "InputError": "polarbeam.errors",
     "CompoundError": "polarbeam.errors",

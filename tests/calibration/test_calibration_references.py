@@ -341,4 +341,4 @@ def test_field_command_reports_calibrated_g(one_ref):
     assert d["calibration"]["quantity"] == "field_factor"
     assert math.isclose(d["field_factor_per_m3"], d["calibration"]["field_factor_per_m3"])
     assert math.isclose(d["E_dE_dx_V2_per_m3"], d["field_factor_per_m3"] * 4e6, rel_tol=1e-12)
-    assert d["tolerance_sigma_per_m3"] > 0 and d["E_V_per_m"] is None
+    assert d["field_factor_err_per_m3"] > 0 and d["E_V_per_m"] is None

@@ -66,6 +66,38 @@ CASES = [
         _no_output,
     ),
     Case(
+        "compute --max-seconds with a unit that is not a time",
+        _compute("--max-seconds", "3 m"),
+        2,
+        r"^error: --max-seconds: expected a unit of s, found 'm' in '3 m'$",
+        _no_output,
+    ),
+    Case(
+        "compute --max-seconds of zero",
+        _compute("--max-seconds", "0 s"),
+        2,
+        r"^error: --max-seconds: expected a time > 0 s, found '0 s'$",
+        _no_output,
+    ),
+    Case(
+        "compute --name with a CSV of compounds",
+        lambda f: (
+            (f / "lib.csv").write_text("compound,smiles\nwater,O\n", encoding="utf-8"),
+            ["compute", str(f / "lib.csv"), "--name", "x", "--out", str(f / "computed.csv")],
+        )[1],
+        2,
+        r"^error: --name: expected one molecule \(a SMILES or a structure file\), found the CSV "
+        r"lib\.csv",
+        _no_output,
+    ),
+    Case(
+        "estimate --temperature below zero kelvin",
+        lambda f: [*_library("compound,smiles\nethanol,CCO\n")(f), "--temperature", "-3 K"],
+        2,
+        r"^error: --temperature: expected a temperature > 0 K, found '-3 K'$",
+        lambda f: None if not (f / "est.csv").exists() else pytest.fail("est.csv written"),
+    ),
+    Case(
         "compute --conformers at a temperature of 0 K",
         _compute("--conformers", "4", "--temperature", "0"),
         2,

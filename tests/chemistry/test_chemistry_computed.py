@@ -218,7 +218,7 @@ def test_compare_arithmetic():
     cmp = compare(_measured_table(), _computed_table(), temperatures=[300.0])
     assert list(cmp.columns[: len(COMPARISON_COLUMNS)]) == COMPARISON_COLUMNS
     assert len(cmp) == 6  # 's' has no computed value
-    row = cmp[(cmp.compound == "q") & (cmp.method == "m1")].iloc[0]
+    row = cmp[(cmp.compound == "q") & (cmp.qc_method == "m1")].iloc[0]
     assert row["alpha_diff_A3"] == pytest.approx(1.0)  # measured − computed = 20 − 19
     assert row["alpha_diff_err_A3"] == 0.2  # experimental error only
     # α + μ²/(3kT) with μ = 1 D, 300 K: μ²/(3kT)/(4πε0) from scipy.constants
@@ -230,7 +230,7 @@ def test_compare_arithmetic():
 def test_compare_with_measured_dipole_and_bad_tables():
     meas = _measured_table().assign(dipole_D=[0.0, 1.05, 2.2, 0.0], dipole_err_D=0.05)
     cmp = compare(meas, _computed_table())
-    row = cmp[(cmp.compound == "r") & (cmp.method == "m2")].iloc[0]
+    row = cmp[(cmp.compound == "r") & (cmp.qc_method == "m2")].iloc[0]
     assert row["dipole_diff_D"] == pytest.approx(0.1)
     with pytest.raises(
         InputError, match=r"measured table: expected columns .*missing alpha_err_A3"
@@ -253,7 +253,7 @@ def test_compare_series_langevin_debye():
     out = compare_series(series, _computed_table())
     assert list(out.columns) == SERIES_COMPARISON_COLUMNS
     assert len(out) == 4
-    row = out[(out.method == "m1") & (out.temperature_K == 400.0)].iloc[0]
+    row = out[(out.qc_method == "m1") & (out.temperature_K == 400.0)].iloc[0]
     mu = 2.0e-21 / sc.c  # 2 D
     orient = mu**2 / (3 * sc.k * 400.0) / (4 * math.pi * sc.epsilon_0) * 1e30
     assert row["orientational_computed_A3"] == pytest.approx(orient, rel=1e-12)
@@ -267,7 +267,7 @@ def test_compare_series_langevin_debye():
 def test_parity_table_against_hand_numbers():
     par = parity_table(compare(_measured_table(), _computed_table()))
     assert list(par.columns) == PARITY_COLUMNS
-    m1 = par[par.method == "m1"].iloc[0]
+    m1 = par[par.qc_method == "m1"].iloc[0]
     # m1: computed − measured = −0.4, −1.0, −0.25 Å³; relative −4 %, −5 %, −5 %
     assert m1["n_compounds"] == 3
     assert m1["mean_signed_dev_A3"] == pytest.approx(-0.55)
@@ -277,7 +277,7 @@ def test_parity_table_against_hand_numbers():
     assert m1["max_abs_dev_A3"] == pytest.approx(1.0)
     assert m1["n_within_2sigma"] == 1  # only p: |−0.4| ≤ 0.6
     assert m1["verdict"] == "m1 underestimates the set by 4.7 % on average (n=3)"
-    m2 = par[par.method == "m2"].iloc[0]
+    m2 = par[par.qc_method == "m2"].iloc[0]
     # m2: +0.2, +0.4, 0.0 → +2 %, +2 %, 0 %
     assert m2["mean_signed_dev_pct"] == pytest.approx(4.0 / 3)
     assert m2["verdict"].startswith("m2 overestimates the set by 1.3 %")
@@ -309,7 +309,7 @@ def test_read_outputs_through_cclib(tmp_path):
     df, notes = read_outputs(["qc/*.out", "missing/*.log"], tmp_path)
     assert sorted(df["compound"]) == ["aqua", "nodip"]
     row = df[df.compound == "aqua"].iloc[0]
-    assert row["method"] == "B3LYP/aug-cc-pvdz"
+    assert row["qc_method"] == "B3LYP/aug-cc-pvdz"
     # polarizability in a.u. → Å³ with the CODATA Bohr radius
     assert row["alpha_computed_A3"] == pytest.approx(9.6 * BOHR_A**3, rel=1e-9)
     assert row["alpha_xx_A3"] == pytest.approx(9.3 * BOHR_A**3, rel=1e-9)
@@ -340,3 +340,63 @@ def test_missing_cclib_gives_one_line_install_hint(monkeypatch, tmp_path):
     monkeypatch.setattr(importlib, "import_module", no_cclib)
     with pytest.raises(MissingExtraError, match=r"needs cclib, .*pip install 'polarbeam\[qc\]'"):
         read_outputs(["*.out"], tmp_path)
+
+
+# ------------------------------------------------- units in the column names (computed.csv)
+
+
+def test_units_in_the_names_are_read_like_the_old_layout(tmp_path):
+    """`qc_method, alpha_A3` (or `alpha_bohr3`) give the same table as `method, alpha,
+    alpha_unit`; only the old layout gets the deprecation note."""
+    old = write(tmp_path, HEADER + "delta,hf,10,bohr3,0.5,9,10,11\n")
+    notes: list[str] = []
+    a = read_computed(old, notes=notes)
+    assert len(notes) == 1 and "deprecated: name them qc_method, alpha_A3" in notes[0]
+    assert "\n" not in notes[0]
+    new = tmp_path / "new.csv"
+    new.write_text(
+        "compound,qc_method,alpha_bohr3,dipole_D,alpha_xx_bohr3,alpha_yy_bohr3,alpha_zz_bohr3\n"
+        "delta,hf,10,0.5,9,10,11\n",
+        encoding="utf-8",
+    )
+    notes.clear()
+    b = read_computed(new, notes=notes)
+    assert notes == []
+    cols = ["compound", "qc_method", "alpha_computed_A3", "dipole_computed_D", "alpha_xx_A3"]
+    pd.testing.assert_frame_equal(a[cols], b[cols])
+    assert b.loc[0, "alpha_computed_A3"] == pytest.approx(10 * BOHR_A**3)
+
+
+def test_units_in_the_names_errors_name_the_columns_of_the_file(tmp_path):
+    p = tmp_path / "computed.csv"
+    p.write_text("compound,qc_method,alpha_A3\nx,hf,1\n", encoding="utf-8")
+    with pytest.raises(InputError, match=r"expected columns compound, qc_method, alpha_A3, "
+                       r"dipole_D, missing dipole_D"):  # fmt: skip
+        read_computed(p)
+    p.write_text("compound,qc_method,alpha_A3,dipole_D\nx,hf,-1,0\n", encoding="utf-8")
+    with pytest.raises(RowValueError, match=r"column alpha_A3: expected a value > 0"):
+        read_computed(p)
+
+
+def test_compute_output_round_trips_through_the_reader(tmp_path):
+    """write_computed writes units in the names; read_computed gives back the same values."""
+    from polarbeam.chemistry.computed import COMPUTED_CSV_COLUMNS
+    from polarbeam.chemistry.qchem import ComputedResult, write_computed
+
+    r = ComputedResult(
+        name="w",
+        method="hf",
+        basis="sto-3g",
+        polarizability_method="CPHF",
+        alpha_si=1.0e-40,
+        dipole_si=5.0e-30,
+        geometry=None,
+        alpha_tensor_si=((0.9e-40, 0, 0), (0, 1.0e-40, 0), (0, 0, 1.1e-40)),
+    )
+    out = tmp_path / "computed.csv"
+    write_computed([r], out)
+    assert out.read_text(encoding="utf-8").splitlines()[0] == ",".join(COMPUTED_CSV_COLUMNS)
+    back = read_computed(out)
+    assert back.loc[0, "qc_method"] == "hf/sto-3g"
+    assert back.loc[0, "alpha_computed_A3"] == pytest.approx(r.alpha_A3, rel=1e-12)
+    assert back.loc[0, "dipole_computed_D"] == pytest.approx(r.dipole_D, rel=1e-12)

@@ -222,12 +222,12 @@ def test_results_feed_the_comparison(water_b3lyp, cache):
     res, _ = water_b3lyp
     hf = compute_properties("O", "hf", "def2-svpd", cache_dir=cache)
     table = results_table([res, hf])
-    assert list(table["method"]) == ["b3lyp/def2-svpd", "hf/def2-svpd"]
+    assert list(table["qc_method"]) == ["b3lyp/def2-svpd", "hf/def2-svpd"]
     measured = pd.DataFrame(
         {"compound": ["O"], "alpha_A3": [WATER_ALPHA_A3], "alpha_err_A3": [0.02]}
     )
     par = parity_table(compare(measured, table))
-    hf_row = par[par.method == "hf/def2-svpd"].iloc[0]
+    hf_row = par[par.qc_method == "hf/def2-svpd"].iloc[0]
     assert hf_row["mean_signed_dev_pct"] == pytest.approx(100 * (hf.alpha_A3 / 1.45 - 1))
     assert hf_row["verdict"].startswith("hf/def2-svpd underestimates the set")
 
@@ -266,7 +266,7 @@ def test_d4_estimate_for_water():
     # D4 atomic reference polarizabilities come from TD-DFT; water within 10 % of the CRC value
     assert d4.alpha_A3 == pytest.approx(WATER_ALPHA_A3, rel=0.10)
     row = results_table([d4]).iloc[0]
-    assert row["method"] == "D4" and math.isnan(row["anisotropy_A3"])
+    assert row["qc_method"] == "D4" and math.isnan(row["anisotropy_A3"])
 
 
 def test_dipole_of_an_ion_is_about_the_centre_of_mass(cache):

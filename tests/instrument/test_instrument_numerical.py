@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from pathlib import Path
 
 import numpy as np
@@ -388,3 +389,33 @@ def test_plot_two_wire_and_numerical(tmp_path):
         r = runner.invoke(app, ["field", str(t), "--voltage", "10 kV", "--plot", str(out)])
         assert r.exit_code == 0, r.output
         assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_plot_labels_the_applied_potentials_and_names_the_axes(tmp_path):
+    """A 10 kV run labels trough 0 V and convex 10 kV (not the line-charge values K·θ, 14.59 and
+    24.59 kV for this geometry); the axes are x (deflection) and y, as in the README."""
+    mpl = pytest.importorskip("matplotlib", reason=missing_reason("matplotlib"))
+    toml = _two_wire_campaign(tmp_path)
+    # the line-pair potentials 2K·arctan(a/y) of this geometry (README worked case): the offset
+    # that must not leak into the labels
+    a, y1, y2 = 2.0, 1.6, 3.4
+    k = 10e3 / (2 * (math.atan(a / y1) - math.atan(a / y2)))
+    assert 2 * k * math.atan(a / y2) == pytest.approx(14.59e3, abs=10)
+    for t in (toml, _numerical(toml)):
+        out = tmp_path / f"{t.stem}.svg"
+        with mpl.rc_context({"svg.fonttype": "none"}):  # text kept as text in the SVG
+            r = runner.invoke(app, ["field", str(t), "--voltage", "10 kV", "--plot", str(out)])
+        assert r.exit_code == 0, r.output
+        texts = re.findall(r"<text[^>]*>([^<]*)</text>", out.read_text(encoding="utf-8"))
+        labels = texts[texts.index("convex") : texts.index("convex") + 4]
+        assert labels == ["convex", "10 kV", "trough", "0 V"], (t.name, texts)
+        assert not [x for x in texts if "14.59" in x or "24.59" in x or "e+04" in x]
+        assert "x, deflection direction (mm)" in texts
+        assert "y, height across the deflection (mm)" in texts
+
+
+def test_field_json_names_errors_with_err(tmp_path):
+    """One error naming: the 1σ of g from the stated inputs is `field_factor_err_per_m3`."""
+    d = _field_json(_two_wire_campaign(tmp_path))
+    assert d["field_factor_err_per_m3"] > 0
+    assert not [k for k in d if "sigma" in k]

@@ -105,14 +105,14 @@ def test_computed_comparison(demo_out):
     cmp_ = pd.read_csv(out / "comparison.csv")
     assert list(cmp_.columns[:7]) == [
         "compound",
-        "method",
+        "qc_method",
         "alpha_computed_A3",
         "dipole_computed_D",
         "alpha_measured_A3",
         "alpha_measured_err_A3",
         "alpha_diff_A3",
     ]
-    row = cmp_[(cmp_.compound == "DM-101") & (cmp_.method == "b3lyp/def2-svpd")].iloc[0]
+    row = cmp_[(cmp_.compound == "DM-101") & (cmp_.qc_method == "b3lyp/def2-svpd")].iloc[0]
     # 98.0 bohr³ × 0.148184711 Å³/bohr³ (CODATA a0³) = 14.522 Å³
     assert math.isclose(row.alpha_computed_A3, 98.0 * 0.148184711, rel_tol=1e-8)
     diff = row.alpha_measured_A3 - row.alpha_computed_A3
@@ -186,7 +186,7 @@ def test_compute_cli_round_trips_into_computed_csv(tmp_path):
     )
     assert r.exit_code == 0, r.output
     df = read_computed(out)
-    assert df.iloc[0]["method"] == "hf/sto-3g" and df.iloc[0]["alpha_computed_A3"] > 0
+    assert df.iloc[0]["qc_method"] == "hf/sto-3g" and df.iloc[0]["alpha_computed_A3"] > 0
 
 
 @pytest.mark.slow

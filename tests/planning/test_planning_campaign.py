@@ -35,13 +35,13 @@ def test_worked_example_plan_then_analyze_rehearsal(tmp_path):
         "compound",
         "temperature_K",
         "alpha_eff_pred_A3",
-        "sigma_alpha_eff_pred_A3",
+        "alpha_eff_expected_err_A3",
         "voltage_max_V",
         "n_voltages",
         "scans_per_voltage",
         "beam_time_h",
     ]
-    assert {"sigma_alpha_pred_A3", "sigma_dipole_pred_D"} <= set(table.columns)
+    assert {"alpha_expected_err_A3", "dipole_expected_err_D"} <= set(table.columns)
     assert set(table["compound"]) == {"DM-101", "DM-102", "DM-103", "DM-104", "DM-105", "DM-107"}
     assert table.groupby("compound").size().eq(3).all()
     for name in table["compound"].unique():
@@ -49,6 +49,11 @@ def test_worked_example_plan_then_analyze_rehearsal(tmp_path):
         assert png.is_file() and png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     doc = json.loads((out / "plan.json").read_text())
     assert doc["compounds"][0]["temperature_sets"][0]["label"] == "best (chosen)"
+    # one error naming (`_err`), one dipole name (`dipole_rms_D`, as `estimate` writes)
+    assert "sigma_" not in json.dumps(doc) and "sigma_" not in ",".join(table.columns)
+    assert {"dipole_rms_D", "dipole_expected_err_D"} <= set(doc["compounds"][0])
+    assert "alpha_eff_expected_err_A3" in doc["compounds"][0]["series"][0]
+    assert "dipole_rms_D" in table.columns and "dipole_pred_D" not in table.columns
     md = (out / "plan.md").read_text()
     assert "safety officer" in md
     r = runner.invoke(
@@ -58,7 +63,7 @@ def test_worked_example_plan_then_analyze_rehearsal(tmp_path):
     series = pd.read_csv(tmp_path / "res" / "series.csv")
     m = series.merge(table, on=["compound", "temperature_K"])
     assert len(m) == len(table)
-    ratio = m["alpha_eff_err_A3"] / m["sigma_alpha_eff_pred_A3"]
+    ratio = m["alpha_eff_err_A3"] / m["alpha_eff_expected_err_A3"]
     print("reported / planned σ(α_eff):", np.round(ratio.to_numpy(), 3))
     assert ratio.between(0.7, 1.3).all()
     truth = pd.read_csv(out / "rehearsal" / "truth.csv", comment="#")
@@ -67,7 +72,7 @@ def test_worked_example_plan_then_analyze_rehearsal(tmp_path):
     assert np.all(np.abs(pulls) < 4.5)
     props = pd.read_csv(tmp_path / "res" / "properties.csv").set_index("compound")
     planned = table.drop_duplicates("compound").set_index("compound")
-    ratio_a = props["alpha_err_A3"] / planned["sigma_alpha_pred_A3"]
+    ratio_a = props["alpha_err_A3"] / planned["alpha_expected_err_A3"]
     print("reported / planned σ(α):", np.round(ratio_a.to_numpy(), 3))
     assert ratio_a.between(0.7, 1.3).all()
 

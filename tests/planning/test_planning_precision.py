@@ -202,3 +202,12 @@ def test_time_domain_plan_closed_form(tmp_path):
     res = analyze(tmp_path / "plan" / "rehearsal" / "campaign.toml")
     assert [c.status for c in res.compounds] != ["failed"], res.compounds[0].message
     assert len(res.compounds[0].series) == 2
+
+
+def test_error_keys_use_the_err_suffix():
+    from polarbeam.planning.results import err_key
+
+    assert err_key("sigma_alpha_A3") == "alpha_err_A3"
+    assert err_key("sigma_mu2_stat_D2") == "mu2_stat_err_D2"
+    assert err_key("sigma_total_A3") == "alpha_eff_expected_err_A3"  # an error of α_eff
+    assert err_key("alpha_pred_A3") == "alpha_pred_A3" and err_key("corr") == "corr"

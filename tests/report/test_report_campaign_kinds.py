@@ -222,6 +222,21 @@ def test_parity_figure_labels_every_compound(demo):
     assert shown and shown <= labelled
 
 
+def test_parity_figure_has_hover_labels_in_the_svg(demo):
+    """The inline SVG of report.html gives each parity point a <title> (a hover label) naming
+    its compound and both values."""
+    fig = figures.parity_figure(demo)
+    titles = re.findall(r"<title>([^<]*)</title>", figures.to_svg(fig))
+    shown = {
+        c.compound
+        for c in demo.compounds
+        if c.alpha is not None and figures.predictions(c)["alpha"]
+    }
+    assert shown and shown <= {t.split(":")[0] for t in titles}
+    assert all(" Å³, " in t and t.startswith(tuple(shown)) for t in titles)
+    assert all("measured " in t and " ± " in t for t in titles)
+
+
 def test_every_compound_figure_names_its_compound(demo):
     for c in demo.compounds:
         for kind, fig in figures.compound_figures(c).items():

@@ -23,7 +23,9 @@ from polarbeam.results.velocity import VelocityRecord
 
 __all__ = ["RECORD_FORMAT", "decode_compound", "encode_compound"]
 
-RECORD_FORMAT = "polarbeam-compound-record/1"
+#: 2: the output keys were renamed (dipole_rms_D, computed_method from qc_method): records of
+#: format 1 are not reused by ``--resume`` but recomputed, so no old name reaches an output.
+RECORD_FORMAT = "polarbeam-compound-record/2"
 
 _CLASSES = {
     "CompoundResult": CompoundResult,

@@ -63,6 +63,7 @@ from polarbeam.chemistry.atoms import atom_polarizability_A3
 from polarbeam.chemistry.computed import (
     ALPHA_UNITS,
     COMPUTED_COLUMNS,
+    COMPUTED_CSV_COLUMNS,
     alpha_a3_from_unit,
     anisotropy,
     isotropic_average,
@@ -138,6 +139,7 @@ __all__ = [
     "CLASS_SCHEME",
     "COMPARISON_COLUMNS",
     "COMPUTED_COLUMNS",
+    "COMPUTED_CSV_COLUMNS",
     "DEFAULT_CHARGE_MODEL",
     "DEFAULT_COST_MODELS",
     "DEFAULT_FIELD_AU",

@@ -35,6 +35,8 @@ from polarbeam.errors import InputError, RowValueError
 __all__ = [
     "ALPHA_UNITS",
     "COMPUTED_COLUMNS",
+    "COMPUTED_CSV_COLUMNS",
+    "NAMED_ALPHA_UNITS",
     "alpha_a3_from_unit",
     "anisotropy",
     "isotropic_average",
@@ -54,7 +56,7 @@ ALPHA_UNITS: dict[str, float] = {
 #: :func:`polarbeam.chemistry.qchem.results_table`).
 COMPUTED_COLUMNS = [
     "compound",
-    "method",
+    "qc_method",
     "alpha_computed_A3",
     "dipole_computed_D",
     "alpha_xx_A3",
@@ -66,6 +68,19 @@ COMPUTED_COLUMNS = [
 
 _REQUIRED = ("compound", "method", "alpha", "alpha_unit", "dipole_D")
 _COMPONENTS = ("alpha_xx", "alpha_yy", "alpha_zz")
+#: Units a ``computed.csv`` may carry in its column names (``alpha_A3``, ``alpha_xx_bohr3`` …).
+NAMED_ALPHA_UNITS = ("A3", "bohr3")
+#: Header of the layout with units in the names (what ``polarbeam compute`` writes).
+COMPUTED_CSV_COLUMNS = (
+    "compound",
+    "qc_method",
+    "alpha_A3",
+    "dipole_D",
+    "alpha_xx_A3",
+    "alpha_yy_A3",
+    "alpha_zz_A3",
+    "source",
+)
 #: Relative mismatch allowed between ``alpha`` and the mean of the given diagonal components.
 _TRACE_TOLERANCE = 0.01
 
@@ -137,38 +152,46 @@ def _number(text: str, where: str, column: str, *, allow_blank: bool) -> float:
     return value
 
 
-def _parse_row(cells: dict[str, str], where: str) -> dict:
+def _parse_row(cells: dict[str, str], where: str, named: dict[str, str] | None = None) -> dict:
+    named = named or {}
+
+    def col(c: str) -> str:  # the column as the file names it
+        return named.get(c, c)
+
     compound = cells["compound"].strip(CELL_BLANKS)
     method = cells["method"].strip()
     if not compound:
         raise RowValueError(f"{where}, column compound: expected a name, found an empty cell")
     if not method:
-        raise RowValueError(f"{where}, column method: expected a method name, found empty")
+        raise RowValueError(f"{where}, column {col('method')}: expected a method name, found empty")
     unit = cells["alpha_unit"].strip()
     if unit not in ALPHA_UNITS:
         valid = ", ".join(repr(u) for u in ALPHA_UNITS)
         raise RowValueError(f"{where}, column alpha_unit: expected one of {valid}, found {unit!r}")
     factor = ALPHA_UNITS[unit]
-    comps = [_number(cells.get(c, ""), where, c, allow_blank=True) for c in _COMPONENTS]
+    comps = [_number(cells.get(c, ""), where, col(c), allow_blank=True) for c in _COMPONENTS]
     given = [math.isfinite(c) for c in comps]
     if any(given) and not all(given):
-        missing = ", ".join(c for c, g in zip(_COMPONENTS, given, strict=True) if not g)
+        missing = ", ".join(col(c) for c, g in zip(_COMPONENTS, given, strict=True) if not g)
         raise RowValueError(
-            f"{where}, columns alpha_xx/alpha_yy/alpha_zz: expected all three or none, "
-            f"found {missing} empty"
+            f"{where}, columns {'/'.join(col(c) for c in _COMPONENTS)}: expected all three or "
+            f"none, found {missing} empty"
         )
-    alpha = _number(cells["alpha"], where, "alpha", allow_blank=all(given))
+    alpha = _number(cells["alpha"], where, col("alpha"), allow_blank=all(given))
     if math.isnan(alpha):
         alpha = sum(comps) / 3.0
     if alpha <= 0:
-        raise RowValueError(f"{where}, column alpha: expected a value > 0, found {alpha!r}")
+        raise RowValueError(
+            f"{where}, column {col('alpha')}: expected a value > 0, found {alpha!r}"
+        )
     aniso = math.nan
     comps_a3 = [math.nan] * 3
     if all(given):
         mean = sum(comps) / 3.0
         if abs(mean - alpha) > _TRACE_TOLERANCE * abs(alpha):
             raise RowValueError(
-                f"{where}, column alpha: expected the mean of alpha_xx, alpha_yy, alpha_zz "
+                f"{where}, column {col('alpha')}: expected the mean of "
+                f"{', '.join(col(c) for c in _COMPONENTS)} "
                 f"({mean:.6g}) within {_TRACE_TOLERANCE:.0%}, found {alpha:.6g}"
             )
         comps_a3 = [c * factor for c in comps]
@@ -180,7 +203,7 @@ def _parse_row(cells: dict[str, str], where: str) -> dict:
         )
     return {
         "compound": compound,
-        "method": method,
+        "qc_method": method,
         "alpha_computed_A3": alpha * factor,
         "dipole_computed_D": dipole,
         "alpha_xx_A3": comps_a3[0],
@@ -190,23 +213,55 @@ def _parse_row(cells: dict[str, str], where: str) -> dict:
     }
 
 
-def read_computed(path, failures: list[str] | None = None) -> pd.DataFrame:
+def _named_layout(header: list[str]) -> dict[str, str]:
+    """For a header with units in the names (``qc_method``, ``alpha_A3`` …): old name → column
+    (``alpha_unit`` → the unit); empty for the old layout (``method, alpha, alpha_unit``)."""
+    if "alpha" in header or "alpha_unit" in header:
+        return {}
+    for unit in NAMED_ALPHA_UNITS:
+        if f"alpha_{unit}" in header or f"alpha_xx_{unit}" in header:
+            out = {"method": "qc_method", "alpha": f"alpha_{unit}", "alpha_unit": unit}
+            out.update({c: f"{c}_{unit}" for c in _COMPONENTS})
+            return out
+    if "qc_method" in header:
+        return {"method": "qc_method", "alpha": "alpha_A3", "alpha_unit": "A3"}
+    return {}
+
+
+def _old_layout(cells: dict[str, str], named: dict[str, str]) -> dict[str, str]:
+    """The cells of a row under the old column names, whatever the layout of the file."""
+    if not named:
+        return cells
+    out = dict(cells)
+    for old, new in named.items():
+        out[old] = named["alpha_unit"] if old == "alpha_unit" else cells.get(new, "")
+    return out
+
+
+def read_computed(
+    path, failures: list[str] | None = None, notes: list[str] | None = None
+) -> pd.DataFrame:
     """Read a CSV of computed polarizabilities and dipoles into a table in Å³ and debye.
 
     Parameters
     ----------
     path
-        CSV with a header row holding at least ``compound, method, alpha, alpha_unit, dipole_D``
-        and optionally ``alpha_xx, alpha_yy, alpha_zz`` (diagonal components, principal axes,
-        same unit as ``alpha``).  ``alpha_unit`` is one of ``A3``, ``bohr3`` (atomic units) or
-        ``C m2/V``.  ``alpha`` may be left empty when the three components are given (it is then
-        their mean); a blank ``dipole_D`` means "not computed".  Lines starting with ``#`` and
+        CSV with a header row holding at least ``compound, qc_method, alpha_A3, dipole_D`` and
+        optionally ``alpha_xx_A3, alpha_yy_A3, alpha_zz_A3`` (diagonal components, principal
+        axes) — the unit in the names, ``A3`` or ``bohr3`` (atomic units) — as ``polarbeam
+        compute`` writes.  The old layout ``compound, method, alpha, alpha_unit, dipole_D`` (and
+        ``alpha_xx, alpha_yy, alpha_zz``) of earlier versions is still read, ``alpha_unit``
+        one of ``A3``, ``bohr3`` or ``C m2/V``, with a deprecation note in ``notes``.
+        ``alpha`` may be left empty when the three components are given (it is then their
+        mean); a blank ``dipole_D`` means "not computed".  Lines starting with ``#`` and
         blank lines are skipped; other columns are ignored.  Several methods per compound are
         allowed; the same (compound, method) twice is an error.
     failures
         If a list is given, a bad row does not stop the reading: its one-line message is
         appended (it names the file, line, compound and column) and the good rows are returned.
         If ``None`` (default) the first bad row raises :class:`~polarbeam.errors.RowValueError`.
+    notes
+        If a list is given, a one-line deprecation note is appended for the old layout.
 
     Returns
     -------
@@ -238,15 +293,29 @@ def read_computed(path, failures: list[str] | None = None) -> pd.DataFrame:
         except csv.Error as exc:
             raise InputError(f"{path}: not a valid CSV file ({exc})") from None
     header: list[str] | None = None
+    named: dict[str, str] = {}  # old column name → the column of a file with units in names
+    method_column = "method"
     for line, record in records:
         if header is None:
             header = [c.strip() for c in record]
-            missing = [c for c in _REQUIRED if c not in header]
+            named = _named_layout(header)
+            if named:
+                required = ("compound", "qc_method", named["alpha"], "dipole_D")
+                method_column = "qc_method"
+            else:
+                required = _REQUIRED
+                if notes is not None and "method" in header:
+                    notes.append(
+                        f"{path.name}: old column names (method, alpha, alpha_unit, alpha_xx…) "
+                        "read; deprecated: name them qc_method, alpha_A3, alpha_xx_A3… (units "
+                        "in the names, as polarbeam compute writes)"
+                    )
+            missing = [c for c in required if c not in header]
             if missing:
                 raise InputError(
-                    f"{path}: line {line}: expected columns {', '.join(_REQUIRED)}, "
+                    f"{path}: line {line}: expected columns {', '.join(required)}, "
                     f"missing {', '.join(missing)} "
-                    f"(found {header_for_message(header, _REQUIRED)})"
+                    f"(found {header_for_message(header, required)})"
                 )
             continue
         where = f"{path}: line {line}"
@@ -259,12 +328,12 @@ def read_computed(path, failures: list[str] | None = None) -> pd.DataFrame:
             name = cells["compound"].strip(CELL_BLANKS)
             if name:
                 where = f"{where} (compound {name!r})"
-            row = _parse_row(cells, where)
-            key = (row["compound"], row["method"])
+            row = _parse_row(_old_layout(cells, named), where, named)
+            key = (row["compound"], row["qc_method"])
             if key in seen:
                 raise RowValueError(
-                    f"{where}, column method: expected one row per compound and method, "
-                    f"found {row['method']!r} again (first on line {seen[key]})"
+                    f"{where}, column {method_column}: expected one row per compound and method, "
+                    f"found {row['qc_method']!r} again (first on line {seen[key]})"
                 )
         except RowValueError as exc:
             if failures is None:
@@ -396,7 +465,7 @@ def read_outputs(patterns: Sequence[str], base_dir=".") -> tuple[pd.DataFrame, l
         rows.append(
             {
                 "compound": path.stem,
-                "method": method,
+                "qc_method": method,
                 "alpha_computed_A3": isotropic_average(tensor),
                 "dipole_computed_D": dipole,
                 "alpha_xx_A3": float(principal[0]),

@@ -45,7 +45,7 @@ ELECTRONIC_VS_VIBRATIONAL_NOTE = (
 #: Columns of :func:`compare` (``comparison.csv``), in order; optional extras follow.
 COMPARISON_COLUMNS = [
     "compound",
-    "method",
+    "qc_method",
     "alpha_computed_A3",
     "dipole_computed_D",
     "alpha_measured_A3",
@@ -57,7 +57,7 @@ COMPARISON_COLUMNS = [
 #: Columns of :func:`compare_series`.
 SERIES_COMPARISON_COLUMNS = [
     "compound",
-    "method",
+    "qc_method",
     "temperature_K",
     "alpha_computed_A3",
     "dipole_computed_D",
@@ -71,7 +71,7 @@ SERIES_COMPARISON_COLUMNS = [
 
 #: Columns of :func:`parity_table`.
 PARITY_COLUMNS = [
-    "method",
+    "qc_method",
     "n_compounds",
     "mean_signed_dev_A3",
     "mean_signed_dev_pct",
@@ -118,23 +118,29 @@ def _need_columns(df: pd.DataFrame, required: Iterable[str], what: str) -> None:
 
 
 def _computed_view(computed: pd.DataFrame) -> pd.DataFrame:
+    if "qc_method" not in getattr(computed, "columns", ()) and "method" in getattr(
+        computed, "columns", ()
+    ):  # a table in the layout of older versions
+        computed = computed.rename(columns={"method": "qc_method"})
     _need_columns(
-        computed, ["compound", "method", "alpha_computed_A3", "dipole_computed_D"], "computed table"
+        computed,
+        ["compound", "qc_method", "alpha_computed_A3", "dipole_computed_D"],
+        "computed table",
     )
-    dup = computed.duplicated(["compound", "method"], keep=False)
+    dup = computed.duplicated(["compound", "qc_method"], keep=False)
     if dup.any():
-        first = computed.loc[dup, ["compound", "method"]].iloc[0]
+        first = computed.loc[dup, ["compound", "qc_method"]].iloc[0]
         raise InputError(
             f"computed table: expected one row per compound and method, found "
-            f"{first['compound']!r} / {first['method']!r} more than once"
+            f"{first['compound']!r} / {first['qc_method']!r} more than once"
         )
-    return computed[["compound", "method", "alpha_computed_A3", "dipole_computed_D"]].copy()
+    return computed[["compound", "qc_method", "alpha_computed_A3", "dipole_computed_D"]].copy()
 
 
 def compare(
     measured: pd.DataFrame, computed: pd.DataFrame, *, temperatures: Sequence[float] = ()
 ) -> pd.DataFrame:
-    """Computed vs measured static polarizability, one row per (compound, method).
+    """Computed vs measured static polarizability, one row per (compound, qc_method).
 
     Parameters
     ----------
@@ -142,7 +148,7 @@ def compare(
         One row per compound with ``compound, alpha_A3, alpha_err_A3`` (1σ) and optionally
         ``dipole_D, dipole_err_D``.  The names ``alpha_measured_A3`` … are accepted too.
     computed
-        A table with at least ``compound, method, alpha_computed_A3, dipole_computed_D``
+        A table with at least ``compound, qc_method, alpha_computed_A3, dipole_computed_D``
         (:func:`~polarbeam.chemistry.computed.read_computed`,
         :func:`~polarbeam.chemistry.computed.read_outputs`,
         :func:`polarbeam.chemistry.qchem.results_table`).
@@ -262,7 +268,7 @@ def parity_table(comparison: pd.DataFrame) -> pd.DataFrame:
     Parameters
     ----------
     comparison
-        Output of :func:`compare` (needs ``method, alpha_computed_A3, alpha_measured_A3,
+        Output of :func:`compare` (needs ``qc_method, alpha_computed_A3, alpha_measured_A3,
         alpha_measured_err_A3``).
 
     Returns
@@ -275,11 +281,11 @@ def parity_table(comparison: pd.DataFrame) -> pd.DataFrame:
     """
     _need_columns(
         comparison,
-        ["method", "alpha_computed_A3", "alpha_measured_A3", "alpha_measured_err_A3"],
+        ["qc_method", "alpha_computed_A3", "alpha_measured_A3", "alpha_measured_err_A3"],
         "comparison table",
     )
     rows = []
-    for method, grp in comparison.groupby("method", sort=True):
+    for method, grp in comparison.groupby("qc_method", sort=True):
         c = grp["alpha_computed_A3"].to_numpy(float)
         m = grp["alpha_measured_A3"].to_numpy(float)
         s = grp["alpha_measured_err_A3"].to_numpy(float)
@@ -287,7 +293,7 @@ def parity_table(comparison: pd.DataFrame) -> pd.DataFrame:
         c, m, s = c[ok], m[ok], s[ok]
         n = int(ok.sum())
         if n == 0:
-            rows.append({"method": method, "n_compounds": 0, "verdict": "no usable compound"})
+            rows.append({"qc_method": method, "n_compounds": 0, "verdict": "no usable compound"})
             continue
         dev = c - m
         rel = 100.0 * dev / m
@@ -299,7 +305,7 @@ def parity_table(comparison: pd.DataFrame) -> pd.DataFrame:
             verdict = f"{method} {word} the set by {abs(msd_pct):.1f} % on average (n={n})"
         rows.append(
             {
-                "method": method,
+                "qc_method": method,
                 "n_compounds": n,
                 "mean_signed_dev_A3": float(dev.mean()),
                 "mean_signed_dev_pct": msd_pct,

@@ -148,7 +148,7 @@ def plan(
             "compound",
             "temperature_K",
             "alpha_eff_pred_A3",
-            "sigma_alpha_eff_pred_A3",
+            "alpha_eff_expected_err_A3",
             "voltage_max_V",
             "beam_time_h",
         ]
@@ -167,7 +167,10 @@ def estimate(
     dipoles: bool = typer.Option(False, "--dipoles", help="conformer dipoles (slower)"),
     conformers: int = typer.Option(10, help="conformers per molecule for --dipoles"),
     seed: int = typer.Option(61453, help="random seed of the conformer embedding"),
-    temperature: float = typer.Option(300.0, help="temperature (K) of the Boltzmann average"),
+    temperature: str = typer.Option(
+        "300 K",
+        help='temperature of the Boltzmann average, "300 K" (a bare number is in K)',
+    ),
 ):
     """Structure-based estimates (additive α, mass, dipoles) for a library without measurements."""
     try:
@@ -177,7 +180,7 @@ def estimate(
             dipoles=dipoles,
             conformers=conformers,
             seed=seed,
-            temperature_K=temperature,
+            temperature_K=pb.parse_temperature(temperature),
         )
     except PolarbeamError as exc:
         _fail(exc)
@@ -198,8 +201,18 @@ def compute(
     out: Path = typer.Option(
         ..., "--out", "-o", help="file to write the results to (computed.csv)"
     ),
+    name: str | None = typer.Option(
+        None,
+        "--name",
+        help="compound name of a single SMILES or structure file (default: the SMILES or the "
+        "file stem; a CSV names its rows)",
+    ),
     polarizability: str = typer.Option("analytic", help="analytic (CPHF/CPKS) or finite-field"),
-    max_seconds: float = typer.Option(1800.0, help="refuse calculations estimated to take longer"),
+    max_seconds: str = typer.Option(
+        "1800 s",
+        "--max-seconds",
+        help='refuse calculations estimated to take longer, "30 min" (a bare number is in s)',
+    ),
     d4: bool = typer.Option(False, "--d4", help="fast D4-model polarizability instead of SCF"),
     conformers: int = typer.Option(
         0,
@@ -207,33 +220,48 @@ def compute(
         help="N > 0: dipole sqrt<mu^2>(T) Boltzmann-averaged over the SCF dipoles of the "
         "distinct low-energy conformers of N embeddings (alpha from the lowest)",
     ),
-    temperature: float = typer.Option(300.0, help="temperature (K) of the conformer average"),
+    temperature: str = typer.Option(
+        "300 K",
+        help='temperature of the conformer average, "300 K" (a bare number is in K)',
+    ),
 ):
     """Compute static polarizabilities and dipoles with PySCF (extra polarbeam[qc]); cached."""
     try:
-        pb.qchem.check_conformer_options(conformers, temperature)
+        temperature_K = pb.parse_temperature(temperature, positive=False)  # checked below
+        seconds = pb.parse_duration(max_seconds)
+        pb.qchem.check_conformer_options(conformers, temperature_K)
         pb.qchem.check_scheme(polarizability)
-        jobs = pb.qchem.compute_jobs(input)
+        jobs = pb.qchem.compute_jobs(input, name)
     except PolarbeamError as exc:
         _fail(exc)
+    what = pb.qchem.describe_run(
+        method,
+        basis,
+        polarizability=polarizability,
+        d4=d4,
+        conformers=conformers,
+        temperature_K=temperature_K,
+    )
 
     def progress(step, total, message):
         typer.echo(f"  [{step}/{total}] {message}", err=True)
 
+    typer.echo(f"compute: {what}; {len(jobs)} molecule(s) -> {out}", err=True)
     results, failures = pb.qchem.compute_library(
         jobs,
         method,
         basis,
         polarizability=polarizability,
-        max_seconds=max_seconds,
+        max_seconds=seconds,
         d4=d4,
         conformers=conformers,
-        temperature_K=temperature,
+        temperature_K=temperature_K,
         progress=progress,
-        on_start=lambda name: typer.echo(f"{name}: {method}/{basis}", err=True),
-        on_failure=lambda name, message: typer.echo(
-            f"failed: {terminal_safe(name)}: {terminal_safe(message)}", err=True
+        on_start=lambda job: typer.echo(f"{terminal_safe(job)}:", err=True),
+        on_failure=lambda job, message: typer.echo(
+            f"failed: {terminal_safe(job)}: {terminal_safe(message)}", err=True
         ),
+        ways_out=pb.qchem.CLI_WAYS_OUT,
     )
     if results:
         pb.qchem.write_computed(results, out)
@@ -247,7 +275,7 @@ def simulate(
     seed: int = typer.Option(0, help="random seed"),
     layout: str = typer.Option("talbot-lau", help="talbot-lau, beam-profile or time-domain"),
 ):
-    """Write a simulated campaign (random compound, known truth) in the input contract."""
+    """Write a simulated campaign (random compound) in the input contract, its truth.json beside."""
     import json
 
     try:
@@ -260,6 +288,7 @@ def simulate(
                 "alpha_A3": comp.alpha_A3,
                 "dipole_D": comp.dipole_D,
                 "campaign": str(truth.path / "campaign.toml"),
+                "truth": str(truth.path / "truth.json"),
             }
         )
     )

@@ -156,7 +156,7 @@ def computed_comparison(c: Campaign, result: CampaignResult) -> CampaignResult:
     frames, notes = [], []
     for path in c.computed_paths:
         failures: list[str] = []
-        frames.append(cc.read_computed(path, failures))
+        frames.append(cc.read_computed(path, failures, notes))
         notes.extend(failures)
     if c.computed_patterns:
         df, more = cc.read_outputs(list(c.computed_patterns), c.path.parent)
@@ -182,7 +182,7 @@ def computed_comparison(c: Campaign, result: CampaignResult) -> CampaignResult:
                 **cr.extra,
                 "alpha_computed_A3": float(first[cr.compound]["alpha_computed_A3"]),
                 "dipole_computed_D": finite_or_none(first[cr.compound].get("dipole_computed_D")),
-                "computed_method": str(first[cr.compound]["method"]),
+                "computed_method": str(first[cr.compound]["qc_method"]),
             },
         )
         if cr.compound in first

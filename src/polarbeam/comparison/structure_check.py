@@ -73,7 +73,7 @@ class StructurePrediction:
         for k in ("ahp", "ahc", "bs", "llmr", "d4"):
             if k in self.schemes:
                 out[f"alpha_{k}_A3"] = self.schemes[k]
-        out["dipole_predicted_D"] = self.dipole_rms_D
+        out["dipole_rms_D"] = self.dipole_rms_D  # the name `polarbeam estimate` writes
         out["structure_mass_u"] = self.mass_u
         out["structure_flags"] = ";".join(self.flags)
         return out

@@ -4,6 +4,8 @@ parses unit strings.
 """
 
 from polarbeam.contract.arguments import (
+    parse_duration,
+    parse_temperature,
     parse_voltage,
 )
 from polarbeam.contract.campaign import (
@@ -73,6 +75,8 @@ __all__ = [
     "numerical_error_inputs",
     "numerical_model",
     "numerical_stated_inputs",
+    "parse_duration",
     "parse_numerical_spec",
+    "parse_temperature",
     "parse_voltage",
 ]

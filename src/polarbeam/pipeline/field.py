@@ -85,7 +85,7 @@ class FieldReport:
                 "field_factor_rel_rms": self.field_factor_rel_rms,
                 "numerical_error_per_m3": self.numerical_error_per_m3,
                 "numerical_error_note": self.numerical_error_note,
-                "tolerance_sigma_per_m3": self.tolerance_sigma_per_m3,
+                "field_factor_err_per_m3": self.tolerance_sigma_per_m3,  # 1σ from stated inputs
                 "tolerance_budget": dict(self.tolerance_budget),
                 "beam": dict(self.beam),
                 "grid_h_m": self.grid_h_m,
@@ -105,6 +105,7 @@ class FieldReport:
 
         lines = [
             f"deflector model '{self.model}' at {self.voltage_V:g} V ({self.method})",
+            "  coordinates: x deflection direction, y height across it, z beam axis",
             f"  E            = {sci(self.E_V_per_m, 'V/m')}",
             f"  dE/dx        = {sci(self.dE_dx_V_per_m2, 'V/m²')}",
             f"  E·dE/dx      = {sci(self.E_dE_dx_V2_per_m3, 'V²/m³')}",
@@ -136,6 +137,14 @@ class FieldReport:
             lines.append(
                 f"  finest grid h = {self.grid_h_m * 1e3:.4g} mm, observed order "
                 f"{self.observed_order:.3g}"
+            )
+        if self.beam.get("height_m") is not None:
+            b = self.beam
+            lines.append(
+                f"  beam centre: x = {b['height_m'] * 1e3:.4g} mm (beam_height), "
+                f"y = {b.get('x_m', 0.0) * 1e3:.4g} mm (beam_x); extent "
+                f"{b.get('thickness_m', 0.0) * 1e3:.3g} mm in x (beam_thickness), "
+                f"{b.get('width_m', 0.0) * 1e3:.3g} mm in y (beam_width)"
             )
         if self.effective_length_m is not None:
             lines.append(f"  effective length = {self.effective_length_m:.6g} m ({self.fringe})")
@@ -255,7 +264,11 @@ def deflector_field(campaign, voltage) -> FieldReport:
 
 
 def plot_deflector_field(campaign, path, voltage) -> Path:
-    """Equipotentials, electrodes and the beam of the campaign's cross-section (``--plot``)."""
+    """Equipotentials, electrodes and the beam of the campaign's cross-section (``--plot``).
+
+    The electrodes are labelled with the applied potentials: the analytic two-wire potentials
+    (line pair, 0 at infinity) are shown relative to the trough (trough 0, convex V).
+    """
     c = _load(campaign)
     V = parse_voltage(voltage)
     _lay, d = c.build()
@@ -265,14 +278,18 @@ def plot_deflector_field(campaign, path, voltage) -> Path:
         cs = sol.cross_section.scaled(V)
         sol = replace(sol, phi=sol.phi * V, cross_section=cs)
         beam = m.solution.beam
+        analytic = m.spec.kind != "electrodes" and m.spec.potentials == "analytic"
     elif c.model == "two-wire" and c.layout != "time-domain":
         a = d.line_half_spacing
         cs = fs.two_wire_cross_section(a, d.convex_crossing, d.concave_crossing, V)
         sol = fs.solve_laplace(cs, a / 40.0, solver="direct")
         beam = fs.Beam(0.0, d.beam_height)
+        analytic = True
     else:
         raise InputError(
             f"--plot: the {c.model!r} model has no electrode geometry to draw; use the "
             "'two-wire' or 'numerical' model"
         )
-    return fs.plot_cross_section(sol, path, beam=beam)
+    offset = min(e.potential for e in cs.electrodes) if analytic else 0.0
+    title = f"{c.model} deflector at {fs.format_potential(V)} (x: deflection, z: beam axis)"
+    return fs.plot_cross_section(sol, path, beam=beam, offset=offset, title=title)

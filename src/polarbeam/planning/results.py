@@ -21,7 +21,36 @@ PLAN_CAUTION = (
     "against the ratings of the supply, feedthroughs, electrodes and oven."
 )
 
-__all__ = ["CampaignPlan", "CompoundPlan", "SeriesPlan", "render_markdown"]
+__all__ = ["CampaignPlan", "CompoundPlan", "SeriesPlan", "err_key", "render_markdown"]
+
+#: Names of plan.json keys whose generic error name (:func:`err_key`) would hide what the error
+#: is on: these are errors of the planned α_eff (Å³), not of a velocity or a scale.
+_ALPHA_EFF_ERRORS = {
+    "sigma_stat_A3": "alpha_eff_stat_err_A3",
+    "sigma_total_A3": "alpha_eff_expected_err_A3",
+    "sigma_velocity_A3": "alpha_eff_velocity_err_A3",
+    "sigma_scale_A3": "alpha_eff_scale_err_A3",
+}
+
+
+def err_key(key: str) -> str:
+    """The ``_err`` name of a ``sigma_<quantity>_<unit>`` key (``sigma_alpha_A3`` →
+    ``alpha_err_A3``), the one error naming of every table and JSON file; other keys unchanged."""
+    if key in _ALPHA_EFF_ERRORS:
+        return _ALPHA_EFF_ERRORS[key]
+    if key.startswith("sigma_") and key.count("_") >= 2:
+        quantity, unit = key[len("sigma_") :].rsplit("_", 1)
+        return f"{quantity}_err_{unit}"
+    return key
+
+
+def _err_keys(x):
+    """``x`` with every dict key renamed by :func:`err_key` (recursively)."""
+    if isinstance(x, dict):
+        return {err_key(k): _err_keys(v) for k, v in x.items()}
+    if isinstance(x, list | tuple):
+        return [_err_keys(v) for v in x]
+    return x
 
 
 @dataclass(frozen=True)
@@ -70,7 +99,7 @@ class SeriesPlan:
         out["sigma_stat_A3"] = self.sigma_stat_A3
         out["sigma_total_A3"] = self.sigma_total_A3
         out["notes"] = list(self.notes)
-        return out
+        return _err_keys(out)
 
 
 @dataclass(frozen=True)
@@ -108,12 +137,12 @@ class CompoundPlan:
             "smiles": self.smiles,
             "source": self.source,
             "alpha_pred_A3": self.alpha_pred_A3,
-            "dipole_pred_D": self.dipole_pred_D,
+            "dipole_rms_D": self.dipole_pred_D,
             "series": [s.summary() for s in self.series],
-            "debye": None if self.debye is None else asdict(self.debye),
-            "sigma_dipole_D": finite_or_none(self.sigma_dipole_D),
+            "debye": None if self.debye is None else _err_keys(asdict(self.debye)),
+            "dipole_expected_err_D": finite_or_none(self.sigma_dipole_D),
             "dipole_limit_D": finite_or_none(self.dipole_limit_D),
-            "temperature_sets": list(self.temperature_sets),
+            "temperature_sets": _err_keys(list(self.temperature_sets)),
             "beam_time_s": self.beam_time_s,
             "beam_time_dipole_target_s": finite_or_none(self.beam_time_dipole_target_s),
             "warnings": list(self.warnings),
@@ -154,19 +183,19 @@ class CampaignPlan:
                         "compound": c.compound,
                         "temperature_K": s.temperature_K,
                         "alpha_eff_pred_A3": s.alpha_eff_pred_A3,
-                        "sigma_alpha_eff_pred_A3": s.sigma_total_A3,
+                        "alpha_eff_expected_err_A3": s.sigma_total_A3,
                         "voltage_max_V": s.voltage_max_V,
                         "n_voltages": len(s.ladder.levels_V),
                         "scans_per_voltage": s.ladder.scans_per_voltage,
                         "beam_time_h": s.beam_time_s / 3600.0,
-                        "sigma_alpha_pred_A3": c.debye.sigma_alpha_A3 if c.debye else math.nan,
-                        "sigma_dipole_pred_D": c.sigma_dipole_D,
+                        "alpha_expected_err_A3": c.debye.sigma_alpha_A3 if c.debye else math.nan,
+                        "dipole_expected_err_D": c.sigma_dipole_D,
                         "dipole_limit_pred_D": c.dipole_limit_D,
                         "alpha_pred_A3": c.alpha_pred_A3,
-                        "dipole_pred_D": c.dipole_pred_D,
+                        "dipole_rms_D": c.dipole_pred_D,
                         "alpha_eff_pred_err_A3": s.alpha_eff_pred_err_A3,
-                        "sigma_alpha_eff_stat_A3": s.sigma_stat_A3,
-                        "sigma_alpha_eff_even_A3": math.sqrt(
+                        "alpha_eff_stat_err_A3": s.sigma_stat_A3,
+                        "alpha_eff_even_err_A3": math.sqrt(
                             s.even.sigma_stat_A3**2 + s.sigma_velocity_A3**2 + s.sigma_scale_A3**2
                         ),
                         "voltage_limited_by": s.voltage_max_reason,

@@ -16,6 +16,7 @@ from __future__ import annotations
 import functools
 import io
 import math
+from html import escape as html_escape
 from typing import Any
 
 import numpy as np
@@ -151,6 +152,9 @@ def to_svg(fig) -> str:
     with matplotlib.rc_context(getattr(fig, "_polarbeam_style", {})):
         fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "polarbeam"})
     text = buf.getvalue()
+    for gid, tip in getattr(fig, "_polarbeam_tips", {}).items():  # hover labels (<title>)
+        tag = f'<g id="{gid}">'
+        text = text.replace(tag, f"{tag}<title>{html_escape(tip)}</title>", 1)
     return text[text.index("<svg") :]  # drop the XML prolog and DOCTYPE for inline use
 
 
@@ -523,6 +527,8 @@ def parity_figure(result: CampaignResult):
     if not groups:
         return None
     fig, ax = _new(4.8, 4.8, left=0.7)
+    tips: dict[str, str] = {}
+    fig._polarbeam_tips = tips  # SVG hover labels, added by to_svg
     lo, hi = math.inf, -math.inf
     for i, (label, pts) in enumerate(groups.items()):
         arr = np.array([(p[0], p[1], p[2], p[3] if p[3] is not None else 0.0) for p in pts])
@@ -539,7 +545,7 @@ def parity_figure(result: CampaignResult):
             ls="none",
             label=f"{label} ({len(pts)})",
         )
-        for x, y, *_rest, name in pts:
+        for x, y, me_, e_, name in pts:
             ax.annotate(
                 plain_text(name),
                 (x, y),
@@ -547,6 +553,12 @@ def parity_figure(result: CampaignResult):
                 textcoords="offset points",
                 fontsize=7,
                 gid="label",
+            )
+            gid = f"pb-tip-{len(tips)}"  # an unseen marker whose SVG <title> shows on hover
+            ax.plot([x], [y], "o", ms=9, alpha=0.0, gid=gid)
+            tips[gid] = (
+                f"{plain_text(name)}: measured {format_value_error(y, me_)} Å³, {label} "
+                f"{format_value_error(x, e_ or 0.0)} Å³"
             )
         lo = min(lo, float((arr[:, 0] - arr[:, 3]).min()), float((arr[:, 1] - arr[:, 2]).min()))
         hi = max(hi, float((arr[:, 0] + arr[:, 3]).max()), float((arr[:, 1] + arr[:, 2]).max()))

@@ -246,7 +246,8 @@ def _parity_lines(result: CampaignResult) -> list[str]:
     ]
     for r in par.to_dict(orient="records"):
         out.append(
-            f"| {md_escape(r['method'])} | {r['n_compounds']} | {r['mean_signed_dev_A3']:+.2f} | "
+            f"| {md_escape(r['qc_method'])} | {r['n_compounds']} | "
+            f"{r['mean_signed_dev_A3']:+.2f} | "
             f"{r['mean_signed_dev_pct']:+.1f} | {r['mean_abs_dev_A3']:.2f} | "
             f"{r['mean_abs_dev_pct']:.1f} | {md_escape(r['verdict'])} |"
         )
@@ -265,7 +266,7 @@ def _parity_lines(result: CampaignResult) -> list[str]:
         ]
         for r in cmp_.to_dict(orient="records"):
             out.append(
-                f"| {md_escape(r['compound'])} | {md_escape(r['method'])} | "
+                f"| {md_escape(r['compound'])} | {md_escape(r['qc_method'])} | "
                 f"{r['alpha_computed_A3']:.2f} | "
                 f"{value_error_text(r['alpha_measured_A3'], r['alpha_measured_err_A3'])} | "
                 f"{r['alpha_diff_A3']:+.2f} |"
@@ -293,10 +294,10 @@ def _crosscheck_lines(c) -> list[str]:
     )
     if x.get("alpha_z") is not None and math.isfinite(x["alpha_z"]):
         out += ["", f"measured α − additive: z = {x['alpha_z']:+.1f}"]
-    if x.get("dipole_predicted_D") is not None:
+    if x.get("dipole_rms_D") is not None:
         out += [
             "",
-            f"force-field conformer dipole √⟨μ²⟩ ≈ {x['dipole_predicted_D']:.2f} D "
+            f"force-field conformer dipole √⟨μ²⟩ ≈ {x['dipole_rms_D']:.2f} D "
             "(force-field charges give rough dipoles: expect tens of percent)",
         ]
     rows = [s for s in c.series if "alpha_eff_pred_A3" in s.extra]

@@ -236,7 +236,7 @@ def computed_section(result, parity_fig: Rendered | None, note: str) -> str:
     )
     if has_par:
         rows = "".join(
-            f"<tr><td>{_e(r['method'])}</td><td class='num'>{r['n_compounds']}</td>"
+            f"<tr><td>{_e(r['qc_method'])}</td><td class='num'>{r['n_compounds']}</td>"
             f"<td class='num'>{_g(r['mean_signed_dev_A3'], '+.2f')}</td>"
             f"<td class='num'>{_g(r['mean_signed_dev_pct'], '+.1f')}</td>"
             f"<td class='num'>{_g(r['mean_abs_dev_A3'], '.2f')}</td>"
@@ -256,7 +256,7 @@ def computed_section(result, parity_fig: Rendered | None, note: str) -> str:
         )
     if has_cmp:
         rows = "".join(
-            f"<tr><td>{_e(r['compound'])}</td><td>{_e(r['method'])}</td>"
+            f"<tr><td>{_e(r['compound'])}</td><td>{_e(r['qc_method'])}</td>"
             f"<td class='num'>{_g(r['alpha_computed_A3'], '.2f')}</td>"
             f"<td class='num'>{_ve(r['alpha_measured_A3'], r['alpha_measured_err_A3'])}</td>"
             f"<td class='num'>{_g(r['alpha_diff_A3'], '+.2f')}</td></tr>"

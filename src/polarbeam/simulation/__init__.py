@@ -35,10 +35,12 @@ from polarbeam.simulation.scans import (
     simulate_scan_table,
     simulate_series,
 )
+from polarbeam.simulation.truth import TRUTH_FILE, truth_record, write_truth
 
 __all__ = [
     "DEMO_COMPOUNDS",
     "DEMO_COMPUTED",
+    "TRUTH_FILE",
     "CalibrationTruth",
     "CompoundTruth",
     "InstrumentSpec",
@@ -58,6 +60,8 @@ __all__ = [
     "simulate_scan_campaign",
     "simulate_scan_table",
     "simulate_series",
+    "truth_record",
     "write_demo",
     "write_demo_scans",
+    "write_truth",
 ]

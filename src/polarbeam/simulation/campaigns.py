@@ -32,6 +32,7 @@ from polarbeam.instrument.deflectors import (
     coupling,
 )
 from polarbeam.simulation import scans as scansim
+from polarbeam.simulation.truth import write_truth
 from polarbeam.simulation.velocity import stated_table, velocity_csv, velocity_table
 
 #: the default particle response of simulated compounds.
@@ -686,7 +687,8 @@ def simulate_random_campaign(
     out_dir: str | Path, seed: int = 0, layout: str = "talbot-lau"
 ) -> tuple[SimulationTruth, CompoundTruth]:
     """One random compound (α 10–80 Å³, μ 0–3 D, 80–600 u) at 300–600 K in a preset instrument:
-    the campaign ``polarbeam simulate`` writes. Returns the truth and the compound."""
+    the campaign ``polarbeam simulate`` writes, with its ``truth.json`` beside ``campaign.toml``
+    (:mod:`polarbeam.simulation.truth`). Returns the truth and the compound."""
     if layout not in LAYOUT_PRESETS:
         raise InputError(f"--layout: expected one of {', '.join(LAYOUT_PRESETS)}, found {layout!r}")
     rng = np.random.default_rng(seed)
@@ -698,4 +700,5 @@ def simulate_random_campaign(
         (300.0, 400.0, 500.0, 600.0),
     )
     truth = simulate_campaign(out_dir, [comp], spec=LAYOUT_PRESETS[layout](), seed=rng)
+    write_truth(truth, written_by="polarbeam simulate", seed=seed, layout=layout)
     return truth, comp

@@ -36,13 +36,14 @@ DEMO_COMPOUNDS = (
 #: Invented "computed chemistry" values for the demo (not the output of any real calculation).
 DEMO_COMPUTED = """\
 # invented values for the demo scenario; not results of real calculations
-compound,method,alpha,alpha_unit,dipole_D
-DM-101,b3lyp/def2-svpd,98.0,bohr3,2.71
-DM-102,b3lyp/def2-svpd,20.1,A3,0.0
-DM-103,b3lyp/def2-svpd,16.8,A3,0.0
-DM-104,b3lyp/def2-svpd,23.0,A3,4.2
-DM-105,b3lyp/def2-svpd,21.5,A3,3.3
-DM-101,hf/def2-svpd,12.6,A3,2.9
+# (DM-101 b3lyp: 98.0 bohr3 written in A3, the unit of the column names)
+compound,qc_method,alpha_A3,dipole_D
+DM-101,b3lyp/def2-svpd,14.522101694699124,2.71
+DM-102,b3lyp/def2-svpd,20.1,0.0
+DM-103,b3lyp/def2-svpd,16.8,0.0
+DM-104,b3lyp/def2-svpd,23.0,4.2
+DM-105,b3lyp/def2-svpd,21.5,3.3
+DM-101,hf/def2-svpd,12.6,2.9
 """
 
 

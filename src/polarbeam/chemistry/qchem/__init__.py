@@ -38,6 +38,7 @@ from polarbeam.chemistry.qchem.compute import (
     d4_polarizability,
 )
 from polarbeam.chemistry.qchem.cost import (
+    CLI_WAYS_OUT,
     DEFAULT_COST_MODELS,
     DEFAULT_MAX_SECONDS,
     CostEstimate,
@@ -64,6 +65,7 @@ from polarbeam.chemistry.qchem.library import (
     check_scheme,
     compute_jobs,
     compute_library,
+    describe_run,
     write_computed,
 )
 from polarbeam.chemistry.qchem.response import (
@@ -80,6 +82,7 @@ from polarbeam.errors import CalculationTooBigError
 
 __all__ = [
     "AU_DIPOLE_SI",
+    "CLI_WAYS_OUT",
     "DEFAULT_COST_MODELS",
     "DEFAULT_FIELD_AU",
     "DEFAULT_MAX_SECONDS",
@@ -105,6 +108,7 @@ __all__ = [
     "cpscf_polarizability",
     "d4_polarizability",
     "default_cache_dir",
+    "describe_run",
     "dipole_au",
     "estimate_cost",
     "finite_field_polarizability",

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from pathlib import Path
 
 import numpy as np
@@ -20,6 +20,7 @@ from polarbeam.chemistry.computed import isotropic_average
 from polarbeam.chemistry.qchem.cache import cache_key, default_cache_dir, read_cached, write_cached
 from polarbeam.chemistry.qchem.cost import (
     DEFAULT_MAX_SECONDS,
+    PYTHON_WAYS_OUT,
     CostModel,
     estimate_cost,
     format_duration,
@@ -52,6 +53,7 @@ def compute_properties(
     cost_model: CostModel | None = None,
     seed: int = DEFAULT_SEED,
     progress: ProgressCallback | None = None,
+    ways_out: Mapping[str, str] = PYTHON_WAYS_OUT,
 ) -> ComputedResult:
     """Static polarizability tensor and dipole moment of one closed-shell molecule with PySCF.
 
@@ -84,6 +86,9 @@ def compute_properties(
         RDKit embedding seed.
     progress
         ``progress(step, total, message)`` called at each step.
+    ways_out
+        How a refusal names the ways out (:data:`PYTHON_WAYS_OUT`; the command line passes
+        :data:`~polarbeam.chemistry.qchem.cost.CLI_WAYS_OUT`, its option names).
 
     Raises
     ------
@@ -135,7 +140,7 @@ def compute_properties(
         raise CalculationTooBigError(
             f"{label}: refusing {method}/{basis}: {estimate.describe()} estimated "
             f"(~N^3–N^4 from a water calibration), limit {format_duration(max_seconds)}; use "
-            "d4_polarizability() for a fast estimate, a smaller basis, or raise max_seconds"
+            f"{ways_out['d4']}, {ways_out['basis']}, or {ways_out['limit']}"
         )
     t0 = time.perf_counter()
     raw = run_pyscf(geom, method, basis, polarizability, field_au, say)

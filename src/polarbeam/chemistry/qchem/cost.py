@@ -17,8 +17,10 @@ from polarbeam.chemistry.qchem.scf import build_mol, is_hf, run_pyscf
 from polarbeam.errors import InputError
 
 __all__ = [
+    "CLI_WAYS_OUT",
     "DEFAULT_COST_MODELS",
     "DEFAULT_MAX_SECONDS",
+    "PYTHON_WAYS_OUT",
     "CostEstimate",
     "CostModel",
     "calibrate_cost_model",
@@ -28,6 +30,21 @@ __all__ = [
 
 #: Default refusal limit for one calculation, seconds (estimated, see :class:`CostModel`).
 DEFAULT_MAX_SECONDS = 1800.0
+
+#: How a refusal names its ways out when called from Python (the function and parameter names).
+PYTHON_WAYS_OUT: dict[str, str] = {
+    "d4": "d4_polarizability() for a fast estimate",
+    "basis": "a smaller basis",
+    "conformers": "fewer conformers",
+    "limit": "raise max_seconds",
+}
+#: The same ways out as ``polarbeam compute`` options (what a command-line user can type).
+CLI_WAYS_OUT: dict[str, str] = {
+    "d4": "--d4 for a fast estimate",
+    "basis": "a smaller --basis",
+    "conformers": "a smaller --conformers",
+    "limit": "raise --max-seconds",
+}
 
 
 @dataclass(frozen=True)

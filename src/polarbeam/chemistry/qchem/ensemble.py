@@ -15,6 +15,7 @@ import hashlib
 import json
 import math
 import time
+from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Literal
@@ -36,7 +37,12 @@ from polarbeam.chemistry.conformers import (
 from polarbeam.chemistry.molecules import as_mol
 from polarbeam.chemistry.qchem.cache import default_cache_dir
 from polarbeam.chemistry.qchem.compute import ProgressCallback
-from polarbeam.chemistry.qchem.cost import DEFAULT_MAX_SECONDS, estimate_cost, format_duration
+from polarbeam.chemistry.qchem.cost import (
+    DEFAULT_MAX_SECONDS,
+    PYTHON_WAYS_OUT,
+    estimate_cost,
+    format_duration,
+)
 from polarbeam.chemistry.qchem.geometry import Geometry
 from polarbeam.chemistry.qchem.response import AU_DIPOLE_SI
 from polarbeam.chemistry.qchem.scf import run_scf_dipole
@@ -218,6 +224,7 @@ def compute_conformer_dipoles(
     use_cache: bool = True,
     max_seconds: float | None = DEFAULT_MAX_SECONDS,
     progress: ProgressCallback | None = None,
+    ways_out: Mapping[str, str] = PYTHON_WAYS_OUT,
 ) -> ConformerDipoles:
     """SCF dipole and energy of every distinct low-energy conformer (PySCF; cached per conformer).
 
@@ -235,6 +242,9 @@ def compute_conformer_dipoles(
         polarizability cost model, an upper bound for an SCF alone); ``None`` = no limit.
     progress
         ``progress(step, total, message)`` once per conformer.
+    ways_out
+        How a refusal names the ways out (Python names by default; the command line passes
+        :data:`~polarbeam.chemistry.qchem.cost.CLI_WAYS_OUT`).
 
     Raises
     ------
@@ -261,8 +271,8 @@ def compute_conformer_dipoles(
             raise CalculationTooBigError(
                 f"{label}: refusing {len(geoms)} conformer SCFs {method}/{basis}: "
                 f"{format_duration(cost.seconds * len(geoms))} estimated, limit "
-                f"{format_duration(max_seconds)}; use fewer conformers, a smaller basis, or "
-                "raise max_seconds"
+                f"{format_duration(max_seconds)}; use {ways_out['conformers']}, "
+                f"{ways_out['basis']}, or {ways_out['limit']}"
             )
     folder = Path(cache_dir or default_cache_dir())
     energies, dipoles = [], []

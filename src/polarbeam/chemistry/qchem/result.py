@@ -181,7 +181,7 @@ def results_table(results: Iterable[ComputedResult]) -> pd.DataFrame:
         rows.append(
             {
                 "compound": r.name,
-                "method": r.label,
+                "qc_method": r.label,
                 "alpha_computed_A3": r.alpha_A3,
                 "dipole_computed_D": r.dipole_D,
                 "alpha_xx_A3": p[0],

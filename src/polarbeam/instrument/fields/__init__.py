@@ -58,7 +58,7 @@ from polarbeam.instrument.fields.ends import (
 from polarbeam.instrument.fields.extrapolate import solve_deflector
 from polarbeam.instrument.fields.geometry import Beam, CrossSection, two_wire_cross_section
 from polarbeam.instrument.fields.grid import FieldSolution
-from polarbeam.instrument.fields.plot import plot_cross_section
+from polarbeam.instrument.fields.plot import format_potential, plot_cross_section
 from polarbeam.instrument.fields.result import DeflectorSolution, field_at_beam
 from polarbeam.instrument.fields.shapes import ArcRegion, BoundaryBox, Circle, Electrode, Polygon
 from polarbeam.instrument.fields.solve import (
@@ -96,6 +96,7 @@ __all__ = [
     "effective_length",
     "effective_length_from_map",
     "field_at_beam",
+    "format_potential",
     "fringe_extension_numerical",
     "maxwell_edge_field",
     "maxwell_fringe_extension",

@@ -16,11 +16,18 @@ from polarbeam.instrument.fields.geometry import Beam
 from polarbeam.instrument.fields.grid import FieldSolution
 from polarbeam.instrument.fields.result import DeflectorSolution
 
-__all__ = ["plot_cross_section"]
+__all__ = ["format_potential", "plot_cross_section"]
 
 
 #: Vermillion of the Okabe–Ito palette (the report's colour-blind-safe palette) for the beam.
 BEAM_COLOUR = "#D55E00"
+
+
+def format_potential(volts: float) -> str:
+    """A potential for a label: ``"10 kV"``, ``"-250 V"``, ``"0 V"`` (4 significant digits)."""
+    if abs(volts) >= 1e3:
+        return f"{volts / 1e3:.4g} kV"
+    return f"{0.0 if abs(volts) < 1e-9 else volts:.4g} V"
 
 
 def plot_cross_section(
@@ -30,10 +37,17 @@ def plot_cross_section(
     beam: Beam | None = None,
     levels: int = 40,
     dpi: int = 150,
+    offset: float = 0.0,
+    title: str | None = None,
 ) -> Path:
     """Save equipotentials, electrodes and the beam rectangle to ``path`` (PNG, PDF, SVG...).
 
-    matplotlib is imported here only (optional dependency ``polarbeam[plots]``).
+    ``offset`` (V) is subtracted from every potential shown (labels and contours): the
+    line-charge offset of the analytic two-wire potentials, so that the electrodes are labelled
+    with the applied potentials (trough 0, convex V) whatever constant the solve used; the field
+    does not change.  The axes are named in the beam frame: x is the deflection direction (the
+    cross-section's vertical axis), y the height across it; z, the beam axis, points out of the
+    page.  matplotlib is imported here only (optional dependency ``polarbeam[plots]``).
     """
     if not has("matplotlib"):
         raise InputError("plot_cross_section: matplotlib is not installed (pip install matplotlib)")
@@ -47,9 +61,10 @@ def plot_cross_section(
     fig = Figure(figsize=(6, 6 * box.height / box.width + 0.6))
     ax = fig.add_subplot()
     X, Y = np.meshgrid(solution.x * MM, solution.y * MM)
-    phi = np.where(solution.free, solution.phi, np.nan)
+    phi = np.where(solution.free, solution.phi - offset, np.nan)
     cset = ax.contour(X, Y, phi, levels=levels, linewidths=0.6, cmap="viridis")
-    fig.colorbar(cset, ax=ax, label="potential (V)", shrink=0.8)
+    label = "potential (V)" if not offset else "potential, lowest electrode at 0 (V)"
+    fig.colorbar(cset, ax=ax, label=label, shrink=0.8)
     for e in cs.electrodes:
         out = e.outline(box)
         if len(out) == 3:
@@ -61,7 +76,7 @@ def plot_cross_section(
         cx = np.clip(0.5 * (bx0 + bx1) if e.bounded else 0.0, box.xmin, box.xmax)
         cy = np.clip(0.5 * (by0 + by1) if e.bounded else box.ymax, box.ymin, box.ymax)
         ax.annotate(
-            f"{e.name}\n{e.potential:.4g} V",
+            f"{e.name}\n{format_potential(e.potential - offset)}",
             (cx * MM, cy * MM),
             fontsize=7,
             ha="center",
@@ -83,8 +98,10 @@ def plot_cross_section(
     ax.set_xlim(box.xmin * MM, box.xmax * MM)
     ax.set_ylim(box.ymin * MM, box.ymax * MM)
     ax.set_aspect("equal")
-    ax.set_xlabel("x (mm)")
-    ax.set_ylabel("y, deflection direction (mm)")
+    ax.set_xlabel("y, height across the deflection (mm)")
+    ax.set_ylabel("x, deflection direction (mm)")
+    if title:
+        ax.set_title(title, fontsize=9)
     p = Path(path)
     fig.savefig(p, dpi=dpi, bbox_inches="tight")
     return p
