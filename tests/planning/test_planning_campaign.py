@@ -35,13 +35,16 @@ def test_worked_example_plan_then_analyze_rehearsal(tmp_path):
         "compound",
         "temperature_K",
         "alpha_eff_pred_A3",
-        "alpha_eff_expected_err_A3",
+        "sigma_alpha_eff_pred_A3",
         "voltage_max_V",
         "n_voltages",
         "scans_per_voltage",
         "beam_time_h",
     ]
     assert {"alpha_expected_err_A3", "dipole_expected_err_D"} <= set(table.columns)
+    # the pinned contract column and its ``_err`` twin carry the same number
+    assert (table["sigma_alpha_eff_pred_A3"] == table["alpha_eff_expected_err_A3"]).all()
+    assert [c for c in table.columns if c.startswith("sigma_")] == ["sigma_alpha_eff_pred_A3"]
     assert set(table["compound"]) == {"DM-101", "DM-102", "DM-103", "DM-104", "DM-105", "DM-107"}
     assert table.groupby("compound").size().eq(3).all()
     for name in table["compound"].unique():

@@ -183,11 +183,15 @@ class CampaignPlan:
                         "compound": c.compound,
                         "temperature_K": s.temperature_K,
                         "alpha_eff_pred_A3": s.alpha_eff_pred_A3,
-                        "alpha_eff_expected_err_A3": s.sigma_total_A3,
+                        # the plan.csv contract's name for the expected 1σ of α_eff, kept in
+                        # its pinned place for scripts written to it; the same value follows
+                        # under the ``_err`` name every other table uses
+                        "sigma_alpha_eff_pred_A3": s.sigma_total_A3,
                         "voltage_max_V": s.voltage_max_V,
                         "n_voltages": len(s.ladder.levels_V),
                         "scans_per_voltage": s.ladder.scans_per_voltage,
                         "beam_time_h": s.beam_time_s / 3600.0,
+                        "alpha_eff_expected_err_A3": s.sigma_total_A3,
                         "alpha_expected_err_A3": c.debye.sigma_alpha_A3 if c.debye else math.nan,
                         "dipole_expected_err_D": c.sigma_dipole_D,
                         "dipole_limit_pred_D": c.dipole_limit_D,
