@@ -26,6 +26,7 @@ __all__ = [
     "DEBYE_SI",
     "EPSILON0",
     "HBAR",
+    "MAGNETIC_FIT_SCALE",
     "MU0",
     "PLANCK",
     "Constant",
@@ -137,6 +138,11 @@ CGS_MOLAR_SUSCEPTIBILITY_SI = 4.0 * np.pi * 1e-6
 CURIE_CONSTANT_CGS = (
     AVOGADRO * MU0 * BOHR_MAGNETON**2 / (3.0 * BOLTZMANN) / (CGS_MOLAR_SUSCEPTIBILITY_SI)
 )
+#: The magnetic fits run on the electric machinery with the force constant in units of 10¹² J/T²
+#: (and the field factor in 10⁻¹² T²/(m A²)): magnetic force constants (10⁻²⁷…10⁻²⁵ J/T²) then
+#: fall at the numerical scale of polarizabilities (10⁻⁴⁰…10⁻³⁷ C·m²/V) for which the electric
+#: first guesses and steps are made; the moment is then in 10⁶ J/T.  The product a·g is unchanged.
+MAGNETIC_FIT_SCALE = 1e12
 CONSTANTS.update(
     {
         c.name: c

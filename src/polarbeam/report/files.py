@@ -17,6 +17,11 @@ from polarbeam._util.cautions import CAUTIONS
 from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
 from polarbeam.quantities import value_error_text
 from polarbeam.report.latex import latex_table
+from polarbeam.report.magnetic import (
+    MAGNETIC_PROPERTY_COLUMNS,
+    MAGNETIC_SERIES_COLUMNS,
+    magnetic_tables,
+)
 from polarbeam.report.markdown_sections import (
     inputs_lines,
     mu_lines,
@@ -93,7 +98,11 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
     only_other = not result.compounds and (
         getattr(result, "recoil", None) is not None or getattr(result, "optical", None) is not None
     )
-    if not only_other:
+    if not only_other and getattr(result, "deflector_field", "electric") == "magnetic":
+        series, props = magnetic_tables(result.series, result.properties)  # report/magnetic.py
+        write_text_atomic(out / "series.csv", _csv(series, MAGNETIC_SERIES_COLUMNS))
+        write_text_atomic(out / "properties.csv", _csv(props, MAGNETIC_PROPERTY_COLUMNS))
+    elif not only_other:
         write_text_atomic(out / "series.csv", _csv(result.series, SERIES_COLUMNS))
         write_text_atomic(out / "properties.csv", _csv(result.properties, PROPERTY_COLUMNS))
     write_text_atomic(
