@@ -96,3 +96,32 @@ def test_magnetic_roundtrip_full_each_quantity(tmp_path):
     for p in (eff, dia, mom):
         assert 0.62 <= _inside(np.concatenate(p)) <= 0.75
     assert reported <= 6  # 60 null compounds, ~3 expected at the 95 % limit
+
+
+ROOT = __import__("pathlib").Path(__file__).resolve().parents[2]
+
+
+def test_magnetic_example_is_reproducible_and_recovers_its_truth(tmp_path):
+    import runpy
+    import sys
+
+    folder = ROOT / "examples" / "magnetic"
+    argv = sys.argv
+    try:
+        sys.argv = ["make_data.py", "--out", str(tmp_path)]
+        runpy.run_path(str(folder / "make_data.py"), run_name="__main__")
+    finally:
+        sys.argv = argv
+    for name in ("campaign.toml", "shifts.csv", "compounds.csv"):
+        assert (tmp_path / name).read_bytes() == (folder / name).read_bytes(), name
+    res = {
+        c.compound: c for c in analyze_campaign(load_campaign(folder / "campaign.toml")).compounds
+    }
+    truth = {"MG-101": (-66.0e-6, 0.0), "MG-201": (-98.0e-6, 0.5), "MG-301": (-97.0e-6, 1.0)}
+    for name, (chi, spin) in truth.items():
+        e = res[name].extra
+        assert abs(e["chi_dia_cm3_mol"] - chi) < 3 * e["chi_dia_err_cm3_mol"]
+        if spin == 0:
+            assert e["moment_muB"] is None and e["moment_upper_muB"] < 0.3
+        else:
+            assert e["spin_verdict"] == f"consistent with S = {'1/2' if spin == 0.5 else '1'}"

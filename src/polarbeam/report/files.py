@@ -20,7 +20,9 @@ from polarbeam.report.latex import latex_table
 from polarbeam.report.magnetic import (
     MAGNETIC_PROPERTY_COLUMNS,
     MAGNETIC_SERIES_COLUMNS,
+    magnetic_markdown_lines,
     magnetic_tables,
+    magnetic_terminal_lines,
 )
 from polarbeam.report.markdown_sections import (
     inputs_lines,
@@ -160,6 +162,8 @@ def render_markdown(result: CampaignResult) -> str:
             f"{value_error_text(r['alpha_A3'], r['alpha_err_A3'])} | {dip} | "
             f"{c.status} | {md_escape(c.message)} |"
         )
+    if getattr(result, "deflector_field", "electric") == "magnetic":  # report/magnetic.py
+        lines += ["", *magnetic_markdown_lines(result, md_escape)]
     for note in result.notes:
         lines += ["", f"> {md_escape(note)}"]
     for c in result.compounds:
@@ -330,9 +334,10 @@ def render_terminal(result: CampaignResult) -> str:
     if (recoil is not None or optical is not None) and not result.compounds:
         lines = recoil_terminal_lines(recoil) if recoil is not None else []
         return "\n".join([title, *lines, *([""] if lines and extra else []), *extra])
+    magnetic = getattr(result, "deflector_field", "electric") == "magnetic"
     head = f"{'compound':<24} {'α (Å³)':>18} {'μ (D)':>16}  status"
     out = [title, head, "-" * len(head)]
-    for c in result.compounds:
+    for c in () if magnetic else result.compounds:
         r = c.row()
         a = value_error_text(r["alpha_A3"], r["alpha_err_A3"])
         if r["dipole_D"] is not None:
@@ -344,6 +349,8 @@ def render_terminal(result: CampaignResult) -> str:
         name = terminal_safe(c.compound)
         name = name if len(name) <= 24 else name[:23] + "…"
         out.append(f"{name:<24} {a:>18} {d:>16}  {terminal_safe(c.status)}")
+    if magnetic:  # report/magnetic.py
+        out = magnetic_terminal_lines(result, terminal_safe)
     if recoil is not None:
         out += ["", *recoil_terminal_lines(recoil)]
     if extra:
