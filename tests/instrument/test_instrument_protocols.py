@@ -18,6 +18,7 @@ from polarbeam.instrument.deflectors import (
     coupling,
     overlap,
 )
+from polarbeam.instrument.magnets import MagneticDeflector
 from polarbeam.instrument.numerical import NumericalDeflector
 from polarbeam.instrument.protocols import DeflectorModel, LayoutModel
 
@@ -49,6 +50,14 @@ def _deflectors():
         ("field-map", FieldMapDeflector((0.0, length / 2, length), (0.0, 2e5, 0.0), e)),
         # a solved cross-section over its effective length L + 2·extension
         ("numerical", NumericalDeflector(1.5e5, e, length, 0.01 * length, 4.0e3)),
+        # electromagnets (issue 24): g_B in T²/(m A²), a block and a map of (B ∂B/∂x)/I²
+        ("magnet", MagneticDeflector(35.0, e, length, 0.06)),
+        (
+            "magnet-map",
+            MagneticDeflector(
+                1.0, e, None, model="field-map", z=(0.0, length / 2, length), g=(0.0, 40.0, 0.0)
+            ),
+        ),
     ]
 
 

@@ -39,6 +39,12 @@ from polarbeam._util.text import close_name
 from polarbeam.chemistry import read_computed, read_sdf
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.deflector_files import deflector_files
+from polarbeam.contract.magnetic import (
+    check_drive_columns,
+    electric_keys_only,
+    magnetic_deflector,
+    magnetic_settings,
+)
 from polarbeam.contract.numerical import (
     NUMERICAL_KEYS,
     numerical_deflector,
@@ -198,6 +204,7 @@ class Campaign:
     warnings: tuple[str, ...] = ()  # implausible inputs (likely unit slips), one line each
     thermometer_offset: Measured | None = None  # [source]: one error common to every series' T
     velocity: VelocitySettings = field(default_factory=VelocitySettings)  # [beam], tables
+    magnetic: Any = None  # contract.magnetic.MagneticSettings: [deflector] field = "magnetic"
 
     @property
     def observable(self) -> str:
@@ -231,6 +238,8 @@ def build_layout(name: str, v: dict[str, float]):
 
 
 def build_deflector(c: Campaign, v: dict[str, float]):
+    if c.magnetic is not None:  # an electromagnet (contract/magnetic.py)
+        return magnetic_deflector(c.magnetic, v)
     g = v.get
     if c.layout == "time-domain":
         if c.model != "uniform":
@@ -519,10 +528,14 @@ def _load_compounds(
 
 
 def _load_shifts(
-    path: Path, layout: str, table_notes: list[str] | None = None, tabled: bool = False
+    path: Path,
+    layout: str,
+    table_notes: list[str] | None = None,
+    tabled: bool = False,
+    drive: str = "voltage_V",
 ):
     obs, obs_err = OBSERVABLE_COLUMNS[layout]
-    required = (*SHIFT_COLUMNS_COMMON, obs, obs_err)
+    required = (*(drive if c == "voltage_V" else c for c in SHIFT_COLUMNS_COMMON), obs, obs_err)
     if layout == "time-domain":
         required = tuple(c for c in required if not c.startswith("velocity"))
     table = read_table(path, required, "shifts")
@@ -555,7 +568,7 @@ def _load_shifts(
                     i, "velocity_spread_m_s", nonnegative=True, default=np.nan if tabled else None
                 )
             rec = (
-                num(i, "voltage_V"),
+                num(i, drive) if drive == "voltage_V" else num(i, drive, nonnegative=True),
                 num(i, obs),
                 num(i, obs_err, positive=True),
                 v,
@@ -579,9 +592,10 @@ def _load_shifts(
             arr = np.array([r[:7] for r in recs], dtype=float)
             volts = arr[:, 0]
             if np.unique(np.round(volts**2, 9)).size < 2:
+                what = "voltages (|V|)" if drive == "voltage_V" else "currents (|I|)"
                 problems[name] = (
                     f"{table.name}: series {name} @ {temp:g} K expected at least two different "
-                    f"voltages (|V|), found {np.unique(np.abs(volts)).size}"
+                    f"{what}, found {np.unique(np.abs(volts)).size}"
                 )
                 break
             try:
@@ -651,7 +665,7 @@ def load_campaign(path: str | Path) -> Campaign:
     path = Path(path)
     fname = path.name
     doc = read_toml(path)
-    check_keys(doc, fname)
+    check_keys(electric_keys_only(doc), fname)  # magnetic keys: contract/magnetic.py
     inst = doc.get("instrument", {})
     defl = doc.get("deflector", {})
     layout = require_str(inst, "layout", f"{fname} [instrument]", LAYOUTS)
@@ -666,13 +680,17 @@ def load_campaign(path: str | Path) -> Campaign:
     title = doc.get("campaign", {}).get("title", path.stem)
     if not isinstance(title, str):
         raise InputError(f"{fname} [campaign] title: expected a string, found {title!r}")
-    stated = stated_inputs(doc, fname, layout, model)
+    magnetic = magnetic_settings(doc, fname, layout, path.parent)
+    stated = stated_inputs(doc, fname, layout, "none" if magnetic else model)
+    stated.update(magnetic.stated if magnetic else {})
     settings = analysis_settings(doc, fname)
     offset = thermometer_offset(doc, fname)
     vset = velocity_settings(doc, fname, layout)
     tof = time_of_flight_settings(doc, fname, layout)  # [data] time_of_flight, [beam] keys
     base = path.parent
-    field_map, waveform = deflector_files(defl, base, fname, layout, model)
+    field_map, waveform = (
+        deflector_files(defl, base, fname, layout, model) if magnetic is None else (None, None)
+    )
     data = doc.get("data", {})
     compounds_path = data_path(base, doc, "compounds", fname)
     structures = load_structures(base, doc, fname)
@@ -706,7 +724,10 @@ def load_campaign(path: str | Path) -> Campaign:
             shifts_path = None
         elif shifts_path is not None:
             tabled = vset.tables is not None or tof is not None
-            series, problems, ignored = _load_shifts(shifts_path, layout, table_notes, tabled)
+            drive = check_drive_columns(shifts_path, magnetic is not None)
+            series, problems, ignored = _load_shifts(
+                shifts_path, layout, table_notes, tabled, drive
+            )
         else:
             series, problems = {}, {}
     if shifts_path is not None and tof is not None:  # fitted traces (contract.time_of_flight)
@@ -726,6 +747,7 @@ def load_campaign(path: str | Path) -> Campaign:
         field_map=field_map,
         waveform=waveform,
         raw=doc,
+        magnetic=magnetic,
     )
     deflector = check_geometry(camp)
     if model == "numerical":  # the solve's mesh-refinement error becomes a stated input
@@ -790,7 +812,7 @@ def load_campaign(path: str | Path) -> Campaign:
         masses=[(f"line {e['line']}", e["mass"].value / AMU) for e in info.values() if "line" in e],
         shifts_file=shifts_path.name if shifts_path is not None else "",
         rows=table_rows(compounds, layout, "scans" in data),
-        field_per_volt=getattr(deflector, "field_per_volt", None),
+        field_per_volt=getattr(deflector, "field_per_volt", None) if magnetic is None else None,
     )
     return Campaign(
         path=path,
@@ -815,6 +837,7 @@ def load_campaign(path: str | Path) -> Campaign:
         warnings=warnings,
         thermometer_offset=offset,
         velocity=vset,
+        magnetic=magnetic,
     )
 
 

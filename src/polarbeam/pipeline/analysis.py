@@ -23,6 +23,7 @@ from polarbeam.calibration.calibrate import (
     reference_values,
 )
 from polarbeam.comparison.checks import computed_comparison, cross_check
+from polarbeam.comparison.magnetic import magnetic_structure_check
 from polarbeam.contract.campaign import Campaign, CompoundData, build_layout, load_campaign
 from polarbeam.extraction.context import Context, build_context
 from polarbeam.extraction.recoil import analyze_recoil
@@ -32,6 +33,7 @@ from polarbeam.results.objects import CampaignResult, CompoundResult
 from polarbeam.results.recoil import with_recoil
 from polarbeam.results.visibility import with_optical
 from polarbeam.separation.compound import make_result, separate
+from polarbeam.separation.magnetic import magnetic_compound
 
 __all__ = [
     "analyze",
@@ -44,6 +46,11 @@ __all__ = [
 def analyze_compound(cd: CompoundData, c: Campaign, ctx: Context) -> CompoundResult:
     """α_eff per series, α and μ, then (unless switched off) the structure cross-check."""
     result = separate(cd, c, ctx)
+    if c.magnetic is not None:  # χ and moments from the same fits (separation/magnetic.py)
+        result = magnetic_compound(result, ctx.field_per_volt, c.settings)
+        if c.settings.structure_check:  # Pascal's χ_dia, spin-only moments
+            result = magnetic_structure_check(result, cd, c)
+        return result
     if c.settings.structure_check and result.status != "failed":
         result = cross_check(result, cd, c)
     return result

@@ -17,6 +17,13 @@ from polarbeam._util.cautions import CAUTIONS
 from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
 from polarbeam.quantities import value_error_text
 from polarbeam.report.latex import latex_table
+from polarbeam.report.magnetic import (
+    MAGNETIC_PROPERTY_COLUMNS,
+    MAGNETIC_SERIES_COLUMNS,
+    magnetic_markdown_lines,
+    magnetic_tables,
+    magnetic_terminal_lines,
+)
 from polarbeam.report.markdown_sections import (
     inputs_lines,
     mu_lines,
@@ -93,7 +100,11 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
     only_other = not result.compounds and (
         getattr(result, "recoil", None) is not None or getattr(result, "optical", None) is not None
     )
-    if not only_other:
+    if not only_other and getattr(result, "deflector_field", "electric") == "magnetic":
+        series, props = magnetic_tables(result.series, result.properties)  # report/magnetic.py
+        write_text_atomic(out / "series.csv", _csv(series, MAGNETIC_SERIES_COLUMNS))
+        write_text_atomic(out / "properties.csv", _csv(props, MAGNETIC_PROPERTY_COLUMNS))
+    elif not only_other:
         write_text_atomic(out / "series.csv", _csv(result.series, SERIES_COLUMNS))
         write_text_atomic(out / "properties.csv", _csv(result.properties, PROPERTY_COLUMNS))
     write_text_atomic(
@@ -151,6 +162,8 @@ def render_markdown(result: CampaignResult) -> str:
             f"{value_error_text(r['alpha_A3'], r['alpha_err_A3'])} | {dip} | "
             f"{c.status} | {md_escape(c.message)} |"
         )
+    if getattr(result, "deflector_field", "electric") == "magnetic":  # report/magnetic.py
+        lines += ["", *magnetic_markdown_lines(result, md_escape)]
     for note in result.notes:
         lines += ["", f"> {md_escape(note)}"]
     for c in result.compounds:
@@ -322,9 +335,10 @@ def render_terminal(result: CampaignResult) -> str:
     if (recoil is not None or optical is not None) and not result.compounds:
         lines = recoil_terminal_lines(recoil) if recoil is not None else []
         return "\n".join([title, *lines, *([""] if lines and extra else []), *extra])
+    magnetic = getattr(result, "deflector_field", "electric") == "magnetic"
     head = f"{'compound':<24} {'α (Å³)':>18} {'μ (D)':>16}  status"
     out = [title, head, "-" * len(head)]
-    for c in result.compounds:
+    for c in () if magnetic else result.compounds:
         r = c.row()
         a = value_error_text(r["alpha_A3"], r["alpha_err_A3"])
         if r["dipole_D"] is not None:
@@ -336,6 +350,8 @@ def render_terminal(result: CampaignResult) -> str:
         name = terminal_safe(c.compound)
         name = name if len(name) <= 24 else name[:23] + "…"
         out.append(f"{name:<24} {a:>18} {d:>16}  {terminal_safe(c.status)}")
+    if magnetic:  # report/magnetic.py
+        out = magnetic_terminal_lines(result, terminal_safe)
     if recoil is not None:
         out += ["", *recoil_terminal_lines(recoil)]
     if extra:

@@ -402,6 +402,7 @@ class CampaignResult:
     provenance: dict[str, Any] = field(default_factory=dict)  # date, software, input hashes
     #: the raw-scan reduction (reduction.ReducedPhases) when the campaign started from scans
     reduction: Any = field(default=None, repr=False, compare=False)
+    deflector_field: str = "electric"  # "magnetic": [deflector] field = "magnetic"
 
     @property
     def series(self) -> pd.DataFrame:
@@ -465,6 +466,7 @@ class CampaignResult:
                 "source": self.source,
                 "layout": self.layout,
                 "deflector_model": self.model,
+                **({"field": self.deflector_field} if self.deflector_field != "electric" else {}),
                 "stated_inputs": self.stated_inputs,
                 "settings": self.settings,
             },

@@ -390,6 +390,7 @@ def make_result(c: Campaign, compounds, ctx: Context) -> CampaignResult:
         input_warnings=c.warnings,
         provenance=provenance(input_files(c.path, c.raw)),
         reduction=c.reduction,
+        deflector_field="magnetic" if getattr(c, "magnetic", None) is not None else "electric",
     )
 
 

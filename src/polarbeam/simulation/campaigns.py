@@ -148,6 +148,7 @@ def _deflector_inputs(model: str, rel: float):
 
 
 _UNIT_SCALE = {"m": 1.0, "mm": 1e-3, "nm": 1e-9, "us": 1e-6, "m^-3": 1.0, "s": 1.0, "m^-1": 1.0}
+_UNIT_SCALE.update({"T^2/(m A^2)": 1.0, "T/A": 1.0})  # magnetic deflectors (simulation/magnetic)
 
 
 def _fmt_q(value: float, err: float, unit: str) -> str:
@@ -294,7 +295,7 @@ def simulate_campaign(
         a_max = response.alpha_eff(a_si, mu_si, min(rot.values() or comp.temperatures_K))
         v_nom = velocity_m_s
         inv_v2 = 1.0 if kind == "time-domain" else (1 + 3 * spread_frac**2) / v_nom**2
-        vmax = math.sqrt(signal * m_stated / (a_max * c_nom * inv_v2))
+        vmax = math.sqrt(signal * m_stated / (abs(a_max) * c_nom * inv_v2))  # < 0: diamagnets
         ladder = np.linspace(-vmax, vmax, n_voltages)
         for t_stated in comp.temperatures_K:
             t_true = t_stated + temperature_err_K * rng.standard_normal()
