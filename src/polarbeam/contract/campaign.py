@@ -39,6 +39,7 @@ from polarbeam._util.text import close_name
 from polarbeam.chemistry import read_computed, read_sdf
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.deflector_files import deflector_files
+from polarbeam.contract.grating_contrast import attach_grating_contrast
 from polarbeam.contract.numerical import (
     NUMERICAL_KEYS,
     numerical_deflector,
@@ -736,6 +737,9 @@ def load_campaign(path: str | Path) -> Campaign:
     vis = None  # [gratings] and visibilities.csv (polarbeam.contract.visibility)
     if "visibilities" in data:
         vis = load_visibilities(doc, path, layout, stated, info, compounds_path.name)
+    if "gratings" in doc and shifts_path is not None and series:  # contract/grating_contrast.py
+        args = (series, problems, info, shifts_path, compounds_path.name, "scans" in data)
+        series = attach_grating_contrast(doc, path, layout, stated, *args)
 
     compounds = []
     measured_names = list(dict.fromkeys(list(series) + list(problems)))
