@@ -104,6 +104,13 @@ def _fails_first(pattern: str):
     return check
 
 
+def _noted(folder: Path) -> None:
+    props = _props(folder)
+    assert all(p["status"] != "failed" for p in props.values()), props
+    text = (folder / "out" / "results.json").read_text(encoding="utf-8")
+    assert "has no 'laser_power_W' column, so the deflection series use no model contrast" in text
+
+
 CASES = [
     Case(
         "optical-alpha-missing",
@@ -145,20 +152,13 @@ CASES = [
     Case(
         "laser-power-column-missing",
         _edit_csv("shifts.csv", _drop("laser_power_W")),
-        2,  # every compound failed
+        0,  # the series keep no model contrast; the campaign says so in a note
         None,
+        _noted,
     ),
 ]
 
 
 @pytest.mark.parametrize("case", CASES, ids=[c.id for c in CASES])
 def test_grating_contrast_catalogue(case: Case, tmp_path: Path) -> None:
-    result = run_case(case, tmp_path)
-    if case.id == "laser-power-column-missing":  # each compound named in one line
-        failed = [ln for ln in result.output.splitlines() if ln.startswith("failed: ")]
-        assert len(failed) == 2, result.output
-        for ln in failed:
-            assert (
-                "column 'laser_power_W' expected the light grating's power (W; [gratings] "
-                "second = 'light'), found no such column"
-            ) in ln, ln
+    run_case(case, tmp_path)

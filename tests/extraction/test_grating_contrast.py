@@ -145,6 +145,10 @@ def test_series_round_trip_with_the_model_contrast_is_honest_and_ignoring_it_bia
             out.append((f.alpha_si - a_true) / np.sqrt(f.covariance[0, 0]))
     pulls, plain = np.asarray(pulls), np.asarray(plain)
     frac = float(np.mean(np.abs(pulls) < 1))
+    print(
+        f"series: |pull| < 1 for {frac:.3f} of {pulls.size}, mean {pulls.mean():+.2f}, "
+        f"sd {pulls.std():.2f}; without the model mean pull {plain.mean():+.2f}"
+    )
     assert 0.5 <= frac <= 0.85, (frac, pulls.mean())  # 0.683 ± 0.06 for 60 honest pulls
     assert 0.75 < float(np.std(pulls)) < 1.3, pulls.std()
     assert abs(float(np.mean(pulls))) < 0.35, pulls.mean()
@@ -201,6 +205,10 @@ def test_campaign_round_trip_reads_gratings_power_and_optical_alpha(tmp_path):
                     plain.append((se.alpha_eff_A3 - t) / se.alpha_eff_err_A3)
     pulls, plain = np.asarray(pulls), np.asarray(plain)
     frac = float(np.mean(np.abs(pulls) < 1))
+    print(
+        f"campaigns: |pull| < 1 for {frac:.3f} of {pulls.size}, mean {pulls.mean():+.2f}; "
+        f"without [gratings] mean pull {plain.mean():+.2f} ({plain.size} series)"
+    )
     assert 0.5 <= frac <= 0.9, (frac, pulls)
     assert abs(float(np.mean(pulls))) < 0.5, pulls
     assert float(np.mean(plain)) > float(np.mean(pulls)) + 1.5, (plain, pulls)

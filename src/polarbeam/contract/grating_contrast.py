@@ -7,7 +7,8 @@ the deflection phasor multiplies into the class weights (docs/visibility.md §11
 
 * the compound's mass (compounds.csv);
 * with a light grating (``second = "light"``): the laser power of each series, the
-  ``laser_power_W`` column of shifts.csv (one value per series), and the compound's optical
+  ``laser_power_W`` column of shifts.csv (one value per series; without the column the series
+  keep no model contrast and the campaign gets a note), and the compound's optical
   polarizability ``alpha_opt_A3`` (Re α at the laser wavelength, Å³) and absorption
   cross-section ``sigma_abs_m2`` (default 0: no absorption) in compounds.csv — the columns the
   planner reads, and the values optical.csv reports for a visibility campaign.
@@ -69,13 +70,8 @@ def _optical(entry: dict, compounds_file: str, light: bool) -> tuple[float, floa
     return alpha * ANGSTROM3_SI, sigma
 
 
-def _series_power(s: SeriesData, cells: dict[int, str] | None, shifts_name: str) -> float:
+def _series_power(s: SeriesData, cells: dict[int, str], shifts_name: str) -> float:
     where = f"{shifts_name}: series {s.label}"
-    if cells is None:
-        raise CompoundError(
-            f"{where}: column 'laser_power_W' expected the light grating's power (W; [gratings] "
-            "second = 'light'), found no such column"
-        )
     raws = [(cells.get(line) or "").strip() for line in s.lines]
     values = {_number(r, where, "laser_power_W", "a power >= 0 W", 0.0, False) for r in raws}
     if len(values) != 1:
@@ -95,9 +91,12 @@ def attach_grating_contrast(
     shifts_path: Path,
     compounds_file: str,
     scans: bool = False,
+    notes: list[str] | None = None,
 ) -> dict[str, list[SeriesData]]:
     """The series with the model's contrast per velocity class (``grating_contrast``); compounds
-    whose inputs are missing or bad move to ``problems``.
+    whose inputs are missing or bad move to ``problems``. A light grating without a
+    ``laser_power_W`` column in shifts.csv leaves the series as they are, with a note (the
+    campaign's visibility data may be all the ``[gratings]`` table is for).
 
     Raises :class:`InputError` for a bad ``[gratings]`` table, or a light grating with raw scans
     (which carry no laser power per series).
@@ -114,11 +113,18 @@ def attach_grating_contrast(
     cells = None
     if spec.light:
         table = read_table(shifts_path, ("compound",), "shifts")
-        if "laser_power_W" in table.columns:
-            cells = {
-                line: row.get("laser_power_W", "")
-                for line, row in zip(table.lines, table.rows, strict=True)
-            }
+        if "laser_power_W" not in table.columns:
+            if notes is not None:
+                notes.append(
+                    f"{fname} [gratings]: {shifts_path.name} has no 'laser_power_W' column, so "
+                    "the deflection series use no model contrast per velocity class (give the "
+                    "light grating's power of each series to use it; docs/visibility.md §11)"
+                )
+            return series
+        cells = {
+            line: row.get("laser_power_W", "")
+            for line, row in zip(table.lines, table.rows, strict=True)
+        }
     out: dict[str, list[SeriesData]] = {}
     for name, items in series.items():
         entry = info.get(name)
@@ -129,7 +135,7 @@ def attach_grating_contrast(
             alpha, sigma = _optical(entry, compounds_file, spec.light)
             new = []
             for s in items:
-                power = _series_power(s, cells, shifts_path.name) if spec.light else 0.0
+                power = _series_power(s, cells or {}, shifts_path.name) if spec.light else 0.0
                 model = GratingContrast(tl, float(entry["mass"].value), power, alpha, sigma)
                 new.append(replace(s, grating_contrast=model))
         except CompoundError as exc:
