@@ -15,6 +15,8 @@ from polarbeam.constants import AMU, ANGSTROM3_SI
 from polarbeam.contract.campaign import load_campaign
 from polarbeam.contract.velocity import attach_distributions
 from polarbeam.extraction.visibility import analyze_visibilities, series_distribution
+from polarbeam.pipeline.analysis import analyze_campaign
+from polarbeam.simulation.campaigns import CompoundTruth, InstrumentSpec, simulate_campaign
 from polarbeam.simulation.visibility import (
     VisibilityCompoundTruth,
     VisibilitySetup,
@@ -98,3 +100,47 @@ def test_deflection_side_leaves_the_visibility_tables_alone():
     # told nothing, the deflection side flags the table as its own (the check it keeps)
     attach_distributions({}, problems, {("vis-1", 500.0): t}, {}, *args[:3])
     assert "has a table but no series in shifts.csv" in problems["vis-1"]
+
+
+def test_one_velocities_file_serves_deflection_and_visibility_data(tmp_path):
+    """A campaign with both kinds of data and one velocities.csv: the deflection series take
+    their tables, the visibility compound (measured only in visibilities.csv) takes its own, and
+    nobody fails for the other's table."""
+    deflection = [CompoundTruth("cmp-1", 150.0, 15.0, 0.0, (300.0, 450.0))]
+    truth = simulate_campaign(
+        tmp_path / "camp",
+        deflection,
+        spec=InstrumentSpec.talbot_lau(),
+        seed=np.random.default_rng(3),
+        table_shape="supersonic",
+    )
+    camp = truth.path / "campaign.toml"
+    comps = [VisibilityCompoundTruth("vis-1", 1500.0, 110.0, 4.0, ((500.0, 170.0, 20.0, 1.5),))]
+    setup = VisibilitySetup(spacing=0.38, powers=SETUP.powers)
+    vpath, _ = simulate_visibility_campaign(
+        tmp_path / "v", comps, setup, seed=1, table_shape="supersonic"
+    )
+    folder = camp.parent
+    (folder / "visibilities.csv").write_text((vpath.parent / "visibilities.csv").read_text())
+    extra = (vpath.parent / "velocities.csv").read_text().splitlines()[1:]
+    with (folder / "velocities.csv").open("a", encoding="utf-8") as h:
+        h.write("\n".join(extra) + "\n")
+    with (folder / "compounds.csv").open("a", encoding="utf-8") as h:
+        h.write("vis-1,1500,0,\n")
+    text = camp.read_text().replace("[data]", '[data]\nvisibilities = "visibilities.csv"')
+    text += (
+        '\n[gratings]\nfirst = "material"\nsecond = "light"\nthird = "material"\n'
+        'open_fraction = "0.42 ± 0.02"\nlaser_wavelength = "532 nm"\n'
+        'laser_waist_vertical = "900 ± 30 um"\npower_scale = "1 ± 0.03"\n'
+    )
+    camp.write_text(text)
+    c = load_campaign(camp)
+    assert [x.name for x in c.compounds] == ["cmp-1"]
+    assert c.compounds[0].problem is None
+    assert all(s.distribution is not None for s in c.compounds[0].series)
+    (vc,) = c.visibility.compounds
+    assert vc.problem is None and vc.series[0].distribution is not None
+    assert any("has no 'laser_power_W' column" in n for n in c.table_notes)
+    result = analyze_campaign(c)
+    assert all(x.status != "failed" for x in result.compounds)
+    assert result.optical.compounds[0].status == "ok"
