@@ -194,6 +194,7 @@ def test_campaign_round_trip_reads_gratings_power_and_optical_alpha(tmp_path):
         r = polarbeam.analyze(camp)
         for cr in r.compounds:
             for se in cr.series:
+                assert se.extra["contrast_model_power_W"] == 3.0  # series.csv, results.json
                 t = truth.alpha_eff_A3[(cr.compound, se.temperature_K)]
                 pulls.append((se.alpha_eff_A3 - t) / se.alpha_eff_err_A3)
         if k < 2:

@@ -271,10 +271,13 @@ def velocity_models(
 
 def velocity_extra(s: SeriesData, layout: str) -> dict:
     """Result columns of a series' velocity model (its kind, the spread error) when it is not
-    the default Gaussian (so that Gaussian campaigns keep their columns)."""
+    the default Gaussian (so that Gaussian campaigns keep their columns), and the laser power
+    of the ``[gratings]`` contrast model when the series has one."""
+    model = getattr(s, "grating_contrast", None)
+    extra: dict = {} if model is None else {"contrast_model_power_W": float(model.power)}
     if layout == "time-domain" or (s.distribution is None and s.shape == "gaussian"):
-        return {}
-    out: dict = {"velocity_distribution": s.shape}
+        return extra
+    out: dict = {"velocity_distribution": s.shape, **extra}
     if s.spread_error > 0:
         out["velocity_spread_err_m_s"] = s.spread_error
     return out
