@@ -65,6 +65,25 @@ def _row(compound: str, column: str, value: str):
     return build
 
 
+def _tables(change):
+    """The campaign with measured velocity tables (velocities.csv; empty velocity cells in
+    visibilities.csv); ``change(rows)`` edits the table rows (compound, T, velocity, weight)."""
+
+    def build(folder: Path) -> list[str]:
+        camp = simulate_visibility_campaign(
+            folder / "camp", COMPOUNDS, SETUP, seed=5, table_shape="supersonic"
+        )[0]
+        p = camp.parent / "velocities.csv"
+        with p.open(newline="", encoding="utf-8") as h:
+            rows = list(csv.reader(h))
+        rows = [rows[0], *change(rows[1:])]
+        with p.open("w", newline="", encoding="utf-8") as h:
+            csv.writer(h, lineterminator="\n").writerows(rows)
+        return _analyze(folder, camp)
+
+    return build
+
+
 def _nothing_written(folder: Path) -> None:
     assert not (folder / "out" / "optical.csv").exists()
 
@@ -155,6 +174,37 @@ CASES = [
         None,
         _first_failed(
             r"visibilities\.csv line 2: column 'visibility' expected 0 \.\. 1, found '1\.3'"
+        ),
+    ),
+    Case(
+        "velocity-table-without-series",
+        _tables(lambda rows: [*rows, ["vis-1", "700", "150", "1"], ["vis-1", "700", "160", "1"]]),
+        1,
+        None,
+        _first_failed(
+            r"velocities\.csv: series vis-1 @ 700 K has a table but no series in "
+            r"visibilities\.csv; expected a series of vis-1 at temperature_K 700, found 500 K$"
+        ),
+    ),
+    Case(
+        "velocity-cells-empty-without-table",
+        _tables(lambda rows: [r for r in rows if r[0] != "vis-1"]),
+        1,
+        None,
+        _first_failed(
+            r"visibilities\.csv: series vis-1 @ 500 K expected velocity_m_s and "
+            r"velocity_spread_m_s \(or its rows in velocities\.csv\), found empty cells and no "
+            r"table$"
+        ),
+    ),
+    Case(
+        "velocity-table-negative-weight",
+        _tables(lambda rows: [[*r[:3], "-1"] if i == 5 else r for i, r in enumerate(rows)]),
+        1,
+        None,
+        _first_failed(
+            r"velocities\.csv: series vis-1 @ 500 K: the table is not a velocity distribution: "
+            r"expected weights >= 0, found -1$"
         ),
     ),
     Case(

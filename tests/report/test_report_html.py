@@ -129,6 +129,32 @@ def test_visibility_is_drawn_when_recorded(result):
     assert figures.visibility_figure(dataclasses.replace(c, series=(flat,))) is None
 
 
+def test_visibility_figure_uses_the_stored_normalisation(result):
+    """One normalisation (the zero-field references) in the figure, results.json and series.csv:
+    the drawn points are ``relative_visibility`` of the summary, the line is the stored
+    ``velocity_contrast`` modulus; nothing is rescaled to the lowest-field point."""
+    c = result.compounds[1]
+    s = c.series[0]
+    vis = 0.9 * np.asarray(s.modulus) + 0.03 * np.cos(np.arange(s.modulus.size))
+    s2 = dataclasses.replace(s, visibility=vis, visibility_err=np.full_like(vis, 0.01))
+    fig = figures.visibility_figure(dataclasses.replace(c, series=(s2,)))
+    ax = fig.axes[0]
+    order = np.argsort(s2.voltages)
+    summary = s2.summary()
+    line = next(ln for ln in ax.get_lines() if ln.get_linestyle() == "-")
+    stored = np.asarray([p["velocity_contrast"] for p in summary["points"]])
+    np.testing.assert_allclose(line.get_ydata(), stored[order], rtol=0, atol=0)
+    points = next(ln for ln in ax.get_lines() if ln.get_marker() not in (None, "None", ""))
+    np.testing.assert_allclose(
+        points.get_ydata(), np.asarray(summary["relative_visibility"])[order], rtol=0, atol=0
+    )
+    vmax = np.max(np.abs(s2.voltages))
+    at_max = float(np.nanmean(vis[np.abs(s2.voltages) == vmax]))
+    assert s2.row()["relative_visibility_at_max_V"] == at_max
+    assert s2.row()["min_velocity_contrast"] == float(np.min(line.get_ydata()))
+    assert "zero-field" in ax.get_title()
+
+
 def test_figures_without_values_are_left_out(result):
     c = dataclasses.replace(result.compounds[2], extra={})
     assert figures.debye_figure(c) is None

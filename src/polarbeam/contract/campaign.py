@@ -39,6 +39,7 @@ from polarbeam._util.text import close_name
 from polarbeam.chemistry import read_computed, read_sdf
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.deflector_files import deflector_files
+from polarbeam.contract.grating_contrast import attach_grating_contrast
 from polarbeam.contract.magnetic import (
     check_drive_columns,
     electric_keys_only,
@@ -80,7 +81,11 @@ from polarbeam.contract.velocity import (
     velocity_models,
     velocity_settings,
 )
-from polarbeam.contract.visibility import GRATING_KEYS, load_visibilities
+from polarbeam.contract.visibility import (
+    GRATING_KEYS,
+    load_visibilities,
+    visibility_velocity_tables,
+)
 from polarbeam.errors import CompoundError, InputError, QuantityError
 from polarbeam.instrument.deflectors import (
     DEFLECTOR_MODELS,
@@ -730,11 +735,18 @@ def load_campaign(path: str | Path) -> Campaign:
             )
         else:
             series, problems = {}, {}
+    vis = None  # [gratings] and visibilities.csv (polarbeam.contract.visibility), tables shared
+    if "visibilities" in data:
+        tabs = visibility_velocity_tables(doc, base, fname)
+        vis = load_visibilities(
+            doc, path, layout, stated, info, compounds_path.name, tabs, frozenset(series)
+        )
     if shifts_path is not None and tof is not None:  # fitted traces (contract.time_of_flight)
         args = (vset, tof, layout, base, fname, shifts_path.name)
         series = velocity_models_with_traces(series, problems, *args)
     elif shifts_path is not None:  # tables, named shapes (polarbeam.contract.velocity)
-        series = velocity_models(series, problems, vset, layout, base, fname, shifts_path.name)
+        args = (vset, layout, base, fname, shifts_path.name, vis.measured if vis else ((), ()))
+        series = velocity_models(series, problems, *args)
 
     camp = Campaign(
         path=path,
@@ -755,9 +767,9 @@ def load_campaign(path: str | Path) -> Campaign:
     recoil = None
     if "recoil" in data or "laser" in doc:  # [[laser]] tables and recoil.csv (extraction.recoil)
         recoil = load_recoil(doc, path, layout, stated, info, compounds_path.name)
-    vis = None  # [gratings] and visibilities.csv (polarbeam.contract.visibility)
-    if "visibilities" in data:
-        vis = load_visibilities(doc, path, layout, stated, info, compounds_path.name)
+    if "gratings" in doc and shifts_path is not None and series:  # contract/grating_contrast.py
+        args = (series, problems, info, shifts_path, compounds_path.name, "scans" in data)
+        series = attach_grating_contrast(doc, path, layout, stated, *args, table_notes)
 
     compounds = []
     measured_names = list(dict.fromkeys(list(series) + list(problems)))

@@ -120,6 +120,9 @@ class SeriesData:
     #: and its velocity-scale error terms (tag, relative change per 1σ) for the separation
     time_of_flight: Any = None
     velocity_terms: tuple[tuple[str, float], ...] = ()
+    #: the interferometer model's contrast per velocity class ([gratings];
+    #: polarbeam.beam.talbot.GratingContrast), applied to every velocity model of the series
+    grating_contrast: Any = None
 
     @property
     def label(self) -> str:

@@ -168,10 +168,17 @@ def attach_distributions(
     shape: str,
     shifts_name: str,
     tables_name: str | None,
+    other_compounds: frozenset[str] = frozenset(),
+    other_series: frozenset[tuple[str, float]] = frozenset(),
 ) -> dict[str, list[SeriesData]]:
     """Series with their velocity model: a table where one is given, else the named shape of the
-    mean and spread columns (checked here). New problems are added to ``problems``."""
+    mean and spread columns (checked here). New problems are added to ``problems``.
+
+    ``other_compounds`` and ``other_series`` (compound, T) are measured in other data (the
+    visibilities of :mod:`polarbeam.contract.visibility`): their tables are not this data's."""
     for name, msg in table_problems.items():
+        if name not in series and name in other_compounds:
+            continue
         problems.setdefault(name, msg)
         series.pop(name, None)
     used = set()
@@ -220,7 +227,9 @@ def attach_distributions(
             continue
         out[name] = new
     for (name, t), _dist in tables.items():
-        if (name, t) in used or name in problems:
+        if (name, t) in used or name in problems or (name, t) in other_series:
+            continue
+        if name not in series and name in other_compounds:
             continue
         temps = sorted(s.temperature.value for s in series.get(name, ()))
         found = ", ".join(f"{x:g} K" for x in temps) or "none"
@@ -232,10 +241,13 @@ def attach_distributions(
     return out
 
 
-def velocity_models(series, problems, vset: VelocitySettings, layout, base, fname, shifts_name):
+def velocity_models(
+    series, problems, vset: VelocitySettings, layout, base, fname, shifts_name, others=((), ())
+):
     """The series with their velocity models (:func:`attach_distributions`), the tables of
     ``[data] velocities`` read first; the time-domain layout reads no velocities (its tables
-    are checked, not used)."""
+    are checked, not used). ``others``: (compounds, (compound, T) series) measured in other
+    data, whose tables are checked there."""
     tables: dict = {}
     bad: dict[str, str] = {}
     if vset.tables is not None:
@@ -244,15 +256,28 @@ def velocity_models(series, problems, vset: VelocitySettings, layout, base, fnam
     if layout == "time-domain":
         return series
     name = Path(vset.tables).name if vset.tables is not None else None
-    return attach_distributions(series, problems, tables, bad, vset.shape, shifts_name, name)
+    return attach_distributions(
+        series,
+        problems,
+        tables,
+        bad,
+        vset.shape,
+        shifts_name,
+        name,
+        frozenset(others[0]),
+        frozenset(others[1]),
+    )
 
 
 def velocity_extra(s: SeriesData, layout: str) -> dict:
     """Result columns of a series' velocity model (its kind, the spread error) when it is not
-    the default Gaussian (so that Gaussian campaigns keep their columns)."""
+    the default Gaussian (so that Gaussian campaigns keep their columns), and the laser power
+    of the ``[gratings]`` contrast model when the series has one."""
+    model = getattr(s, "grating_contrast", None)
+    extra: dict = {} if model is None else {"contrast_model_power_W": float(model.power)}
     if layout == "time-domain" or (s.distribution is None and s.shape == "gaussian"):
-        return {}
-    out: dict = {"velocity_distribution": s.shape}
+        return extra
+    out: dict = {"velocity_distribution": s.shape, **extra}
     if s.spread_error > 0:
         out["velocity_spread_err_m_s"] = s.spread_error
     return out

@@ -27,6 +27,7 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam._util.tables import CELL_BLANKS, read_table
+from polarbeam.beam.distributions import TabulatedVelocity
 from polarbeam.beam.talbot import (
     ABSORBED_CHOICES,
     LightGrating,
@@ -36,6 +37,7 @@ from polarbeam.beam.talbot import (
 )
 from polarbeam.constants import AMU, ANGSTROM3_SI
 from polarbeam.contract.paths import resolve_data_file
+from polarbeam.contract.velocity import load_velocity_tables
 from polarbeam.errors import CompoundError, InputError, RowValueError
 from polarbeam.quantities import Measured, parse_quantity
 
@@ -52,6 +54,7 @@ __all__ = [
     "load_visibilities",
     "load_visibility_plan",
     "parse_gratings",
+    "visibility_velocity_tables",
 ]
 
 #: Keys of ``[gratings]`` and their SI unit ("" dimensionless, None not a quantity).
@@ -147,6 +150,10 @@ class VisibilitySeries:
     visibilities: np.ndarray
     errors: np.ndarray
     lines: tuple[int, ...]
+    #: the measured velocity table of this compound and temperature ([data] velocities), when
+    #: given: its classes replace the Gaussian of ``velocity``/``spread`` (which then hold its
+    #: mean and rms spread); ``velocity.error`` is the error of its common scale
+    distribution: TabulatedVelocity | None = None
 
     @property
     def label(self) -> str:
@@ -174,6 +181,23 @@ class VisibilityData:
     @property
     def compound_names(self) -> tuple[str, ...]:
         return tuple(c.name for c in self.compounds)
+
+    @property
+    def measured(self) -> tuple[frozenset[str], frozenset[tuple[str, float]]]:
+        """(compounds, (compound, T) series) of the visibility data: their velocity tables are
+        checked here, not with the deflection series."""
+        pairs = {(c.name, s.temperature_K) for c in self.compounds for s in c.series}
+        return frozenset(self.compound_names), frozenset(pairs)
+
+
+def visibility_velocity_tables(doc: dict, base: Path, fname: str):
+    """``[data] velocities`` for the visibility series: (tables, problems, file name) or None."""
+    rel = doc.get("data", {}).get("velocities")
+    if not isinstance(rel, str):  # absent (a bad value is named by the velocity settings)
+        return None
+    path = resolve_data_file(Path(base), rel, f"{fname} [data] velocities")
+    tables, problems = load_velocity_tables(path)
+    return tables, problems, Path(rel).name
 
 
 def parse_gratings(doc: dict, fname: str, layout: str, stated: dict[str, Measured]) -> GratingSpec:
@@ -262,8 +286,9 @@ def parse_gratings(doc: dict, fname: str, layout: str, stated: dict[str, Measure
     )
 
 
-def _row(table, i: int):
+def _row(table, i: int, tabled: bool = False):
     num = table.number
+    blank = math.nan if tabled else None  # with [data] velocities: empty means "from the table"
     where = f"{table.name} line {table.lines[i]}"
     power = num(i, "laser_power_W")
     if power < 0:
@@ -275,9 +300,9 @@ def _row(table, i: int):
         raise RowValueError(f"{where}: column 'visibility' expected 0 .. 1, found {raw!r}")
     return (
         num(i, "temperature_K", positive=True),
-        num(i, "velocity_m_s", positive=True),
+        num(i, "velocity_m_s", positive=True, default=blank),
         num(i, "velocity_err_m_s", nonnegative=True),
-        num(i, "velocity_spread_m_s", nonnegative=True),
+        num(i, "velocity_spread_m_s", nonnegative=True, default=blank),
         power,
         vis,
         num(i, "visibility_err", positive=True),
@@ -291,11 +316,17 @@ def load_visibilities(
     stated: dict[str, Measured],
     compounds_info: dict[str, dict],
     compounds_file: str = "compounds.csv",
+    tables: tuple[dict, dict, str] | None = None,
+    others: frozenset[str] = frozenset(),
 ) -> VisibilityData:
     """Read ``[gratings]`` and ``[data] visibilities`` of a parsed ``campaign.toml``.
 
     Called by :func:`polarbeam.contract.campaign.load_campaign`; ``compounds_info`` is its parsed
-    ``compounds.csv`` (name → mass, extra columns, problem).
+    ``compounds.csv`` (name → mass, extra columns, problem). ``tables`` is ``({(compound, T):
+    TabulatedVelocity}, {compound: problem}, file name)`` of ``[data] velocities``
+    (:func:`polarbeam.contract.velocity.load_velocity_tables`): a series with a table takes its
+    classes, as a deflection series does. ``others``: compounds measured in the deflection data,
+    whose tables are checked there.
     """
     fname = campaign_path.name
     data = doc.get("data", {})
@@ -310,6 +341,7 @@ def load_visibilities(
         raise InputError(f"{fname} [data] visibilities: expected a file path string, found {rel!r}")
     path = resolve_data_file(campaign_path.parent, rel, f"{fname} [data] visibilities")
     table = read_table(path, VISIBILITY_COLUMNS, "visibilities")
+    vtables, vproblems, vname = tables if tables is not None else ({}, {}, None)
     groups: dict[str, dict[tuple[float, float], list]] = {}
     problems: dict[str, str] = {}
     for i, row in enumerate(table.rows):
@@ -318,12 +350,16 @@ def load_visibilities(
             continue
         try:
             table.check_row(i)
-            rec = _row(table, i)
+            rec = _row(table, i, tabled=tables is not None)
         except CompoundError as exc:
             problems[name] = str(exc)
             groups.pop(name, None)
             continue
-        groups.setdefault(name, {}).setdefault((rec[0], rec[1]), []).append((*rec, table.lines[i]))
+        key = (rec[0], rec[1] if math.isfinite(rec[1]) else -1.0)  # -1: empty, from a table
+        groups.setdefault(name, {}).setdefault(key, []).append((*rec, table.lines[i]))
+    for name in groups:
+        if name in vproblems:
+            problems.setdefault(name, vproblems[name])
     compounds = []
     for name in dict.fromkeys([*groups, *problems]):
         entry = compounds_info.get(name)
@@ -338,22 +374,55 @@ def load_visibilities(
         problem = entry.get("problem") or problem
         series = []
         if problem is None:
-            for (temp, vel), recs in groups[name].items():
-                arr = np.array([r[:7] for r in recs], dtype=float)
-                series.append(
-                    VisibilitySeries(
-                        compound=name,
-                        temperature_K=temp,
-                        velocity=Measured(vel, float(np.max(arr[:, 2]))),
-                        spread=float(np.max(arr[:, 3])),
-                        powers=arr[:, 4],
-                        visibilities=arr[:, 5],
-                        errors=arr[:, 6],
-                        lines=tuple(r[7] for r in recs),
-                    )
-                )
+            try:
+                series = _series_of(name, groups[name], vtables, table.name, vname, others)
+            except CompoundError as exc:
+                problem, series = str(exc), []
         compounds.append(VisibilityCompound(name, entry.get("mass"), tuple(series), problem))
     return VisibilityData(path, gratings, tuple(compounds))
+
+
+def _series_of(name, by_key, vtables, fname, vname, others) -> list[VisibilitySeries]:
+    """The series of one compound, each with its velocity table when one is given."""
+    out = []
+    used = set()
+    for (temp, vel), recs in by_key.items():
+        arr = np.array([r[:7] for r in recs], dtype=float)
+        dist = vtables.get((name, temp))
+        err = float(np.max(arr[:, 2]))
+        if dist is not None:
+            used.add(temp)
+            velocity, spread = Measured(dist.mean, err), dist.spread
+        elif vel < 0 or np.any(np.isnan(arr[:, 3])):
+            raise CompoundError(
+                f"{fname}: series {name} @ {temp:g} K expected velocity_m_s and "
+                f"velocity_spread_m_s (or its rows in {vname or '[data] velocities'}), found "
+                "empty cells and no table"
+            )
+        else:
+            velocity, spread = Measured(vel, err), float(np.max(arr[:, 3]))
+        out.append(
+            VisibilitySeries(
+                compound=name,
+                temperature_K=temp,
+                velocity=velocity,
+                spread=spread,
+                powers=arr[:, 4],
+                visibilities=arr[:, 5],
+                errors=arr[:, 6],
+                lines=tuple(r[7] for r in recs),
+                distribution=dist,
+            )
+        )
+    if name not in others:  # a deflection compound's tables are checked with its series
+        for n, t in vtables:
+            if n == name and t not in used:
+                temps = ", ".join(f"{x:g} K" for x in sorted({k[0] for k in by_key}))
+                raise CompoundError(
+                    f"{vname}: series {name} @ {t:g} K has a table but no series in {fname}; "
+                    f"expected a series of {name} at temperature_K {t:g}, found {temps}"
+                )
+    return out
 
 
 @dataclass(frozen=True)

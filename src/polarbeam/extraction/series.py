@@ -51,14 +51,27 @@ def series_distributions(
     shape: str = "gaussian",
     velocity_factor: float = 1.0,
     spread_factor: float = 1.0,
+    contrast=None,
 ) -> list[tuple[np.ndarray, VelocityDistribution]]:
     """(point mask, distribution) groups of one series: the series' own ``distribution`` (a
     table) for every point, else the named ``shape`` for each distinct (mean, spread) pair.
 
     ``velocity_factor`` scales the stated means (a table: every class, a common calibration
     scale), ``spread_factor`` the spreads; the derivatives of the fit with respect to the stated
-    velocity and spread are taken through them.
+    velocity and spread are taken through them. ``contrast`` (a
+    :class:`~polarbeam.beam.talbot.GratingContrast`, from ``[gratings]``) gives every
+    distribution the interferometer model's contrast per velocity class.
     """
+    if contrast is not None:
+        groups = series_distributions(
+            velocities,
+            spreads,
+            distribution=distribution,
+            shape=shape,
+            velocity_factor=velocity_factor,
+            spread_factor=spread_factor,
+        )
+        return [(sel, contrast.apply(d)) for sel, d in groups]
     velocities = np.asarray(velocities, dtype=float)
     spreads = np.asarray(spreads, dtype=float)
     n = velocities.size
@@ -202,6 +215,7 @@ def fit_series(
             shape=series.shape,
             velocity_factor=vf,
             spread_factor=sf,
+            contrast=series.grating_contrast,
         )
 
     nominal_groups = groups() if kind != "time-domain" else []

@@ -46,6 +46,7 @@ __all__ = [
     "rician_deviance",
     "rician_nll",
     "saturated_amplitude",
+    "series_distribution",
 ]
 
 #: |2 ln LR| above which one model is preferred (a likelihood ratio of 100).
@@ -142,8 +143,7 @@ class _Problem:
             sigma = float(absorption_cross_section(x[1] * ANGSTROM3_SI, tl.second.wavelength))
         out = []
         for k, s in enumerate(self.vc.series):
-            v = values.get(f"velocity[{k}]", s.velocity.value)
-            dist = GaussianVelocity(v, s.spread)
+            dist = series_distribution(s, values.get(f"velocity[{k}]", s.velocity.value))
             out.append(
                 tl.visibility(mass, dist, s.powers, re_si, sigma, model=model, nodes=self.nodes)
             )
@@ -176,7 +176,7 @@ class _Problem:
 
     def _grid_terms(self, tl, re, sigma, model, total) -> None:
         for s in self.vc.series:
-            dist = GaussianVelocity(s.velocity.value, s.spread)
+            dist = series_distribution(s, s.velocity.value)
             v, w = tl.velocity_nodes(
                 self.vc.mass.value, dist, s.powers, float(np.max(re)) * ANGSTROM3_SI, self.nodes
             )
@@ -201,6 +201,15 @@ class _Problem:
                 for s, p in zip(self.vc.series, pred, strict=True)
             )
         )
+
+
+def series_distribution(s, velocity: float):
+    """The velocity distribution of a visibility series at mean ``velocity``: its measured table
+    scaled to that mean (the table's calibration is a common scale), else the Gaussian of the
+    stated spread."""
+    if s.distribution is not None:
+        return s.distribution.scaled(velocity / s.velocity.value)
+    return GaussianVelocity(velocity, s.spread)
 
 
 def _start_grid(prob: _Problem, model: str, light: bool):

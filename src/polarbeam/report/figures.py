@@ -262,8 +262,10 @@ def _visibility(s):
 
 @_styled
 def visibility_figure(c: CompoundResult):
-    """Fringe visibility versus voltage: measured (when recorded) and the velocity-averaging
-    contrast factor of the fitted model, both relative to the lowest-|V| point."""
+    """Fringe visibility versus voltage relative to the zero-field references: the measured
+    values exactly as in results.json (``relative_visibility``) and series.csv, and the
+    velocity-averaging contrast factor of the fitted model, |Z(κ + κ₀)|/|Z(κ₀)|, as in
+    ``min_velocity_contrast`` and ``velocity_contrast``. Nothing is rescaled for the figure."""
     rows = []
     for s in c.series:
         vis, err = _visibility(s)
@@ -279,13 +281,11 @@ def visibility_figure(c: CompoundResult):
         col, mk = _CYCLE[i % len(_CYCLE)], _MARKERS[i % len(_MARKERS)]
         order = np.argsort(s.voltages)
         v = s.voltages[order]
-        ref = int(np.argmin(np.abs(v)))
-        if vis is not None and vis[order][ref] > 0:
-            norm = vis[order][ref]
+        if vis is not None:
             ax.errorbar(
                 v,
-                vis[order] / norm,
-                yerr=None if err is None else err[order] / norm,
+                vis[order],
+                yerr=None if err is None else err[order],
                 fmt=mk,
                 ms=4,
                 color=col,
@@ -293,18 +293,10 @@ def visibility_figure(c: CompoundResult):
                 lw=0.8,
                 label=f"{_tname(s)} measured",
             )
-        if mod[order][ref] > 0:
-            ax.plot(
-                v,
-                mod[order] / mod[order][ref],
-                "-",
-                color=col,
-                lw=1.1,
-                label=f"{_tname(s)} model (velocity spread)",
-            )
+        ax.plot(v, mod[order], "-", color=col, lw=1.1, label=f"{_tname(s)} model (velocity spread)")
     ax.set_xlabel("deflector voltage (V)")
-    ax.set_ylabel("relative visibility")
-    ax.set_title(f"{plain_text(c.compound)}: visibility relative to the lowest-field point")
+    ax.set_ylabel("visibility / zero-field visibility")
+    ax.set_title(f"{plain_text(c.compound)}: visibility relative to the zero-field references")
     ax.legend(frameon=False, loc="lower center")
     return fig
 

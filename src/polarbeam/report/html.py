@@ -65,8 +65,9 @@ DEFAULT_DETAILS = 20
 _CAPTIONS = {
     "series": "Measured points (1σ) with the fitted model drawn as a smooth curve over the "
     "voltage range; below, the residuals in units of their error.",
-    "visibility": "Fringe visibility relative to the lowest-field point: the velocity-averaging "
-    "contrast factor of the fitted model (line) and the measured visibility where recorded.",
+    "visibility": "Fringe visibility relative to the zero-field references, as in series.csv and "
+    "results.json: the velocity-averaging contrast factor of the fitted model (line) and the "
+    "measured visibility where recorded.",
     "velocity": "Velocity distribution of each series as analysed (density; a measured table's "
     "classes as steps) and, dotted on the right axis, the relative fringe contrast of its classes "
     "where the table states one.",

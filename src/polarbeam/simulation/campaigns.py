@@ -20,6 +20,7 @@ import numpy as np
 from polarbeam._util.atomic import make_folder, write_text_atomic
 from polarbeam.beam.distributions import distribution_from_moments
 from polarbeam.beam.response import LangevinDebye, ParticleResponse
+from polarbeam.beam.talbot import GratingContrast, TalbotLauInterferometer
 from polarbeam.constants import AMU, alpha_si_from_a3, si_from_debye
 from polarbeam.contract.campaign import build_layout
 from polarbeam.errors import InputError
@@ -41,6 +42,7 @@ LANGEVIN_DEBYE = LangevinDebye()
 __all__ = [
     "LAYOUT_PRESETS",
     "CompoundTruth",
+    "DeflectionGratings",
     "InstrumentSpec",
     "SimulationTruth",
     "random_beam_conditions",
@@ -210,6 +212,43 @@ def _setup(spec: InstrumentSpec, values: dict[str, float]):
     return layout, d
 
 
+@dataclass(frozen=True)
+class DeflectionGratings:
+    """``[gratings]`` of a simulated Talbot–Lau deflection campaign: the interferometer (its
+    stated values are written), the light grating's power in every series (shifts.csv
+    ``laser_power_W``) and its model. The compounds' optical α and σ_abs are their
+    ``alpha_opt_A3``/``sigma_abs_m2`` columns (:class:`CompoundTruth` ``columns``)."""
+
+    interferometer: TalbotLauInterferometer
+    power_W: float = 0.0
+
+    def contrast(self, comp: CompoundTruth, mass: float) -> GratingContrast:
+        """The true model of one compound (quantum)."""
+        cols = dict(comp.columns)
+        alpha = alpha_si_from_a3(float(cols.get("alpha_opt_A3", 0.0) or 0.0))
+        sigma = float(cols.get("sigma_abs_m2", 0.0) or 0.0)
+        power = self.power_W if self.interferometer.light else 0.0
+        return GratingContrast(self.interferometer, mass, power, alpha, sigma)
+
+    def toml(self) -> str:
+        tl = self.interferometer
+        kinds = ["material", "light" if tl.light else "material", "material"]
+        lines = [
+            "\n[gratings]",
+            *(f'{k} = "{v}"' for k, v in zip(("first", "second", "third"), kinds, strict=True)),
+            f'open_fraction = "{tl.first.open_fraction:.10g}"',
+        ]
+        if tl.light:
+            g = tl.second
+            lines += [
+                f'laser_wavelength = "{g.wavelength * 1e9:.10g} nm"',
+                f'laser_waist_vertical = "{g.waist * 1e6:.10g} um"',
+                f'power_scale = "{g.power_scale:.10g}"',
+                f'absorbed_molecules = "{g.absorbed}"',
+            ]
+        return "\n".join(lines) + "\n"
+
+
 def simulate_campaign(
     out_dir: str | Path,
     compounds: list[CompoundTruth],
@@ -234,6 +273,7 @@ def simulate_campaign(
     contrast_slope: float | None = None,
     acceleration: tuple[float, float] | None = None,
     thermal_velocity: bool = False,
+    gratings: DeflectionGratings | None = None,
 ) -> SimulationTruth:
     """Write ``campaign.toml``, ``shifts.csv`` and ``compounds.csv`` into ``out_dir``.
 
@@ -267,6 +307,10 @@ def simulate_campaign(
     thermal_velocity
         Scale the mean velocity of each series as sqrt(T/T_first) (an oven): ``velocity_m_s``
         is then the mean at the compound's first temperature.
+    gratings
+        Talbot–Lau only: every velocity class carries the interferometer model's fringe
+        contrast (``[gratings]`` and shifts.csv ``laser_power_W`` are written; the grating
+        geometry is taken as stated, so the spacing must equal the layout's).
     """
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     spec = spec or InstrumentSpec.talbot_lau()
@@ -322,6 +366,12 @@ def simulate_campaign(
                 s_true = spread + spread_err * rng.standard_normal()
                 d = distribution_from_moments(shape, v_true, max(s_true, 0.0))
                 groups = [(np.ones(n_voltages, dtype=bool), d)]
+            if gratings is not None:  # the model's contrast per velocity class (the truth)
+                if groups is None:
+                    d = distribution_from_moments(shape, v_true, spread)
+                    groups = [(np.ones(n_voltages, dtype=bool), d)]
+                model_c = gratings.contrast(comp, m_true)
+                groups = [(sel, model_c.apply(d)) for sel, d in groups]
             per_volt = [a_eff]
             if comp.response is not None and fpv_true:  # α_eff follows the field: per voltage
                 per_volt = [resp.alpha_eff(a_si, mu_si, t_true, fpv_true * abs(V)) for V in ladder]
@@ -376,6 +426,9 @@ def simulate_campaign(
         + ((f",{r[9]:g},{rotational_err_K:g}" if len(r) > 9 else ",,") if with_rot else "")
         for r in rows
     ]
+    if gratings is not None:
+        power = gratings.power_W if gratings.interferometer.light else 0.0
+        lines = [lines[0] + ",laser_power_W"] + [ln + f",{power:.10g}" for ln in lines[1:]]
     write_text_atomic(out / "shifts.csv", "\n".join(lines) + "\n")
     if spec.waveform is not None:
         wl = ["t_s,amplitude"] + [f"{t:.10g},{a:.10g}" for t, a in zip(*spec.waveform, strict=True)]
@@ -398,6 +451,8 @@ def simulate_campaign(
     if acceleration is not None:
         q = f'background_acceleration = "{acceleration[0]:.10g} ± {acceleration[1]:.4g} m/s^2"'
         toml = toml.replace("\n\n[deflector]", f"\n{q}\n\n[deflector]", 1)
+    if gratings is not None:
+        toml += gratings.toml()
     write_text_atomic(out / "campaign.toml", toml)
     return SimulationTruth(true, {c.name: c for c in compounds}, truth_eff, out)
 

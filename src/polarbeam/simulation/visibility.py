@@ -24,6 +24,7 @@ from polarbeam.beam.talbot import (
     absorption_cross_section,
 )
 from polarbeam.constants import AMU, ANGSTROM3_SI
+from polarbeam.simulation.velocity import stated_table, velocity_csv, velocity_table
 
 __all__ = [
     "VisibilityCompoundTruth",
@@ -105,9 +106,15 @@ def simulate_visibility_campaign(
     seed: int | np.random.Generator = 0,
     title: str = "simulated visibility campaign",
     nodes: int = 48,
+    table_shape: str | None = None,
 ) -> tuple[Path, dict]:
     """Write ``campaign.toml``, ``compounds.csv`` and ``visibilities.csv``; return the
-    campaign path and the truth (true power scale, waist, open fraction, per compound α, σ)."""
+    campaign path and the truth (true power scale, waist, open fraction, per compound α, σ).
+
+    With ``table_shape`` (:func:`polarbeam.simulation.velocity.velocity_table`) each series'
+    beam is a measured table of that shape, the series' mean and relative spread: the true
+    table is drawn, the stated one (``velocities.csv``) is the truth times one calibration
+    draw of the series' velocity error, and the velocity and spread cells are left empty."""
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     out = make_folder(out_dir)
     scale = 1.0 + setup.power_scale_err * rng.standard_normal()
@@ -120,14 +127,22 @@ def simulate_visibility_campaign(
     ]
     truth: dict = {"power_scale": scale, "waist": waist, "open_fraction": frac, "compounds": {}}
     powers = np.asarray(setup.powers, dtype=float)
+    tables: list = []
     for c in compounds:
         sigma = c.sigma_abs(setup.wavelength)
         truth["compounds"][c.name] = {"alpha_opt_A3": c.alpha_re_A3, "sigma_abs_m2": sigma}
         for temp, v, spread, verr in c.series:
-            v_true = v + verr * rng.standard_normal()
+            cells = f"{v:.6g},{verr:.4g},{spread:.4g}"
+            if table_shape is not None:
+                true_dist = velocity_table(table_shape, v, spread / v)
+                stated, err = stated_table(true_dist, verr / v, rng)
+                tables.append((c.name, temp, stated))
+                cells = f",{err:.6g},"
+            else:
+                true_dist = GaussianVelocity(v + verr * rng.standard_normal(), spread)
             nu = tl.visibility(
                 c.mass_u * AMU,
-                GaussianVelocity(v_true, spread),
+                true_dist,
                 powers,
                 c.alpha_re_A3 * ANGSTROM3_SI,
                 sigma,
@@ -138,8 +153,7 @@ def simulate_visibility_campaign(
             )
             for p, vis in zip(powers, np.abs(amp), strict=True):
                 rows.append(
-                    f"{c.name},{temp:g},{v:.6g},{verr:.4g},{spread:.4g},{p:.6g},"
-                    f"{min(vis, 1.0):.6f},{setup.noise:.4g}"
+                    f"{c.name},{temp:g},{cells},{p:.6g},{min(vis, 1.0):.6f},{setup.noise:.4g}"
                 )
     (out / "visibilities.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
     clines = ["compound,mass_u"] + [f"{c.name},{c.mass_u:.6g}" for c in compounds]
@@ -169,8 +183,11 @@ def simulate_visibility_campaign(
         "[data]",
         'compounds = "compounds.csv"',
         'visibilities = "visibilities.csv"',
+        *(['velocities = "velocities.csv"'] if tables else []),
         "",
     ]
+    if tables:
+        (out / "velocities.csv").write_text(velocity_csv(tables), encoding="utf-8")
     path = out / "campaign.toml"
     path.write_text("\n".join(toml), encoding="utf-8")
     return path, truth

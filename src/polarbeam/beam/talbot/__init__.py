@@ -2,7 +2,8 @@
 fringe visibility of a symmetric three-grating interferometer (docs/visibility.md).
 
 Plain functions of floats and arrays (:mod:`.coefficients`, :mod:`.light`), the interferometer
-model on top (:mod:`.interferometer`) and independent wave and ray models that check it
+model on top (:mod:`.interferometer`), its contrast per velocity class for the deflection
+phasor (:mod:`.contrast`) and independent wave and ray models that check it
 (:mod:`.waves`).
 """
 
@@ -17,6 +18,7 @@ from polarbeam.beam.talbot.coefficients import (
     material_kernel,
     slit_coefficient,
 )
+from polarbeam.beam.talbot.contrast import GratingContrast, ModelContrastVelocity
 from polarbeam.beam.talbot.interferometer import (
     LightGrating,
     MaterialGrating,
@@ -34,8 +36,10 @@ from polarbeam.beam.talbot.waves import ray_harmonics, wave_harmonics
 __all__ = [
     "ABSORBED_CHOICES",
     "MODELS",
+    "GratingContrast",
     "LightGrating",
     "MaterialGrating",
+    "ModelContrastVelocity",
     "TalbotLauInterferometer",
     "absorption_cross_section",
     "coefficient_by_quadrature",

@@ -170,11 +170,11 @@ class TalbotLauInterferometer:
         the trapezoid rule on a uniform grid over ±6σ_v with max(2 Δb/2π + 4, nodes/12) points per
         σ_v (exponentially accurate for a smooth integrand that decays like the Gaussian: against
         a 20001-point reference the error is < 1e-6, tests/beam/test_talbot.py); any other
-        distribution gives its own nodes (``dist.nodes(nodes)``).
+        distribution (a measured table, a flux shape) gives its own nodes (``dist.nodes(nodes)``).
         """
-        mean, spread = getattr(dist, "mean", None), getattr(dist, "spread", None)
-        if mean is None or spread is None or spread <= 0:
-            return dist.nodes(nodes)
+        if not isinstance(dist, GaussianVelocity) or dist.spread <= 0:
+            return dist.nodes(nodes)  # a table, a flux shape: its own classes or rule
+        mean, spread = dist.mean, dist.spread
         v_lo = max(mean - 3.0 * spread, 0.05 * mean)
         xi = float(talbot_parameter(self.spacing, self.period, mass, v_lo))
         phi0 = 0.0
