@@ -100,6 +100,25 @@ def _clean(folder: Path) -> None:
         assert abs(float(r["dipole_D"]) - mu) < 4 * float(r["dipole_err_D"]), r
         t, dt = float(r["rotational_temperature_K"]), float(r["rotational_temperature_err_K"])
         assert abs(t - trot) < 4 * dt, r
+        lo, hi = float(r["dipole_lo_D"]), float(r["dipole_hi_D"])  # unified 68.3 % interval
+        assert lo < float(r["dipole_D"]) < hi and r["dipole_upper_D"] == "", r
+    # series.csv: the centroid and width of every profile (one row per voltage), measured and model
+    with (folder / "out" / "series.csv").open(newline="", encoding="utf-8") as h:
+        rows = list(csv.DictReader(h))
+    for name in TRUTH:
+        mine = [r for r in rows if r["compound"] == name]
+        assert [float(r["voltage_V"]) for r in mine] == [0.0, 5e3, 10e3, 15e3, 20e3]
+        cents = [float(r["centroid_m"]) for r in mine]
+        assert cents == sorted(cents), cents  # the beam moves out as V² grows
+        for r in mine:
+            pull = (float(r["centroid_m"]) - float(r["model_centroid_m"])) / float(
+                r["centroid_err_m"]
+            )
+            assert abs(pull) < 4, r
+            assert float(r["width_m"]) > 0 and float(r["width_err_m"]) > 0
+            assert float(r["ld_ratio"]) < 1.0  # a cold linear rotor follows LD only partly
+    figs = {p.name.split("-")[-1] for p in (folder / "out" / "figures").glob("LP-*")}
+    assert "profiles.svg" in figs and "profiles.png" in figs
 
 
 def _fails(names, text):
