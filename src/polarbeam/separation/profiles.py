@@ -26,10 +26,16 @@ from polarbeam.errors import CompoundError
 from polarbeam.extraction.profiles import fit_profiles, profile_moments
 from polarbeam.results.objects import CompoundResult
 from polarbeam.results.profiles import ProfileRecord
-from polarbeam.separation.dipole import dipole_statement
+from polarbeam.separation.dipole import LIMIT_CL, DipoleStatement, dipole_statement
 from polarbeam.uncertain import FIT_TAG
 
-__all__ = ["profile_result"]
+__all__ = ["profile_dipole_statement", "profile_records", "profile_result"]
+
+
+def profile_dipole_statement(dipole, limit_cl: float = LIMIT_CL) -> DipoleStatement:
+    """The unified-interval statement of a fitted μ (C·m, uncertain): ⟨μ²⟩ = μ̂² ± 2μ̂σ_μ
+    through :func:`polarbeam.separation.dipole.dipole_statement` (interval, value or limit)."""
+    return dipole_statement(dipole**2, limit_cl=limit_cl)
 
 
 def profile_result(cd, c, ctx, mass_u: float) -> CompoundResult:
@@ -68,7 +74,7 @@ def profile_result(cd, c, ctx, mass_u: float) -> CompoundResult:
         f"profile fit with the rigid {resp.name} rotor: deviance {fit.deviance:.1f} for "
         f"{fit.ndof} dof; {temps}"
     )
-    statement = dipole_statement(dipole**2, limit_cl=c.settings.upper_limit_cl)
+    statement = profile_dipole_statement(dipole, c.settings.upper_limit_cl)
     if statement.limit is not None:
         message += (
             f"; no significant dipole: μ < {debye_from_si(statement.limit):.2f} D "
