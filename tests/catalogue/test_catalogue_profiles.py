@@ -29,7 +29,7 @@ HEAD = (
 TRUTH = {"LP-1": (60.0, 8.0, 1.5, 5000e6, 8.0), "LP-2": (80.0, 10.0, 1.2, 4000e6, 12.0)}
 
 
-def _write(folder: Path, *, drop_zero=(), field=True, rotors=True) -> Path:
+def _write(folder: Path, *, drop_zero=(), field=True, rotors=True, compounds=None) -> Path:
     folder.mkdir(parents=True, exist_ok=True)
     toml = (
         '[campaign]\ntitle = "profile campaign"\n\n[instrument]\nlayout = "beam-profile"\n'
@@ -49,6 +49,8 @@ def _write(folder: Path, *, drop_zero=(), field=True, rotors=True) -> Path:
         ),
         encoding="utf-8",
     )
+    if compounds is not None:  # rotor = auto cases: the compounds table as given
+        (folder / "compounds.csv").write_text(compounds, encoding="utf-8")
     (folder / "profiles.csv").write_text(HEAD + "\nLP-1,300,600,0,30,0,0,1,\n", encoding="utf-8")
     ctx = build_context(load_campaign(folder / "campaign.toml"))  # the nominal coupling
     rng = np.random.default_rng(4)
@@ -134,6 +136,34 @@ def _fails(names, text):
     return check
 
 
+AUTO = (
+    "compound,mass_u,alpha_known_A3,rotor,rot_B_MHz,smiles\n"
+    "LP-1,60,8,auto,,O=C=S\n"  # OCS: a rigid linear rotor, B ≈ 5018 MHz from MMFF94 (truth 5000)
+    "LP-2,80,10,auto,,\n"  # no structure
+)
+AUTO_BAD = (
+    "compound,mass_u,alpha_known_A3,rotor,rot_B_MHz,smiles\n"
+    "LP-1,60,8,auto,5000,O=C=S\n"  # auto with a stated constant
+    "LP-2,80,10,auto,,CCCCO\n"  # floppy: ergodic, no profile model
+)
+
+
+def _auto_ok(folder: Path) -> None:
+    props = _props(folder)
+    r = props["LP-1"]
+    assert r["status"] == "ok" and r["response"] == "linear", r
+    assert r["response_reason"].startswith("rotor auto → linear: rigid linear rotor"), r
+    assert "(derived from the structure)" in r["response_reason"] and "rotor auto" in r["message"]
+    assert abs(float(r["dipole_D"]) - 1.5) < 4 * float(r["dipole_err_D"]), r
+    assert props["LP-2"]["status"] == "failed"
+    assert props["LP-2"]["message"] == (
+        "compounds.csv line 3: rotor 'auto' expected a structure (a smiles cell or a [data] "
+        "structures record), found none"
+    )
+    report = (folder / "out" / "report.md").read_text(encoding="utf-8")
+    assert "derived from the structure" in report
+
+
 CASES = [
     Case("clean profile campaign", _build(), 0, None, _clean),
     Case(
@@ -166,6 +196,31 @@ CASES = [
         _fails(("LP-1", "LP-2"), "profile data need a rigid rotor; expected the rotor columns"),
     ),
 ]
+
+
+CASES += [
+    Case("rotor auto from a structure", _build(compounds=AUTO), 1, None, _auto_ok),
+    Case(
+        "rotor auto with rotor columns given",
+        _build(compounds=AUTO_BAD),
+        2,
+        None,
+        lambda folder: _auto_bad(folder),
+    ),
+]
+
+
+def _auto_bad(folder: Path) -> None:
+    props = _props(folder)
+    assert props["LP-1"]["status"] == "failed" and props["LP-1"]["message"] == (
+        "compounds.csv line 2: rotor 'auto' derives the rotor columns from the structure; "
+        "expected rot_B_MHz empty, found values"
+    )
+    assert props["LP-2"]["status"] == "failed"
+    assert props["LP-2"]["message"].startswith(
+        "compound 'LP-2': profile data need a rigid rotor; expected rotor 'auto' to find one, "
+        "found ergodic: floppy: 2 rotatable bond(s)"
+    ), props["LP-2"]["message"]
 
 
 @pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)

@@ -41,6 +41,12 @@ def profile_dipole_statement(dipole, limit_cl: float = LIMIT_CL) -> DipoleStatem
 def profile_result(cd, c, ctx, mass_u: float) -> CompoundResult:
     """CompoundResult of a profile compound (raises CompoundError for bad data)."""
     resp = cd.response
+    reason = getattr(cd, "response_reason", None)  # rotor = auto: the derived choice
+    if reason and (resp is None or resp.name == "ergodic"):
+        raise CompoundError(
+            f"compound {cd.name!r}: profile data need a rigid rotor; expected rotor 'auto' to "
+            f"find one, found {reason.removeprefix('rotor auto → ')}"
+        )
     if resp is None or resp.name == "ergodic":
         raise CompoundError(
             f"compound {cd.name!r}: profile data need a rigid rotor; expected the rotor columns "
@@ -84,6 +90,9 @@ def profile_result(cd, c, ctx, mass_u: float) -> CompoundResult:
         records = profile_records(cd, fit, resp, ctx.field_per_volt)
     first_free = next((i for i, e in enumerate(fit.rotational_err_k) if e > 0), None)
     extra = {"response": resp.name, "mu_E_over_kT": None}
+    if reason:
+        extra["response_reason"] = reason
+        message = f"{reason}; {message}"
     if first_free is not None:
         extra["rotational_temperature_K"] = fit.rotational_k[first_free]
         extra["rotational_temperature_err_K"] = fit.rotational_err_k[first_free]
