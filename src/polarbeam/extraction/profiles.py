@@ -40,6 +40,8 @@ __all__ = [
 ]
 
 _UM = 1e-6
+#: starting dipoles (D) tried before the fit; the one with the lowest deviance is kept
+START_DIPOLES_D = (0.3, 0.7, 1.5, 3.0, 6.0)
 
 
 @dataclass(frozen=True)
@@ -237,6 +239,17 @@ def fit_profiles(
     # one BLAS thread: the Stark blocks are many small eigenproblems, which a threaded BLAS
     # slows down many times over on a loaded machine (measured: 0.65 s → 0.019 s per call)
     with threadpool_limits(limits=1, user_api="blas"):
+        # start from the best of a few dipoles (the guess among them): from a poor start the
+        # fit can slide to μ → 0 with a high T_rot, where μ no longer moves the profiles
+        starts = [theta0[0]] + [
+            math.log(d) for d in START_DIPOLES_D if abs(math.log(d) - theta0[0]) > 0.1
+        ]
+        scores = []
+        for t0 in starts:
+            trial = theta0.copy()
+            trial[0] = min(max(t0, lo[0] + 1e-9), hi[0] - 1e-9)
+            scores.append((float(np.sum(resid(trial) ** 2)), trial[0]))
+        theta0[0] = min(scores)[1]
         res = least_squares(resid, theta0, bounds=(lo, hi), x_scale="jac", diff_step=1e-5)
         final = model(res.x)
     if not res.success:
