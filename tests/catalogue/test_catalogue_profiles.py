@@ -29,7 +29,7 @@ HEAD = (
 TRUTH = {"LP-1": (60.0, 8.0, 1.5, 5000e6, 8.0), "LP-2": (80.0, 10.0, 1.2, 4000e6, 12.0)}
 
 
-def _write(folder: Path, *, drop_zero=(), field=True, rotors=True) -> Path:
+def _write(folder: Path, *, drop_zero=(), field=True, rotors=True, compounds=None) -> Path:
     folder.mkdir(parents=True, exist_ok=True)
     toml = (
         '[campaign]\ntitle = "profile campaign"\n\n[instrument]\nlayout = "beam-profile"\n'
@@ -49,6 +49,8 @@ def _write(folder: Path, *, drop_zero=(), field=True, rotors=True) -> Path:
         ),
         encoding="utf-8",
     )
+    if compounds is not None:  # rotor = auto cases: the compounds table as given
+        (folder / "compounds.csv").write_text(compounds, encoding="utf-8")
     (folder / "profiles.csv").write_text(HEAD + "\nLP-1,300,600,0,30,0,0,1,\n", encoding="utf-8")
     ctx = build_context(load_campaign(folder / "campaign.toml"))  # the nominal coupling
     rng = np.random.default_rng(4)
@@ -100,6 +102,25 @@ def _clean(folder: Path) -> None:
         assert abs(float(r["dipole_D"]) - mu) < 4 * float(r["dipole_err_D"]), r
         t, dt = float(r["rotational_temperature_K"]), float(r["rotational_temperature_err_K"])
         assert abs(t - trot) < 4 * dt, r
+        lo, hi = float(r["dipole_lo_D"]), float(r["dipole_hi_D"])  # unified 68.3 % interval
+        assert lo < float(r["dipole_D"]) < hi and r["dipole_upper_D"] == "", r
+    # series.csv: the centroid and width of every profile (one row per voltage), measured and model
+    with (folder / "out" / "series.csv").open(newline="", encoding="utf-8") as h:
+        rows = list(csv.DictReader(h))
+    for name in TRUTH:
+        mine = [r for r in rows if r["compound"] == name]
+        assert [float(r["voltage_V"]) for r in mine] == [0.0, 5e3, 10e3, 15e3, 20e3]
+        cents = [float(r["centroid_m"]) for r in mine]
+        assert cents == sorted(cents), cents  # the beam moves out as V² grows
+        for r in mine:
+            pull = (float(r["centroid_m"]) - float(r["model_centroid_m"])) / float(
+                r["centroid_err_m"]
+            )
+            assert abs(pull) < 4, r
+            assert float(r["width_m"]) > 0 and float(r["width_err_m"]) > 0
+            assert float(r["ld_ratio"]) < 1.0  # a cold linear rotor follows LD only partly
+    figs = {p.name.split("-")[-1] for p in (folder / "out" / "figures").glob("LP-*")}
+    assert "profiles.svg" in figs and "profiles.png" in figs
 
 
 def _fails(names, text):
@@ -113,6 +134,34 @@ def _fails(names, text):
                 assert props[name]["status"] == "ok", props[name]
 
     return check
+
+
+AUTO = (
+    "compound,mass_u,alpha_known_A3,rotor,rot_B_MHz,smiles\n"
+    "LP-1,60,8,auto,,O=C=S\n"  # OCS: a rigid linear rotor, B ≈ 5018 MHz from MMFF94 (truth 5000)
+    "LP-2,80,10,auto,,\n"  # no structure
+)
+AUTO_BAD = (
+    "compound,mass_u,alpha_known_A3,rotor,rot_B_MHz,smiles\n"
+    "LP-1,60,8,auto,5000,O=C=S\n"  # auto with a stated constant
+    "LP-2,80,10,auto,,CCCCO\n"  # floppy: ergodic, no profile model
+)
+
+
+def _auto_ok(folder: Path) -> None:
+    props = _props(folder)
+    r = props["LP-1"]
+    assert r["status"] == "ok" and r["response"] == "linear", r
+    assert r["response_reason"].startswith("rotor auto → linear: rigid linear rotor"), r
+    assert "(derived from the structure)" in r["response_reason"] and "rotor auto" in r["message"]
+    assert abs(float(r["dipole_D"]) - 1.5) < 4 * float(r["dipole_err_D"]), r
+    assert props["LP-2"]["status"] == "failed"
+    assert props["LP-2"]["message"] == (
+        "compounds.csv line 3: rotor 'auto' expected a structure (a smiles cell or a [data] "
+        "structures record), found none"
+    )
+    report = (folder / "out" / "report.md").read_text(encoding="utf-8")
+    assert "derived from the structure" in report
 
 
 CASES = [
@@ -147,6 +196,31 @@ CASES = [
         _fails(("LP-1", "LP-2"), "profile data need a rigid rotor; expected the rotor columns"),
     ),
 ]
+
+
+CASES += [
+    Case("rotor auto from a structure", _build(compounds=AUTO), 1, None, _auto_ok),
+    Case(
+        "rotor auto with rotor columns given",
+        _build(compounds=AUTO_BAD),
+        2,
+        None,
+        lambda folder: _auto_bad(folder),
+    ),
+]
+
+
+def _auto_bad(folder: Path) -> None:
+    props = _props(folder)
+    assert props["LP-1"]["status"] == "failed" and props["LP-1"]["message"] == (
+        "compounds.csv line 2: rotor 'auto' derives the rotor columns from the structure; "
+        "expected rot_B_MHz empty, found values"
+    )
+    assert props["LP-2"]["status"] == "failed"
+    assert props["LP-2"]["message"].startswith(
+        "compound 'LP-2': profile data need a rigid rotor; expected rotor 'auto' to find one, "
+        "found ergodic: floppy: 2 rotatable bond(s)"
+    ), props["LP-2"]["message"]
 
 
 @pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)

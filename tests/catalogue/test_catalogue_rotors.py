@@ -225,6 +225,82 @@ CASES = [
 ]
 
 
+# ``rotor = auto``: the response from the structure (chemistry/rotors.py), stated as derived
+def _with_auto(smiles: str, extra: dict[str, str] | None = None):
+    """The clean campaign with cmp-1 ``rotor = auto`` and the SMILES ``smiles`` (may be '')."""
+
+    def build(folder: Path) -> list[str]:
+        camp = small_campaign(folder)
+        p = camp.parent / "compounds.csv"
+        with p.open(newline="", encoding="utf-8") as h:
+            rows = list(csv.reader(h))
+        cells = {"rotor": "auto", **(extra or {})}
+        at = rows[0].index("smiles")  # the clean campaign has a smiles column: cmp-1's replaced
+        with p.open("w", newline="", encoding="utf-8") as h:
+            w = csv.writer(h, lineterminator="\n")
+            w.writerow([*rows[0], *COLUMNS])
+            for r in rows[1:]:
+                if r[0] == "cmp-1":
+                    r = [*r[:at], smiles, *r[at + 1 :]]
+                w.writerow([*r, *((cells.get(c, "") if r[0] == "cmp-1" else "") for c in COLUMNS)])
+        return ["analyze", str(camp), "--out", str(folder / "out"), "--quiet"]
+
+    return build
+
+
+def _auto_ok(kind: str, words: str):
+    def check(folder: Path) -> None:
+        props = _props(folder)
+        r = props["cmp-1"]
+        assert r["status"] != "failed" and r["response"] == kind, r
+        assert r["response_reason"].startswith(f"rotor auto → {kind}: {words}"), r
+        assert r["response_reason"].endswith("(derived from the structure)")
+        assert r["response_reason"] in r["message"]
+        assert props["cmp-2"]["response"] == "ergodic" and props["cmp-2"]["response_reason"] == ""
+        report = (folder / "out" / "report.md").read_text(encoding="utf-8")
+        assert "derived from the structure" in report
+
+    return check
+
+
+CASES += [
+    Case(
+        "rotor auto: rigid asymmetric top from a structure",
+        _with_auto("c1ccncc1"),
+        0,
+        None,
+        _auto_ok("asymmetric", "rigid asymmetric top, A, B, C = "),
+    ),
+    Case(
+        "rotor auto: floppy molecule read with Langevin–Debye",
+        _with_auto("CCCCO"),
+        0,
+        None,
+        _auto_ok("ergodic", "floppy: 2 rotatable bond(s)"),
+    ),
+    Case(
+        "rotor auto without a structure",
+        _with_auto(""),
+        1,
+        None,
+        _fails_first(
+            f"{L}: rotor 'auto' expected a structure (a smiles cell or a [data] structures "
+            "record), found none"
+        ),
+    ),
+    Case(
+        "rotor auto with a dipole axis given",
+        _with_auto("c1ccncc1", {"dipole_axis": "a"}),
+        1,
+        None,
+        _fails_first(
+            f"{L}: rotor 'auto' derives the rotor columns from the structure; expected "
+            "dipole_axis empty, found values"
+        ),
+    ),
+]
+
+
 @pytest.mark.parametrize("case", CASES, ids=lambda c: c.id)
 def test_catalogue_rotors(case, tmp_path):
     run_case(case, tmp_path)

@@ -17,7 +17,7 @@ from polarbeam.beam.rotors import LinearRotor, SymmetricTop
 from polarbeam.beam.rotors.profiles import expected_counts, reweighted_populations
 from polarbeam.constants import alpha_si_from_a3, debye_from_si, si_from_debye
 from polarbeam.errors import CompoundError
-from polarbeam.extraction.profiles import Profile, ProfileSeries, fit_profiles
+from polarbeam.extraction.profiles import Profile, ProfileSeries, fit_profiles, profile_moments
 
 FPV = 500.0  # E/V at the beam (1/m)
 COM = 7.2e29  # coupling / mass
@@ -98,3 +98,18 @@ def test_profiles_need_a_zero_voltage_profile_and_a_field():
         fit_profiles([no_zero], rotor, COM, FPV, name="cb")
     with pytest.raises(CompoundError, match="profile data need the field magnitude"):
         fit_profiles([s], rotor, COM, None, name="cb")
+
+
+def test_profile_moments_of_a_binned_gaussian_and_their_errors():
+    # binned Gaussian: centroid = centre, rms width² = σ² + h²/12 (Sheppard's correction;
+    # textbook, e.g. Kendall & Stuart vol. 1); the errors against Monte Carlo Poisson draws
+    x = np.linspace(-1.5e-3, 1.5e-3, 200)
+    h = x[1] - x[0]
+    lam = expected_counts(x, h, 20e-6, 110e-6, 2.0, 3e4)
+    c, _, w, _ = profile_moments(x, lam, 2.0)
+    assert c == pytest.approx(20e-6, abs=1e-9)
+    assert w == pytest.approx(np.sqrt(110e-6**2 + h**2 / 12), rel=1e-3)
+    rng = np.random.default_rng(5)
+    draws = np.array([profile_moments(x, rng.poisson(lam), 2.0) for _ in range(400)])
+    for k in (0, 2):  # the spread of the estimates against the mean stated error (±15 %)
+        assert draws[:, k].std() == pytest.approx(draws[:, k + 1].mean(), rel=0.15)

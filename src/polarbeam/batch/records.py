@@ -19,6 +19,7 @@ from uncertainties import UFloat
 from uncertainties.core import AffineScalarFunc, LinearCombination, Variable
 
 from polarbeam.results.objects import CompoundResult, SeriesResult
+from polarbeam.results.profiles import ProfileRecord
 from polarbeam.results.velocity import VelocityRecord
 
 __all__ = ["RECORD_FORMAT", "decode_compound", "encode_compound"]
@@ -31,6 +32,7 @@ _CLASSES = {
     "CompoundResult": CompoundResult,
     "SeriesResult": SeriesResult,
     "VelocityRecord": VelocityRecord,  # a series' time-of-flight fit (results.velocity)
+    "ProfileRecord": ProfileRecord,  # one whole beam profile (results.profiles)
 }
 
 

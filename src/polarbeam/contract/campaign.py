@@ -56,7 +56,7 @@ from polarbeam.contract.paths import resolve_data_file
 from polarbeam.contract.plausibility import input_warnings
 from polarbeam.contract.profiles import load_profiles
 from polarbeam.contract.recoil import load_recoil
-from polarbeam.contract.rotors import compound_response
+from polarbeam.contract.rotors import auto_response
 from polarbeam.contract.scans import reduce_scans_file, series_from_reduction
 from polarbeam.contract.schema import (
     OBSERVABLE_COLUMNS,
@@ -466,15 +466,22 @@ def _optional_measured(
     return Measured(convert(val), abs(convert(err)))
 
 
-def _structure_mass_u(name: str, row: dict, structures: dict, kind: str) -> float | None:
-    """Mass (u) of a compound from its SDF record or SMILES, or None without a structure."""
+def _structure_mol(name: str, row: dict, structures: dict):
+    """The RDKit molecule of a compound's SDF record or SMILES, or None without a structure."""
     rec = structures.get(name)
     smiles = (row.get("smiles") or "").strip()
     if rec is None and not smiles:
         return None
     if isinstance(rec, str):
         raise CompoundError(f"structures file: record {name!r} could not be read ({rec})")
-    mol = rec if rec is not None else st.parse_smiles(smiles, name)
+    return rec if rec is not None else st.parse_smiles(smiles, name)
+
+
+def _structure_mass_u(name: str, row: dict, structures: dict, kind: str) -> float | None:
+    """Mass (u) of a compound from its SDF record or SMILES, or None without a structure."""
+    mol = _structure_mol(name, row, structures)
+    if mol is None:
+        return None
     return st.mass_monoisotopic_u(mol) if kind == "monoisotopic" else st.mass_average_u(mol)
 
 
@@ -522,7 +529,9 @@ def _load_compounds(
             entry["dipole_known"] = _optional_measured(
                 table, i, "dipole_known_D", "dipole_known_err_D", si_from_debye, nonnegative=True
             )
-            entry["response"] = compound_response(table, i)
+            entry["response"], entry["response_reason"] = auto_response(
+                table, i, lambda n=name, r=row: _structure_mol(n, r, structures)
+            )
         except CompoundError as exc:
             if name in info and "problem" not in info[name]:
                 info[name]["problem"] = str(exc)
@@ -796,6 +805,7 @@ def load_campaign(path: str | Path) -> Campaign:
                 tuple(notes.get(name, ())),
                 entry.get("response"),
                 profiles.get(name, ()) if problem is None else (),
+                response_reason=entry.get("response_reason"),
             )
         )
     in_recoil = set(recoil.compound_names) if recoil is not None else set()

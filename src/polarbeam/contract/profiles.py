@@ -88,6 +88,7 @@ def load_profiles(path: Path, layout: str, fname: str):
                     float(np.mean(g["sv"])),
                     tuple(profiles),
                     next(iter(g["rot"])),
+                    temp,
                 )
             )
         else:

@@ -8,6 +8,11 @@ Optional columns (README, docs/rotors.md):
 * ``dipole_axis`` — ``a``, ``b``, ``c`` or components such as ``a:0.8,b:0.6`` (normalised).
   A linear rotor's and a prolate top's dipole lies along a, an oblate top's along c (the default
   for these); an asymmetric top needs it stated.
+* ``rotor = auto`` — everything from the structure (``smiles`` column or ``[data] structures``):
+  floppy or rigid, the kind of top, the rotational constants of the lowest conformer and the
+  dipole direction from its partial charges (:func:`polarbeam.chemistry.rotors.
+  rotor_description`); the choice and its reason are written to the results as derived. The
+  other rotor columns must then be empty.
 
 Every problem is one :class:`~polarbeam.errors.CompoundError` line naming the file, line, column,
 what was expected and what was found: the compound fails, the others go on.
@@ -20,9 +25,10 @@ import math
 from polarbeam._util.tables import Table
 from polarbeam.beam.response import LangevinDebye
 from polarbeam.beam.rotors.responses import ROTOR_KINDS, rotor_response
+from polarbeam.chemistry.rotors import rotor_description
 from polarbeam.errors import CompoundError
 
-__all__ = ["ROTOR_COLUMNS", "compound_response", "parse_dipole_axis"]
+__all__ = ["ROTOR_COLUMNS", "auto_response", "compound_response", "parse_dipole_axis"]
 
 ROTOR_COLUMNS = ("rotor", "rot_A_MHz", "rot_B_MHz", "rot_C_MHz", "dipole_axis")
 _AXES = ("a", "b", "c")
@@ -60,6 +66,35 @@ def _constant(table: Table, i: int, col: str) -> float | None:
     if not raw:
         return None
     return table.number(i, col, positive=True) * 1e6  # MHz → Hz
+
+
+def auto_response(table: Table, i: int, structure=None):
+    """(response, reason) of row ``i``: ``rotor = auto`` derives the response from the structure
+    (``structure()`` gives the RDKit molecule or None); any other row gives (its response, None).
+    """
+    row = table.rows[i]
+    if (row.get("rotor") or "").strip() != "auto":
+        return compound_response(table, i), None
+    where = f"{table.name} line {table.lines[i]}"
+    given = [col for col in ROTOR_COLUMNS[1:] if (row.get(col) or "").strip()]
+    if given:
+        raise CompoundError(
+            f"{where}: rotor 'auto' derives the rotor columns from the structure; expected "
+            f"{', '.join(given)} empty, found values"
+        )
+    mol = structure() if structure is not None else None
+    if mol is None:
+        raise CompoundError(
+            f"{where}: rotor 'auto' expected a structure (a smiles cell or a [data] structures "
+            "record), found none"
+        )
+    name = (row.get("compound") or "").strip()
+    d = rotor_description(mol, name)
+    reason = f"rotor auto → {d.kind}: {d.reason} (derived from the structure)"
+    if d.kind == "ergodic":
+        return LangevinDebye(), reason
+    direction = None if d.direction is None else tuple(abs(x) for x in d.direction)
+    return rotor_response(d.kind, d.constants_hz, direction or (1.0, 0.0, 0.0)), reason
 
 
 def compound_response(table: Table, i: int):

@@ -149,3 +149,5 @@ class CompoundData:
     response: object | None = None
     #: whole beam profiles ([data] profiles; contract/profiles.py), one ProfileSeries per T
     profiles: tuple = ()
+    #: why this response (``rotor = auto``: derived from the structure), None when stated
+    response_reason: str | None = None

@@ -18,6 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.optimize import least_squares
+from threadpoolctl import threadpool_limits
 
 from polarbeam.beam.distributions import GaussianVelocity
 from polarbeam.beam.rotors.profiles import (
@@ -29,9 +30,18 @@ from polarbeam.beam.rotors.profiles import (
 from polarbeam.constants import ANGSTROM3_SI, si_from_debye
 from polarbeam.errors import CompoundError, FitError
 
-__all__ = ["Profile", "ProfileFit", "ProfileSeries", "fit_profiles", "profile_model"]
+__all__ = [
+    "Profile",
+    "ProfileFit",
+    "ProfileSeries",
+    "fit_profiles",
+    "profile_model",
+    "profile_moments",
+]
 
 _UM = 1e-6
+#: starting dipoles (D) tried before the fit; the one with the lowest deviance is kept
+START_DIPOLES_D = (0.3, 0.7, 1.5, 3.0, 6.0)
 
 
 @dataclass(frozen=True)
@@ -47,6 +57,38 @@ class ProfileFit:
     deviance: float
     ndof: int
     evaluations: int
+    #: expected counts of every profile at the optimum, per series (same order as the data)
+    models: tuple[tuple[np.ndarray, ...], ...] = ()
+    #: fitted flat background (counts per bin) of every series
+    backgrounds: tuple[float, ...] = ()
+
+
+def profile_moments(
+    positions: np.ndarray, counts: np.ndarray, background: float
+) -> tuple[float, float, float, float]:
+    """(centroid, its error, rms width, its error) in m of one profile above a flat background.
+
+    The moments of the background-subtracted counts n_i − b; the errors are first-order
+    propagation of independent Poisson counts (var n_i = n_i, at least 1): for the centroid
+    c = Σ x_i w_i / N, var c = Σ (x_i − c)² n_i / N²; for the width σ = √(Σ (x_i − c)² w_i / N),
+    var σ = Σ ((x_i − c)² − σ²)² n_i / (2σN)².  The model's own moments (no error) come from the
+    same formula applied to its expected counts."""
+    x = np.asarray(positions, dtype=float)
+    n = np.asarray(counts, dtype=float)
+    w = n - background
+    total = float(np.sum(w))
+    if not total > 0:
+        return math.nan, math.nan, math.nan, math.nan
+    c = float(np.sum(x * w) / total)
+    d2 = (x - c) ** 2
+    var_w = np.maximum(n, 1.0)
+    width2 = float(np.sum(d2 * w) / total)
+    c_err = math.sqrt(float(np.sum(d2 * var_w)) / total**2)
+    if not width2 > 0:
+        return c, c_err, math.nan, math.nan
+    width = math.sqrt(width2)
+    w_err = math.sqrt(float(np.sum((d2 - width2) ** 2 * var_w))) / (2.0 * width * total)
+    return c, c_err, width, w_err
 
 
 class _States:
@@ -194,7 +236,22 @@ def fit_profiles(
     def resid(th):
         return _deviance_residuals(data, model(th))
 
-    res = least_squares(resid, theta0, bounds=(lo, hi), x_scale="jac", diff_step=1e-5)
+    # one BLAS thread: the Stark blocks are many small eigenproblems, which a threaded BLAS
+    # slows down many times over on a loaded machine (measured: 0.65 s → 0.019 s per call)
+    with threadpool_limits(limits=1, user_api="blas"):
+        # start from the best of a few dipoles (the guess among them): from a poor start the
+        # fit can slide to μ → 0 with a high T_rot, where μ no longer moves the profiles
+        starts = [theta0[0]] + [
+            math.log(d) for d in START_DIPOLES_D if abs(math.log(d) - theta0[0]) > 0.1
+        ]
+        scores = []
+        for t0 in starts:
+            trial = theta0.copy()
+            trial[0] = min(max(t0, lo[0] + 1e-9), hi[0] - 1e-9)
+            scores.append((float(np.sum(resid(trial) ** 2)), trial[0]))
+        theta0[0] = min(scores)[1]
+        res = least_squares(resid, theta0, bounds=(lo, hi), x_scale="jac", diff_step=1e-5)
+        final = model(res.x)
     if not res.success:
         raise FitError(f"compound {name!r}: the profile fit did not converge ({res.message})")
     jac = res.jac
@@ -202,7 +259,11 @@ def fit_profiles(
         cov = np.linalg.inv(jac.T @ jac)
     except np.linalg.LinAlgError as exc:
         raise FitError(f"compound {name!r}: the profile fit has no usable covariance") from exc
-    mu, temps, alpha, _ = unpack(res.x)
+    mu, temps, alpha, per = unpack(res.x)
+    parts = iter(
+        np.split(final, np.cumsum([p.counts.size for s in series for p in s.profiles])[:-1])
+    )
+    models = tuple(tuple(next(parts) for _ in s.profiles) for s in series)
     k = 1
     t_err = [0.0] * len(series)
     for i in free_t:
@@ -221,4 +282,6 @@ def fit_profiles(
         deviance=float(2.0 * res.cost),
         ndof=int(data.size - res.x.size),
         evaluations=counter[0],
+        models=models,
+        backgrounds=tuple(float(shape[2]) for shape, _ in per),
     )

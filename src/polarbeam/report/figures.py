@@ -40,6 +40,7 @@ __all__ = [
     "new_figure",
     "parity_figure",
     "plain_text",
+    "profile_figure",
     "series_figure",
     "styled",
     "time_of_flight_figure",
@@ -633,11 +634,49 @@ def velocity_figure(c: CompoundResult):
     return fig
 
 
+@_styled
+def profile_figure(c: CompoundResult):
+    """Whole beam profiles of a profile compound: measured counts per bin (steps) and the fitted
+    model (lines) at every voltage, and below each series the residuals (n − m)/√m."""
+    recs = list(getattr(c, "profiles", ()) or ())
+    if not recs:
+        return None
+    temps = list(dict.fromkeys(r.temperature_K for r in recs))
+    fig, axes = _new(5.6, 0.6 + 3.6 * len(temps), rows=2 * len(temps), ratios=(3, 1.2) * len(temps))
+    axes = np.atleast_1d(axes)
+    for j, t in enumerate(temps):
+        ax, rax = axes[2 * j], axes[2 * j + 1]
+        rows = [r for r in recs if r.temperature_K == t]
+        for i, r in enumerate(rows):
+            col, mk = _CYCLE[i % len(_CYCLE)], _MARKERS[i % len(_MARKERS)]
+            x = np.asarray(r.positions) * 1e3
+            ax.step(x, r.counts, where="mid", color=col, lw=0.6, alpha=0.55)
+            ax.plot(x, r.model, "-", color=col, lw=1.2, gid="model", label=f"{r.voltage_V:g} V")
+            m = np.maximum(np.asarray(r.model, dtype=float), 1e-12)
+            rax.plot(x, (r.counts - m) / np.sqrt(m), mk, ls="none", ms=1.6, color=col)
+        trot = rows[0].rotational_temperature_K
+        ttxt = "" if not math.isfinite(t) else f" at {t:g} K"
+        ax.set_title(
+            f"{plain_text(c.compound)}{ttxt}: measured profiles (steps) and fitted model "
+            f"(lines); T_rot = {trot:.3g} K",
+            fontsize=8,
+        )
+        ax.set_ylabel("counts / bin")
+        ax.legend(frameon=False, loc="upper right", title="voltage")
+        rax.axhline(0.0, color="#555555", lw=0.8)
+        for y in (-2, 2):
+            rax.axhline(y, color="#999999", lw=0.6, ls=":")
+        rax.set_ylabel("(n − m)/√m")
+        rax.set_xlabel("detector position (mm)")
+    return fig
+
+
 def compound_figures(c: CompoundResult) -> dict[str, Any]:
     """The figures of one compound, in report order: {kind: Figure} (absent kinds left out)."""
     out = {}
     for kind, make in (
         ("series", series_figure),
+        ("profiles", profile_figure),
         ("visibility", visibility_figure),
         ("velocity", velocity_figure),
         ("debye", debye_figure),

@@ -45,7 +45,7 @@ from polarbeam.report.visibility import (
 from polarbeam.results.objects import CampaignResult
 from polarbeam.uncertain import variance_budget
 
-__all__ = ["render_markdown", "render_terminal", "write_results"]
+__all__ = ["profile_markdown_lines", "render_markdown", "render_terminal", "write_results"]
 
 SERIES_COLUMNS = (
     "compound",
@@ -199,6 +199,7 @@ def render_markdown(result: CampaignResult) -> str:
             ]
             for v, y, e, m in zip(s.voltages, s.values, s.errors, s.model, strict=True):
                 lines.append(f"| {v:g} | {y:.5g} | {e:.2g} | {m:.5g} | {(y - m) / e:+.2f} |")
+        lines += profile_markdown_lines(c)
         r = c.row()
         if c.alpha is not None:
             lines += ["", f"**α = {value_error_text(r['alpha_A3'], r['alpha_err_A3'])} Å³**"]
@@ -357,3 +358,32 @@ def render_terminal(result: CampaignResult) -> str:
     if extra:
         out += ["", *extra]
     return "\n".join(out)
+
+
+def profile_markdown_lines(c) -> list[str]:
+    """Centroid and rms width of every recorded profile, measured and modelled (µm)."""
+    recs = getattr(c, "profiles", ()) or ()
+    if not recs:
+        return []
+    lines = [
+        "",
+        "Whole profiles — centroid and rms width per voltage (µm; model: the fitted profile):",
+        "",
+        "| T (K) | V (V) | centroid | model | width | model | T_rot (K) | R vs Langevin–Debye |",
+        "|---|---|---|---|---|---|---|---|",
+    ]
+    for p in recs:
+        ratio = "—" if p.ld_ratio is None else f"{p.ld_ratio:.3f}"
+        trot = (
+            value_error_text(p.rotational_temperature_K, p.rotational_temperature_err_K)
+            if p.rotational_temperature_err_K > 0
+            else f"{p.rotational_temperature_K:g} (stated)"
+        )
+        lines.append(
+            f"| {p.temperature_K:g} | {p.voltage_V:g} | "
+            f"{value_error_text(p.centroid_m * 1e6, p.centroid_err_m * 1e6)} | "
+            f"{p.model_centroid_m * 1e6:.4g} | "
+            f"{value_error_text(p.width_m * 1e6, p.width_err_m * 1e6)} | "
+            f"{p.model_width_m * 1e6:.4g} | {trot} | {ratio} |"
+        )
+    return lines

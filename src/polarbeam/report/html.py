@@ -77,6 +77,9 @@ _CAPTIONS = {
     "comparison": "Measured value (band: 1σ) against the predicted and computed values stored "
     "with the compound.",
     "budget": "Share of each stated input in the variance (fit statistics pooled).",
+    "profiles": "Whole beam profiles: measured counts per detector bin (steps) and the fitted "
+    "model (lines, the sum over rotational states and velocity classes of the displaced "
+    "undeflected beam) at every voltage; below, the residuals (n − m)/√m.",
     "time_of_flight": "Time-of-flight trace of each series (counts per bin) with the fitted "
     "gate-convolved model; its distribution is in velocities.csv.",
 }

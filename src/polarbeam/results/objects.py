@@ -23,6 +23,7 @@ from polarbeam._version import __version__
 from polarbeam.constants import alpha_a3_from_si, alpha_au_from_si, debye_from_si
 from polarbeam.errors import PolarbeamError
 from polarbeam.quantities import format_value_error
+from polarbeam.results.profiles import ProfileRecord
 from polarbeam.results.velocity import VelocityRecord
 from polarbeam.uncertain import variance_budget
 
@@ -205,6 +206,8 @@ class CompoundResult:
     debye_ndof: int | None = None
     warnings: tuple[str, ...] = ()
     extra: dict[str, Any] = field(default_factory=dict)
+    #: whole beam profiles of a profile compound (results.profiles.ProfileRecord), in data order
+    profiles: tuple[ProfileRecord, ...] = ()
 
     def __post_init__(self):
         if self.status not in STATUS:
@@ -247,7 +250,7 @@ class CompoundResult:
 
     def to_dataframe(self) -> pd.DataFrame:
         """The compound's series as a table (the series.csv rows)."""
-        return pd.DataFrame([s.row() for s in self.series])
+        return pd.DataFrame([s.row() for s in self.series] + [p.row() for p in self.profiles])
 
     def __repr__(self) -> str:
         return f"CompoundResult({self.compound!r}, {self.status}: {self._statement_text()})"
@@ -351,6 +354,7 @@ class CompoundResult:
             "series": [s.summary() for s in self.series],
             "warnings": list(self.warnings),
             "extra": {k: v for k, v in self.extra.items()},
+            **({"profiles": [p.summary() for p in self.profiles]} if self.profiles else {}),
         }
 
 
@@ -407,6 +411,7 @@ class CampaignResult:
     @property
     def series(self) -> pd.DataFrame:
         rows = [s.row() for c in self.compounds for s in c.series]
+        rows += [p.row() for c in self.compounds for p in c.profiles]  # profile compounds
         cols = [
             "compound",
             "temperature_K",

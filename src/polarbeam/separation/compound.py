@@ -191,6 +191,9 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         )
     response = cd.response if cd.response is not None else LangevinDebye()
     rigid = response.name != "ergodic"
+    reason = getattr(cd, "response_reason", None)  # rotor = auto: the derived choice
+    if reason:
+        messages.append(reason)
     t_orient = temps  # the rotational temperatures (temps become T_s/R_s for a rigid rotor)
     if rigid:  # α_eff = α + R_s μ²/(3kT_s): the Debye line in R_s/T_s (separation/rotors.py)
         temps, ratios, _mu = rotor_temperatures(
@@ -309,7 +312,11 @@ def _separate(cd: CompoundData, c: Campaign, ctx: Context, mass_u: float) -> Com
         debye_chi2=chi2,
         debye_ndof=ndof,
         warnings=tuple(warnings),
-        extra={"mu_E_over_kT": orientation, "response": response.name},
+        extra={
+            "mu_E_over_kT": orientation,
+            "response": response.name,
+            **({"response_reason": reason} if reason else {}),
+        },
     )
 
 

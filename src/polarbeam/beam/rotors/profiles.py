@@ -50,6 +50,7 @@ class ProfileSeries:
     spread: float
     profiles: tuple[Profile, ...]
     rotational_k: float | None = None  # stated rotational temperature; None: fitted
+    temperature_k: float | None = None  # the source temperature (K), for the outputs
 
 
 def reweighted_populations(states, t_ref_k: float, t_k: float) -> np.ndarray:
