@@ -14,9 +14,8 @@ import os
 from collections.abc import Iterable
 from pathlib import Path
 
-from rdkit import Chem, rdBase
-
 from polarbeam._util.atomic import atomic_path
+from polarbeam._util.optional import lazy
 from polarbeam._util.tables import CELL_BLANKS, csv_records, text_problem
 from polarbeam._util.text import NOT_A_TABLE, looks_like_header
 from polarbeam.chemistry.accuracy import dipole_error_D
@@ -31,6 +30,9 @@ from polarbeam.chemistry.conformers import (
 from polarbeam.chemistry.estimates import DIPOLE_METHOD, default_polarizability
 from polarbeam.chemistry.molecules import StructureRecord, read_sdf
 from polarbeam.errors import CalculationTooBigError, CompoundError, InputError
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
+rdBase = lazy("rdkit.rdBase", "reading molecules (SMILES, SDF)")
 
 __all__ = ["estimate_table"]
 

@@ -17,8 +17,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import least_squares
 
+from polarbeam._util.optional import lazy
 from polarbeam.beam.distributions import GaussianVelocity
 from polarbeam.beam.rotors.profiles import (
     Profile,
@@ -28,6 +28,8 @@ from polarbeam.beam.rotors.profiles import (
 )
 from polarbeam.constants import ANGSTROM3_SI, si_from_debye
 from polarbeam.errors import CompoundError, FitError
+
+_optimize = lazy("scipy.optimize", "numerical routines")
 
 __all__ = ["Profile", "ProfileFit", "ProfileSeries", "fit_profiles", "profile_model"]
 
@@ -194,7 +196,7 @@ def fit_profiles(
     def resid(th):
         return _deviance_residuals(data, model(th))
 
-    res = least_squares(resid, theta0, bounds=(lo, hi), x_scale="jac", diff_step=1e-5)
+    res = _optimize.least_squares(resid, theta0, bounds=(lo, hi), x_scale="jac", diff_step=1e-5)
     if not res.success:
         raise FitError(f"compound {name!r}: the profile fit did not converge ({res.message})")
     jac = res.jac
