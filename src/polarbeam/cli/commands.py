@@ -168,6 +168,9 @@ def estimate(
     conformers: int = typer.Option(10, help="conformers per molecule for --dipoles"),
     seed: int = typer.Option(61453, help="random seed of the conformer embedding"),
     temperature: float = typer.Option(300.0, help="temperature (K) of the Boltzmann average"),
+    jobs: int = typer.Option(
+        1, "--jobs", "-j", min=0, help="processes for --dipoles (default 1; 0: one per core)"
+    ),
 ):
     """Structure-based estimates (additive α, mass, dipoles) for a library without measurements."""
     try:
@@ -178,6 +181,7 @@ def estimate(
             conformers=conformers,
             seed=seed,
             temperature_K=temperature,
+            jobs=jobs,
         )
     except PolarbeamError as exc:
         _fail(exc)
