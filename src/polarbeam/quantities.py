@@ -6,8 +6,12 @@ Accepted forms (the error is optional and is a 1σ standard uncertainty)::
     "(0.52 ± 0.001) m"  "520 mm ± 1 mm"       "1.21e5 ± 600 m^-3"
     0.52                "0.52"                (a bare number is SI)
 
-Units are read by :mod:`pint`; the dimension is checked against what the key expects, and the
-error message names the key, the expected unit and what was found.
+The SI units and prefixes a campaign normally states (``m``, ``mm``, ``nm``, ``K``, ``kV``,
+``m/s^2``, ``rad^2/s`` …) are converted by a small table that repeats pint's definitions and its
+order of multiplication, so the numbers are bit-identical to pint's (tests/core compare every
+entry); any other unit string is read by :mod:`pint`, which loads only then (it is slow to import
+and to build its registry). The dimension is checked against what the key expects, and the error
+message names the key, the expected unit and what was found.
 """
 
 from __future__ import annotations
@@ -47,6 +51,129 @@ def _ureg():
     return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 
 
+# --- the light unit table -------------------------------------------------------------------
+# Each entry repeats pint's definition (default_en.txt): scale and reference in pint's order, or
+# a base dimension. Conversions walk them exactly as pint's ``_get_root_units`` does, so the
+# floating-point products agree bit for bit; anything not here falls back to pint.
+#: unit name → ("base", dimension) or (scale, ((referenced unit, exponent), ...)).
+UNIT_DEFINITIONS: dict[str, tuple] = {
+    "meter": ("base", "length"),
+    "second": ("base", "time"),
+    "ampere": ("base", "current"),
+    "gram": ("base", "mass"),
+    "kelvin": ("base", "temperature"),
+    "radian": ("base", ""),  # dimensionless in pint
+    "π": (3.141592653589793, ()),
+    "degree": (0.005555555555555556, (("π", 1), ("radian", 1))),
+    "minute": (60, (("second", 1),)),
+    "hour": (60, (("minute", 1),)),
+    "hertz": (1.0, (("second", -1),)),
+    "kilogram": (1000.0, (("gram", 1),)),
+    "newton": (1.0, (("kilogram", 1), ("meter", 1), ("second", -2))),
+    "joule": (1, (("newton", 1), ("meter", 1))),
+    "watt": (1.0, (("joule", 1), ("second", -1))),
+    "coulomb": (1, (("ampere", 1), ("second", 1))),
+    "volt": (1.0, (("joule", 1), ("coulomb", -1))),
+    "angstrom": (1e-10, (("meter", 1),)),
+}
+#: symbol or name as written → unit name (pint's symbols and names; prefixes only on symbols).
+UNIT_SYMBOLS: dict[str, str] = {
+    "m": "meter", "s": "second", "A": "ampere", "g": "gram", "K": "kelvin", "rad": "radian",
+    "deg": "degree", "min": "minute", "h": "hour", "Hz": "hertz", "N": "newton", "J": "joule",
+    "W": "watt", "C": "coulomb", "V": "volt", "Å": "angstrom", "\u212b": "angstrom",
+    "meter": "meter", "second": "second", "kelvin": "kelvin", "radian": "radian",
+    "degree": "degree", "volt": "volt", "watt": "watt", "hour": "hour", "minute": "minute",
+}  # fmt: skip
+#: prefix symbol → (pint's prefix name, scale).
+UNIT_PREFIXES: dict[str, tuple[str, float]] = {
+    "f": ("femto", 1e-15), "p": ("pico", 1e-12), "n": ("nano", 1e-09),
+    "µ": ("micro", 1e-06), "μ": ("micro", 1e-06), "u": ("micro", 1e-06),
+    "m": ("milli", 0.001), "c": ("centi", 0.01), "d": ("deci", 0.1),
+    "k": ("kilo", 1000.0), "M": ("mega", 1000000.0), "G": ("giga", 1000000000.0),
+}  # fmt: skip
+_FAST_FACTOR = re.compile(r"^([^\s*/^()]+)(?:\^(-?\d+))?$")
+
+
+def _unit_name(symbol: str) -> str | None:
+    """pint's name of a (prefixed) symbol, or None when the table does not know it."""
+    if symbol in UNIT_SYMBOLS:
+        return UNIT_SYMBOLS[symbol]
+    prefix, rest = symbol[:1], symbol[1:]
+    if prefix in UNIT_PREFIXES and rest in UNIT_SYMBOLS and rest == rest.strip() and len(rest) < 4:
+        return UNIT_PREFIXES[prefix][0] + UNIT_SYMBOLS[rest]
+    return None
+
+
+def _definition(name: str) -> tuple:
+    if name in UNIT_DEFINITIONS:
+        return UNIT_DEFINITIONS[name]
+    for pname, scale in UNIT_PREFIXES.values():
+        rest = name[len(pname) :]
+        if name.startswith(pname) and rest in UNIT_DEFINITIONS:
+            return scale, ((rest, 1),)  # pint: prefix scale, reference the unprefixed unit
+    raise KeyError(name)
+
+
+def fast_units(text: str) -> list[tuple[str, int]] | None:
+    """Units of ``text`` in the order pint's container holds them; None if the table lacks one.
+
+    Only ``a``, ``a^n`` and ``a**n`` joined by ``*`` and ``/`` (read left to right, as pint
+    does), with an optional leading ``1/``, are read here; spaces, parentheses and every other
+    form go to pint.
+    """
+    text = text.strip()
+    if not text:
+        return []
+    units: dict[str, int] = {}
+    for i, piece in enumerate(text.replace("**", "^").split("/")):
+        if i == 0 and piece == "1":
+            continue
+        for j, part in enumerate(piece.split("*")):
+            m = _FAST_FACTOR.match(part)
+            name = _unit_name(m.group(1)) if m else None
+            if name is None:
+                return None
+            exponent = int(m.group(2) or 1)
+            units[name] = units.get(name, 0) + (-exponent if i > 0 and j == 0 else exponent)
+    return [(n, e) for n, e in units.items() if e != 0]
+
+
+def _walk(name: str, exponent: int, acc: list, dims: dict[str, int]) -> None:
+    """pint's ``_get_root_units_recurse``: multiply the scales in the same order."""
+    scale, ref = _definition(name)
+    if scale == "base":
+        if ref:
+            dims[ref] = dims.get(ref, 0) + exponent
+        return
+    acc[0] *= scale**exponent
+    for sub, e in ref:
+        _walk(sub, exponent * e, acc, dims)
+
+
+def fast_convert(number: float, unit: str, expected: str) -> float | None:
+    """``number`` in ``unit`` expressed in ``expected``, bit-identical to pint.
+
+    Returns None when the table does not know a unit (the caller asks pint); raises
+    :class:`ValueError` when the dimensions differ.
+    """
+    src = fast_units(unit)
+    dst = fast_units(expected)
+    if src is None or dst is None:
+        return None
+    merged = dict(src)
+    for name, e in dst:
+        merged[name] = merged.get(name, 0) - e
+        if merged[name] == 0:
+            del merged[name]
+    acc: list = [1]
+    dims: dict[str, int] = {}
+    for name, e in merged.items():
+        _walk(name, e, acc, dims)
+    if any(dims.values()):
+        raise ValueError(f"{unit!r} is not a unit of {expected or 'dimensionless'}")
+    return float(number * acc[0])
+
+
 # the ± separator alone (surrounding spaces are stripped from the parts): a pattern that also
 # matched the spaces (``\s*±\s*``) retried them at every position, quadratic in their number
 _PM = re.compile(r"±|\+/-|\+-")
@@ -67,6 +194,17 @@ def _to_si(number: float, unit: str, expected: str, where: str, original: str) -
         raise QuantityError(
             f"{where}: unknown unit {unit!r} in {original!r} (expected a unit of {expected or '1'})"
         )
+    if not unit:
+        return float(number)  # bare number: SI already
+    try:
+        fast = fast_convert(number, unit, expected)
+    except ValueError:
+        raise QuantityError(
+            f"{where}: expected a unit of {expected or 'dimensionless'}, found {unit!r} "
+            f"in {original!r}"
+        ) from None
+    if fast is not None:
+        return fast
     ureg = _ureg()
     target = ureg.parse_units(expected) if expected else ureg.dimensionless
     try:

@@ -95,3 +95,19 @@ def test_estimate_table_structural_errors(tmp_path):
     bad.write_text("name,structure\nx,C\n", encoding="utf-8")
     with pytest.raises(InputError, match=r"expected columns 'compound' and 'smiles'.*found"):
         chem.estimate_table(bad, tmp_path / "o.csv")
+
+
+def test_dipoles_in_two_processes_write_the_same_file(tmp_path):
+    """--jobs spreads the conformer work over processes; every row stays the same."""
+    from polarbeam.chemistry.library import estimate_table
+
+    src = tmp_path / "lib.csv"
+    src.write_text(
+        "compound,smiles,note\nw1,CCO,a\nw2,CC(=O)C,b\nbad,C1CC,c\nw3,OCCO,d\nw4,CCN,e\n",
+        encoding="utf-8",
+    )
+    one, two = tmp_path / "one.csv", tmp_path / "two.csv"
+    c1 = estimate_table(src, one, dipoles=True, conformers=3, jobs=1)
+    c2 = estimate_table(src, two, dipoles=True, conformers=3, jobs=2)
+    assert c1 == c2 == {"rows": 5, "ok": 4, "failed": 1}
+    assert one.read_bytes() == two.read_bytes()

@@ -16,8 +16,10 @@ from polarbeam.errors import MissingExtraError
 
 __all__ = [
     "EXTRAS",
+    "LazyModule",
     "extra_for",
     "has",
+    "lazy",
     "missing_reason",
     "require",
 ]
@@ -76,3 +78,35 @@ def require(module: str, purpose: str) -> ModuleType:
             f"{purpose} needs {pip_name}, which is not installed: "
             f"pip install 'polarbeam[{extra}]' (or pip install {pip_name})"
         ) from None
+
+
+class LazyModule:
+    """A module imported on first attribute access (through :func:`require`).
+
+    ``pd = lazy("pandas", "reading tables")`` at the top of a module keeps ``pd.read_csv(...)``
+    as written while the import waits until a function first needs it, so a fresh process
+    that never reaches that code never pays for the import.
+    """
+
+    __slots__ = ("_module", "_name", "_purpose")
+
+    def __init__(self, name: str, purpose: str):
+        self._name = name
+        self._purpose = purpose
+        self._module: ModuleType | None = None
+
+    def __getattr__(self, attr: str):
+        module = self._module
+        if module is None:
+            module = require(self._name, self._purpose)
+            self._module = module
+        return getattr(module, attr)
+
+    def __repr__(self) -> str:
+        state = "loaded" if self._module is not None else "not loaded yet"
+        return f"<lazy module {self._name!r} ({state})>"
+
+
+def lazy(module: str, purpose: str) -> LazyModule:
+    """``module`` as a :class:`LazyModule`: imported when first used, not now."""
+    return LazyModule(module, purpose)

@@ -7,7 +7,9 @@ import hashlib
 import math
 import re
 
-from pandas.api.types import is_bool_dtype, is_numeric_dtype
+from polarbeam._util.optional import lazy
+
+_ptypes = lazy("pandas.api.types", "reading tables")
 
 __all__ = [
     "FORMULA_CHARS",
@@ -168,6 +170,8 @@ def guarded_frame(df):
     cells, negative numbers included, are left exactly as they are."""
     out = df.copy()
     for c in out.columns:
-        if not (is_numeric_dtype(out[c]) or is_bool_dtype(out[c])):  # object or str columns
+        if not (
+            _ptypes.is_numeric_dtype(out[c]) or _ptypes.is_bool_dtype(out[c])
+        ):  # object or str columns
             out[c] = out[c].map(formula_guard)
     return out

@@ -66,6 +66,7 @@ from polarbeam.pipeline.analysis import (
     make_result,
 )
 from polarbeam.pipeline.outputs import write_outputs
+from polarbeam.report.figure_cache import figures_unchanged
 from polarbeam.report.files import render_terminal
 from polarbeam.report.html import detail_indices
 from polarbeam.results.objects import CompoundResult
@@ -169,6 +170,7 @@ def _run_campaign(
     rendered: dict[int, dict] = {}
     if html:
         idx = [i for i, n in enumerate(names) if n in kept and compounds[i].status != "failed"]
+        idx = [i for i in idx if not figures_unchanged(out, result.compounds[i])]
         if idx and not isinstance(runner, InlineRunner):
             items = [(i, kept[names[i]]) for i in idx]
             step = max(1, math.ceil(len(items) / (2 * runner.workers)))

@@ -27,7 +27,11 @@ from functools import lru_cache
 from typing import Protocol, runtime_checkable
 
 import numpy as np
-from scipy import optimize, special
+
+from polarbeam._util.optional import lazy
+
+optimize = lazy("scipy.optimize", "numerical routines")
+special = lazy("scipy.special", "numerical routines")
 
 __all__ = [
     "EFFUSIVE_SPREAD_RATIO",

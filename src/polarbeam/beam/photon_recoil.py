@@ -13,10 +13,12 @@ from functools import lru_cache
 
 import numpy as np
 from scipy import constants as _sc
-from scipy import special
 from uncertainties import umath
 
+from polarbeam._util.optional import lazy
 from polarbeam.beam.distributions import GaussianVelocity
+
+special = lazy("scipy.special", "numerical routines")
 
 __all__ = [
     "PLANCK",

@@ -39,7 +39,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import uncertainties
-from scipy import special
+
+from polarbeam._util.optional import lazy
+
+special = lazy("scipy.special", "numerical routines")
 
 __all__ = [
     "FluxShape",

@@ -55,9 +55,9 @@ from typing import Any
 
 import numpy as np
 import uncertainties
-from scipy import stats
 from uncertainties import UFloat, covariance_matrix, ufloat, umath
 
+from polarbeam._util.optional import lazy
 from polarbeam._util.tables import CELL_BLANKS, Table, read_table
 from polarbeam._util.text import input_label
 from polarbeam.constants import (
@@ -74,6 +74,8 @@ from polarbeam.results.objects import CompoundResult
 from polarbeam.separation.compound import separate, series_temperature
 from polarbeam.separation.dipole import dipole_statement
 from polarbeam.uncertain import variance_budget
+
+stats = lazy("scipy.stats", "numerical routines")
 
 #: analyse one compound with a context: ``(compound, campaign, context) -> CompoundResult``.
 CompoundAnalysis = Callable[[Any, Any, Context], CompoundResult]

@@ -26,7 +26,10 @@ import math
 from collections.abc import Iterable
 from dataclasses import dataclass
 
-from rdkit import Chem
+from polarbeam._util.optional import lazy
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
+
 
 __all__ = [
     "ALPHA_CLASS_SCATTER",

@@ -17,6 +17,7 @@ citation.  Functions returning Å³ say so in their names (``_A3``).
 from __future__ import annotations
 
 import csv
+import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -25,15 +26,18 @@ from importlib import resources
 from typing import Literal
 
 import numpy as np
-from rdkit import Chem
-from rdkit.Chem import Crippen, Descriptors, rdMolDescriptors
 from scipy import constants as _sc
 
-from polarbeam._util.optional import require
+from polarbeam._util.optional import lazy, require
 from polarbeam.chemistry.conformers import DEFAULT_SEED, embed_one
 from polarbeam.chemistry.molecules import as_mol
 from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
 from polarbeam.errors import InputError
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
+Crippen = lazy("rdkit.Chem.Crippen", "reading molecules (SMILES, SDF)")
+Descriptors = lazy("rdkit.Chem.Descriptors", "reading molecules (SMILES, SDF)")
+rdMolDescriptors = lazy("rdkit.Chem.rdMolDescriptors", "reading molecules (SMILES, SDF)")
 
 __all__ = [
     "CRIPPEN_MAX_ATOMS",
@@ -251,9 +255,14 @@ _METALS = frozenset(
 _CRIPPEN_ELEMENTS = frozenset([1, 5, 6, 7, 8, 9, 14, 15, 16, 17, 34, 35, 53])
 _HALOGENS = {9: "F", 17: "Cl", 35: "Br", 53: "I"}
 _HALOGEN_INDEX = {z: _MI[sym] for z, sym in _HALOGENS.items()}
-_SP = Chem.HybridizationType.SP
-#: Carbon without H in two or more SSSR rings (cage / fused-sheet carbon), for the domain flag.
-_BARE_RING_CARBON = Chem.MolFromSmarts("[#6;H0;!R0;!R1]")
+
+
+@functools.cache
+def _rdkit_patterns() -> tuple:
+    """RDKit objects made once, on first use (RDKit loads only when a molecule is read):
+    the sp hybridization and carbon without H in two or more SSSR rings (cage / fused-sheet
+    carbon, for the domain flag)."""
+    return Chem.HybridizationType.SP, Chem.MolFromSmarts("[#6;H0;!R0;!R1]")
 
 
 # --------------------------------------------------------------------------------------------
@@ -272,6 +281,7 @@ def _analyse(mol: Chem.Mol) -> tuple[list[int], int, dict[int, int], list[str], 
     wrappers cost twice as much) and each atom costs five RDKit calls.
     """
     n_atoms = mol.GetNumAtoms()
+    sp_type = _rdkit_patterns()[0]
     # unsat[i]: atom i carries a double, triple or aromatic bond (it is part of a pi system).
     unsat = bytearray(n_atoms)
     n_arom = bytearray(n_atoms)
@@ -326,7 +336,7 @@ def _analyse(mol: Chem.Mol) -> tuple[list[int], int, dict[int, int], list[str], 
             if nconn == 1:
                 idx = _I_N_DI
             elif nconn == 2:
-                idx = _I_N_DI if a.GetHybridization() == _SP else _I_N_TR2
+                idx = _I_N_DI if a.GetHybridization() == sp_type else _I_N_TR2
             elif nconn == 3:
                 idx = _I_N_PI2 if (unsat[i] or nbr_unsat[i]) else _I_N_TE
             else:
@@ -470,7 +480,7 @@ def _flags(
     elif elements.get(9, 0) and not elements.get(1, 0):
         flags.append("perfluorinated")
     if n_c >= 12:
-        bare = len(mol.GetSubstructMatches(_BARE_RING_CARBON, maxMatches=100000))
+        bare = len(mol.GetSubstructMatches(_rdkit_patterns()[1], maxMatches=100000))
         if bare >= 12 and 2 * bare >= n_c:
             flags.append("cage-carbon")
     flags.extend(mflags)

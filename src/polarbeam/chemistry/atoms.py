@@ -14,11 +14,11 @@ from __future__ import annotations
 import math
 from functools import lru_cache
 
-from rdkit import Chem
-
-from polarbeam._util.optional import require
+from polarbeam._util.optional import lazy, require
 from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
 from polarbeam.errors import CompoundError
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
 
 __all__ = ["ATOM_METHOD", "ATOM_SOURCE", "atom_polarizability_A3", "single_atom_symbol"]
 

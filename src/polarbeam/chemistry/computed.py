@@ -24,13 +24,14 @@ from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
-from polarbeam._util.optional import require
+from polarbeam._util.optional import lazy, require
 from polarbeam._util.tables import CELL_BLANKS, csv_records, text_problem
 from polarbeam._util.text import header_for_message
 from polarbeam.constants import ANGSTROM3_SI, AU_POLARIZABILITY_SI
 from polarbeam.errors import InputError, RowValueError
+
+pd = lazy("pandas", "reading and writing tables")
 
 __all__ = [
     "ALPHA_UNITS",
@@ -239,8 +240,11 @@ def _old_layout(cells: dict[str, str], named: dict[str, str]) -> dict[str, str]:
 
 
 def read_computed(
-    path, failures: list[str] | None = None, notes: list[str] | None = None
-) -> pd.DataFrame:
+    path,
+    failures: list[str] | None = None,
+    notes: list[str] | None = None,
+    as_frame: bool = True,
+) -> pd.DataFrame | list[dict]:
     """Read a CSV of computed polarizabilities and dipoles into a table in Å³ and debye.
 
     Parameters
@@ -262,6 +266,9 @@ def read_computed(
         If ``None`` (default) the first bad row raises :class:`~polarbeam.errors.RowValueError`.
     notes
         If a list is given, a one-line deprecation note is appended for the old layout.
+    as_frame
+        False: check the file and return the rows as dicts (no pandas import; the campaign
+        loader only checks the file).
 
     Returns
     -------
@@ -345,6 +352,8 @@ def read_computed(
         rows.append(row)
     if header is None:
         raise InputError(f"{path}: expected a header row with {', '.join(_REQUIRED)}, found none")
+    if not as_frame:
+        return rows
     return pd.DataFrame(rows, columns=COMPUTED_COLUMNS)
 
 

@@ -14,13 +14,17 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
-from rdkit import Chem, rdBase
-from rdkit.Chem import AllChem, rdMolAlign
 from scipy import constants as _sc
 
+from polarbeam._util.optional import lazy
 from polarbeam.chemistry.molecules import as_mol
 from polarbeam.constants import BOLTZMANN, DEBYE_SI
 from polarbeam.errors import CalculationTooBigError, CompoundError, InputError
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
+rdBase = lazy("rdkit.rdBase", "reading molecules (SMILES, SDF)")
+AllChem = lazy("rdkit.Chem.AllChem", "reading molecules (SMILES, SDF)")
+rdMolAlign = lazy("rdkit.Chem.rdMolAlign", "reading molecules (SMILES, SDF)")
 
 __all__ = [
     "CHARGE_MODELS",

@@ -18,8 +18,7 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-from rdkit import Chem
-
+from polarbeam._util.optional import lazy
 from polarbeam.chemistry.accuracy import (
     ALPHA_CLASS_SCATTER,
     CLASS_SCHEME,
@@ -47,6 +46,8 @@ from polarbeam.chemistry.conformers import (
 from polarbeam.chemistry.molecules import as_mol
 from polarbeam.constants import ANGSTROM3_SI, DEBYE_SI
 from polarbeam.errors import CalculationTooBigError, InputError
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
 
 __all__ = [
     "DIPOLE_METHOD",

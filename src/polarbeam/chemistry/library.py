@@ -12,11 +12,11 @@ import csv
 import math
 import os
 from collections.abc import Iterable
+from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
-from rdkit import Chem, rdBase
-
 from polarbeam._util.atomic import atomic_path
+from polarbeam._util.optional import lazy
 from polarbeam._util.tables import CELL_BLANKS, csv_records, text_problem
 from polarbeam._util.text import NOT_A_TABLE, looks_like_header
 from polarbeam.chemistry.accuracy import dipole_error_D
@@ -31,6 +31,9 @@ from polarbeam.chemistry.conformers import (
 from polarbeam.chemistry.estimates import DIPOLE_METHOD, default_polarizability
 from polarbeam.chemistry.molecules import StructureRecord, read_sdf
 from polarbeam.errors import CalculationTooBigError, CompoundError, InputError
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
+rdBase = lazy("rdkit.rdBase", "reading molecules (SMILES, SDF)")
 
 __all__ = ["estimate_table"]
 
@@ -117,6 +120,7 @@ def estimate_table(
     seed: int = DEFAULT_SEED,
     temperature_K: float = 300.0,
     charge_model: ChargeModel = DEFAULT_CHARGE_MODEL,
+    jobs: int = 1,
 ) -> dict[str, int]:
     """Estimate every structure of a CSV (``compound, smiles, ...``) or SDF file into a CSV.
 
@@ -126,6 +130,10 @@ def estimate_table(
     is above the conformer size limit or its embedding ran out of time: the additive estimates
     stand, ``n_conformers`` is 0).  The file is written atomically (temporary file in the
     output directory, then :func:`os.replace`).
+
+    With ``dipoles`` and ``jobs`` > 1 the rows are computed in that many processes (0: one per
+    core); each molecule's conformer work is bounded as in :func:`conformer_ensemble` and its seed
+    is the same in any process, so the file is identical for any ``jobs``.
 
     Returns
     -------
@@ -157,73 +165,108 @@ def estimate_table(
     reserved = set(base) | {"status", "message"}
     header = [*base, "status", "message"]
     header += [f"input_{c}" if c in reserved else c for c in extra_cols]
-    scheme_acc = [SCHEMES[k] for k in _SCHEME_KEYS]
-
-    rows: list[list[str]] = []
-    n_ok = 0
-    with rdBase.BlockLogs():
-        for rec in recs:
-            extra = dict(rec.extra)
-            tail = [extra.get(c, "") for c in extra_cols]
-            failed = [rec.compound, rec.smiles] + [""] * (n_out - 2)
-            if rec.mol is None:
-                rows.append([*failed, "failed", rec.error, *tail])
-                continue
-            try:
-                m_avg, m_mono, n_el, ahp, ahc, bs, llmr, flags = fast_estimates(rec.mol)
-                vals = (ahp, ahc, bs, llmr)
-                errs = [
-                    s.error_A3(v) if math.isfinite(v) else math.nan
-                    for s, v in zip(scheme_acc, vals, strict=True)
-                ]
-                dflt = default_polarizability(
-                    rec.mol, dict(zip(_SCHEME_KEYS, vals, strict=True)), rec.compound
-                )
-                row = [
-                    rec.compound,
-                    rec.smiles,
-                    _fmt(m_avg),
-                    _fmt(m_mono),
-                    str(n_el),
-                    _fmt(dflt.alpha_A3),
-                    _fmt(dflt.err_A3),
-                    dflt.scheme,
-                ]
-                for v, e in zip(vals, errs, strict=True):
-                    row += [_fmt(v), _fmt(e)]
-                row += [";".join(flags), dflt.structure_class, dflt.method, dflt.err_method]
-                note = ""
-                if dipoles:
-                    try:
-                        ens = conformer_ensemble(
-                            rec.mol,
-                            rec.compound,
-                            n_conformers=conformers,
-                            seed=seed,
-                            charge_model=charge_model,
-                        )
-                    except CalculationTooBigError as exc:
-                        # bounded work: the additive estimates stand, the row says why no dipole
-                        note = str(exc)
-                        row += ["", "0", "", _fmt(float(temperature_K)), "", ""]
-                    else:
-                        mu = ens.rms_dipole_D(temperature_K)
-                        row += [
-                            _fmt(mu),
-                            str(len(ens.energies_kcal_mol)),
-                            ens.charge_model,
-                            _fmt(float(temperature_K)),
-                            _fmt(dipole_error_D(mu, dflt.structure_class)),
-                            DIPOLE_METHOD,
-                        ]
-                rows.append([*row, "ok", note, *tail])
-                n_ok += 1
-            except (CompoundError, ValueError, RuntimeError) as exc:
-                msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-                rows.append([*failed, "failed", f"compound {rec.compound!r}: {msg}", *tail])
+    jobs = (os.cpu_count() or 1) if jobs == 0 else jobs
+    args = (extra_cols, n_out, dipoles, conformers, seed, temperature_K, charge_model)
+    if jobs > 1 and dipoles and len(recs) > 1:
+        # conformer work is bounded per molecule (conformer_ensemble) and spread over processes
+        with ProcessPoolExecutor(max_workers=jobs) as pool:
+            done = list(pool.map(estimate_row, recs, *[[a] * len(recs) for a in args], chunksize=4))
+    else:
+        done = [estimate_row(rec, *args) for rec in recs]
+    rows = [row for row, _ in done]
+    n_ok = sum(ok for _, ok in done)
 
     _write_csv_atomic(out, header, rows)
     return {"rows": len(rows), "ok": n_ok, "failed": len(rows) - n_ok}
+
+
+def estimate_row(
+    rec: StructureRecord,
+    extra_cols: list[str],
+    n_out: int,
+    dipoles: bool,
+    conformers: int,
+    seed: int,
+    temperature_K: float,
+    charge_model: ChargeModel,
+) -> tuple[list[str], bool]:
+    """One output row of :func:`estimate_table` and whether it is ``ok`` (never raises for a
+    bad molecule: the row says why). The same seed per molecule: a row does not depend on
+    which process computed it."""
+    scheme_acc = [SCHEMES[k] for k in _SCHEME_KEYS]
+    with rdBase.BlockLogs():
+        return _estimate_row(
+            rec,
+            extra_cols,
+            n_out,
+            dipoles,
+            conformers,
+            seed,
+            temperature_K,
+            charge_model,
+            scheme_acc,
+        )
+
+
+def _estimate_row(
+    rec, extra_cols, n_out, dipoles, conformers, seed, temperature_K, charge_model, scheme_acc
+):
+    extra = dict(rec.extra)
+    tail = [extra.get(c, "") for c in extra_cols]
+    failed = [rec.compound, rec.smiles] + [""] * (n_out - 2)
+    if rec.mol is None:
+        return [*failed, "failed", rec.error, *tail], False
+    try:
+        m_avg, m_mono, n_el, ahp, ahc, bs, llmr, flags = fast_estimates(rec.mol)
+        vals = (ahp, ahc, bs, llmr)
+        errs = [
+            s.error_A3(v) if math.isfinite(v) else math.nan
+            for s, v in zip(scheme_acc, vals, strict=True)
+        ]
+        dflt = default_polarizability(
+            rec.mol, dict(zip(_SCHEME_KEYS, vals, strict=True)), rec.compound
+        )
+        row = [
+            rec.compound,
+            rec.smiles,
+            _fmt(m_avg),
+            _fmt(m_mono),
+            str(n_el),
+            _fmt(dflt.alpha_A3),
+            _fmt(dflt.err_A3),
+            dflt.scheme,
+        ]
+        for v, e in zip(vals, errs, strict=True):
+            row += [_fmt(v), _fmt(e)]
+        row += [";".join(flags), dflt.structure_class, dflt.method, dflt.err_method]
+        note = ""
+        if dipoles:
+            try:
+                ens = conformer_ensemble(
+                    rec.mol,
+                    rec.compound,
+                    n_conformers=conformers,
+                    seed=seed,
+                    charge_model=charge_model,
+                )
+            except CalculationTooBigError as exc:
+                # bounded work: the additive estimates stand, the row says why no dipole
+                note = str(exc)
+                row += ["", "0", "", _fmt(float(temperature_K)), "", ""]
+            else:
+                mu = ens.rms_dipole_D(temperature_K)
+                row += [
+                    _fmt(mu),
+                    str(len(ens.energies_kcal_mol)),
+                    ens.charge_model,
+                    _fmt(float(temperature_K)),
+                    _fmt(dipole_error_D(mu, dflt.structure_class)),
+                    DIPOLE_METHOD,
+                ]
+        return [*row, "ok", note, *tail], True
+    except (CompoundError, ValueError, RuntimeError) as exc:
+        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        return [*failed, "failed", f"compound {rec.compound!r}: {msg}", *tail], False
 
 
 def _write_csv_atomic(out: Path, header: list[str], rows: Iterable[list[str]]) -> None:

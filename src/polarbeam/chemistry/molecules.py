@@ -13,10 +13,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from rdkit import Chem, rdBase
-from rdkit.Chem import Descriptors, rdMolDescriptors
-
+from polarbeam._util.optional import lazy
 from polarbeam.errors import CompoundError, InputError
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
+rdBase = lazy("rdkit.rdBase", "reading molecules (SMILES, SDF)")
+Descriptors = lazy("rdkit.Chem.Descriptors", "reading molecules (SMILES, SDF)")
+rdMolDescriptors = lazy("rdkit.Chem.rdMolDescriptors", "reading molecules (SMILES, SDF)")
 
 __all__ = [
     "StructureRecord",

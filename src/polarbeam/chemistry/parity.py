@@ -17,10 +17,12 @@ import math
 from collections.abc import Iterable, Sequence
 
 import numpy as np
-import pandas as pd
 
+from polarbeam._util.optional import lazy
 from polarbeam.constants import alpha_a3_from_si, langevin_debye_si, si_from_debye
 from polarbeam.errors import InputError
+
+pd = lazy("pandas", "reading and writing tables")
 
 __all__ = [
     "COMPARISON_COLUMNS",

@@ -22,9 +22,10 @@ import math
 from dataclasses import dataclass
 from functools import lru_cache
 
-from rdkit import Chem, rdBase
+from polarbeam._util.optional import lazy, require
 
-from polarbeam._util.optional import require
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
+rdBase = lazy("rdkit.rdBase", "reading molecules (SMILES, SDF)")
 
 __all__ = [
     "CCCBDB_MAX_HEAVY_ATOMS",

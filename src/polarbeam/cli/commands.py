@@ -171,6 +171,9 @@ def estimate(
         "300 K",
         help='temperature of the Boltzmann average, "300 K" (a bare number is in K)',
     ),
+    jobs: int = typer.Option(
+        1, "--jobs", "-j", min=0, help="processes for --dipoles (default 1; 0: one per core)"
+    ),
 ):
     """Structure-based estimates (additive α, mass, dipoles) for a library without measurements."""
     try:
@@ -181,6 +184,7 @@ def estimate(
             conformers=conformers,
             seed=seed,
             temperature_K=pb.parse_temperature(temperature),
+            jobs=jobs,
         )
     except PolarbeamError as exc:
         _fail(exc)

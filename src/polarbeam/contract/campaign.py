@@ -817,7 +817,7 @@ def load_campaign(path: str | Path) -> Campaign:
     if computed is not None and not computed.is_file():
         raise InputError(f"{computed}: computed-values file not found ([data] computed)")
     if computed is not None:  # an unreadable file is found now, before the analysis starts
-        read_computed(computed, failures=[])
+        read_computed(computed, failures=[], as_frame=False)
     patterns = doc.get("data", {}).get("computed_outputs", [])
     if isinstance(patterns, str):
         patterns = [patterns]

@@ -17,9 +17,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import least_squares
 from threadpoolctl import threadpool_limits
 
+from polarbeam._util.optional import lazy
 from polarbeam.beam.distributions import GaussianVelocity
 from polarbeam.beam.rotors.profiles import (
     Profile,
@@ -29,6 +29,8 @@ from polarbeam.beam.rotors.profiles import (
 )
 from polarbeam.constants import ANGSTROM3_SI, si_from_debye
 from polarbeam.errors import CompoundError, FitError
+
+_optimize = lazy("scipy.optimize", "numerical routines")
 
 __all__ = [
     "Profile",
@@ -250,7 +252,7 @@ def fit_profiles(
             trial[0] = min(max(t0, lo[0] + 1e-9), hi[0] - 1e-9)
             scores.append((float(np.sum(resid(trial) ** 2)), trial[0]))
         theta0[0] = min(scores)[1]
-        res = least_squares(resid, theta0, bounds=(lo, hi), x_scale="jac", diff_step=1e-5)
+        res = _optimize.least_squares(resid, theta0, bounds=(lo, hi), x_scale="jac", diff_step=1e-5)
         final = model(res.x)
     if not res.success:
         raise FitError(f"compound {name!r}: the profile fit did not converge ({res.message})")

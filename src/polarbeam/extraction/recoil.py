@@ -42,12 +42,11 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-import lmfit
 import numpy as np
 import uncertainties
-from scipy import stats
 from uncertainties import UFloat, ufloat
 
+from polarbeam._util.optional import lazy
 from polarbeam.beam.photon_recoil import (
     gaussian_crossing_length,
     gaussian_effective_area,
@@ -70,6 +69,9 @@ from polarbeam.results.recoil import (
     std_devs,
 )
 from polarbeam.uncertain import FIT_TAG
+
+lmfit = lazy("lmfit", "fitting series")
+stats = lazy("scipy.stats", "numerical routines")
 
 __all__ = [
     "analyze_recoil",

@@ -16,7 +16,11 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import linalg, special
+
+from polarbeam._util.optional import lazy
+
+linalg = lazy("scipy.linalg", "numerical routines")
+special = lazy("scipy.special", "numerical routines")
 
 __all__ = [
     "common_covariance",

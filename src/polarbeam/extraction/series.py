@@ -19,11 +19,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-import lmfit
 import numpy as np
 import uncertainties
-from scipy import stats
 
+from polarbeam._util.optional import lazy
 from polarbeam.beam.distributions import VelocityDistribution, distribution_from_moments
 from polarbeam.beam.velocity import averaged_phasor_phase, mean_inverse_square
 from polarbeam.constants import ANGSTROM3_SI
@@ -31,6 +30,9 @@ from polarbeam.contract.campaign import SeriesData
 from polarbeam.errors import FitError
 from polarbeam.extraction.whitening import whitener
 from polarbeam.uncertain import FIT_TAG
+
+lmfit = lazy("lmfit", "fitting series")
+stats = lazy("scipy.stats", "numerical routines")
 
 __all__ = [
     "CURVE_POINTS",

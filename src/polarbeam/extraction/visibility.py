@@ -25,9 +25,9 @@ import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy import optimize, special
 from uncertainties import correlated_values, ufloat
 
+from polarbeam._util.optional import lazy
 from polarbeam.beam.distributions import GaussianVelocity
 from polarbeam.beam.talbot import absorption_cross_section
 from polarbeam.constants import AMU, ANGSTROM3_SI
@@ -38,6 +38,9 @@ from polarbeam.results.visibility import (
     OpticalResult,
     VisibilityCurve,
 )
+
+optimize = lazy("scipy.optimize", "numerical routines")
+special = lazy("scipy.special", "numerical routines")
 
 __all__ = [
     "LIKELIHOOD_THRESHOLD",

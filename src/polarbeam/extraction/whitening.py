@@ -14,7 +14,11 @@ from __future__ import annotations
 from collections.abc import Callable
 
 import numpy as np
-from scipy import linalg, sparse
+
+from polarbeam._util.optional import lazy
+
+linalg = lazy("scipy.linalg", "numerical routines")
+sparse = lazy("scipy.sparse", "numerical routines")
 
 __all__ = ["DENSE_LIMIT", "bandwidth", "whitener"]
 

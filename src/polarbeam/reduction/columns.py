@@ -13,11 +13,12 @@ from __future__ import annotations
 import math
 
 import numpy as np
-import pandas as pd
 
-from polarbeam._util.optional import require
+from polarbeam._util.optional import lazy, require
 from polarbeam._util.text import column_hints, other_separator
 from polarbeam.errors import InputError, RowValueError
+
+pd = lazy("pandas", "reading and writing tables")
 
 __all__ = [
     "CARRIED_COLUMNS",

@@ -23,11 +23,13 @@ from typing import Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import sparse
 
+from polarbeam._util.optional import lazy
 from polarbeam.errors import InputError
 from polarbeam.reduction.flags import NO_REFERENCE_AFTER, NO_REFERENCE_BEFORE
 from polarbeam.reduction.groups import pairs_within_groups
+
+sparse = lazy("scipy.sparse", "numerical routines")
 
 __all__ = [
     "SymmetricTriplets",

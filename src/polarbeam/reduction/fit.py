@@ -47,11 +47,9 @@ from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
-import pandas as pd
 from numpy.typing import ArrayLike
-from scipy import stats
 
-from polarbeam._util.optional import has, require
+from polarbeam._util.optional import has, lazy, require
 from polarbeam.errors import InputError
 from polarbeam.reduction.flags import (
     FLAG_NAMES,
@@ -65,6 +63,9 @@ from polarbeam.reduction.flags import (
 )
 from polarbeam.reduction.groups import TWO_PI, wrap
 from polarbeam.reduction.linalg import Sym6, cofactors6, inv6, quad6, solve6, sym3, sym6_of
+
+pd = lazy("pandas", "reading and writing tables")
+stats = lazy("scipy.stats", "numerical routines")
 
 __all__ = ["FitSettings", "ScanFits", "fit_scans", "fit_sorted"]
 

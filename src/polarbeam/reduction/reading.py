@@ -11,9 +11,7 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
-import pandas as pd
-
-from polarbeam._util.optional import has, require
+from polarbeam._util.optional import has, lazy, require
 from polarbeam.errors import InputError, MissingExtraError, RowValueError
 from polarbeam.reduction.columns import (
     INPUT_COLUMNS,
@@ -22,6 +20,8 @@ from polarbeam.reduction.columns import (
     PER_SCAN_COLUMNS,
     validate_scans,
 )
+
+pd = lazy("pandas", "reading and writing tables")
 
 __all__ = ["read_scans", "read_table"]
 

@@ -30,8 +30,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
+from polarbeam._util.optional import lazy
 from polarbeam.errors import InputError, RowValueError
 from polarbeam.reduction.branches import choose_branches, grouped_branches
 from polarbeam.reduction.columns import (
@@ -60,6 +60,8 @@ from polarbeam.reduction.noise import (
 )
 from polarbeam.reduction.reading import read_table
 from polarbeam.reduction.result import DenseOnAccess, ReducedPhases, SeriesKey
+
+pd = lazy("pandas", "reading and writing tables")
 
 __all__ = ["reduce_file", "reduce_table"]
 

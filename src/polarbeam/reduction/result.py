@@ -7,11 +7,13 @@ from dataclasses import dataclass, field
 from html import escape
 
 import numpy as np
-import pandas as pd
 
+from polarbeam._util.optional import lazy
 from polarbeam.reduction.drift import SymmetricTriplets
 from polarbeam.reduction.fit import ScanFits
 from polarbeam.reduction.noise import NoiseEstimate
+
+pd = lazy("pandas", "reading and writing tables")
 
 __all__ = ["DenseOnAccess", "ReducedPhases", "SeriesKey"]
 

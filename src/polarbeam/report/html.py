@@ -29,6 +29,7 @@ from polarbeam.report.campaign_figures import (
     recoil_fit_figure,
     recoil_spectrum_figure,
 )
+from polarbeam.report.figure_cache import content_key, store_key, stored_figures
 from polarbeam.report.figures import (
     compound_figures,
     have_matplotlib,
@@ -409,11 +410,20 @@ def render_html(
     def drawn(make, stem, *args):
         if not plots:
             return None
+        key = content_key(make.__name__, *args) if fdir is not None else None
+        stored = stored_figures(fdir, stem, key) if key is not None else None
+        if stored is not None and "figure" in stored:
+            return place(*stored["figure"], stem)  # same inputs as on disk: not redrawn
         try:
             fig = make(*args)
         except Exception:  # a figure that cannot be drawn must not cost the whole report
             return None
-        return None if fig is None else render(fig, stem)
+        if fig is None:
+            return None
+        out = render(fig, stem)
+        if key is not None:
+            store_key(fdir, stem, key, {"figure": stem})
+        return out
 
     nav = ['<a href="#summary">Summary</a>']
     if deflection:
@@ -488,14 +498,20 @@ def render_html(
         for i in idx:
             c = result.compounds[i]
             stem = safe_name(c.compound)
+            key = content_key("compound_figures", c) if plots and fdir is not None else None
+            stored = stored_figures(fdir, stem, key) if key is not None else None
             if i in rendered:
                 made = rendered[i]
+            elif stored is not None:
+                made = stored  # same inputs as the figures on disk: not redrawn
             else:
                 try:
                     made = compound_figure_files(c) if plots else {}
                 except Exception:  # a figure that cannot be drawn must not cost the whole report
                     made = {}
             figs = {kind: place(svg, png, f"{stem}-{kind}") for kind, (svg, png) in made.items()}
+            if key is not None and made:
+                store_key(fdir, stem, key, {kind: f"{stem}-{kind}" for kind in made})
             parts.append(_compound_section(i, c, figs))
         parts.append("</section>")
     elif not plots:

@@ -13,11 +13,11 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import pandas as pd
 import uncertainties
 from uncertainties import UFloat
 
 from polarbeam._util.cautions import CAUTIONS
+from polarbeam._util.optional import lazy
 from polarbeam._util.text import finite_or_none
 from polarbeam._version import __version__
 from polarbeam.constants import alpha_a3_from_si, alpha_au_from_si, debye_from_si
@@ -26,6 +26,8 @@ from polarbeam.quantities import format_value_error
 from polarbeam.results.profiles import ProfileRecord
 from polarbeam.results.velocity import VelocityRecord
 from polarbeam.uncertain import variance_budget
+
+pd = lazy("pandas", "reading and writing tables")
 
 __all__ = [
     "CampaignResult",

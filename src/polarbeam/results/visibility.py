@@ -11,12 +11,14 @@ from dataclasses import dataclass, field, fields
 from typing import Any
 
 import numpy as np
-import pandas as pd
 from uncertainties import UFloat
 
+from polarbeam._util.optional import lazy
 from polarbeam.results.objects import CampaignResult
 from polarbeam.results.recoil import RecoilCampaignResult
 from polarbeam.uncertain import variance_budget
+
+pd = lazy("pandas", "reading and writing tables")
 
 __all__ = [
     "OPTICAL_COLUMNS",

@@ -23,10 +23,12 @@ from collections import Counter
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 from uncertainties import UFloat
 
+from polarbeam._util.optional import lazy
 from polarbeam.constants import ANGSTROM3_SI, BOLTZMANN
+
+stats = lazy("scipy.stats", "numerical routines")
 
 __all__ = [
     "DebyeFit",

@@ -19,7 +19,11 @@ import math
 from dataclasses import dataclass
 from functools import lru_cache
 
-from scipy import optimize, stats
+from polarbeam._util.optional import lazy
+
+optimize = lazy("scipy.optimize", "numerical routines")
+stats = lazy("scipy.stats", "numerical routines")
+
 
 __all__ = ["BoundedInterval", "acceptance_region", "unified_interval"]
 

@@ -36,7 +36,10 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.special import ellipk
+
+from polarbeam._util.optional import lazy
+
+_special = lazy("scipy.special", "numerical routines")
 
 __all__ = [
     "classical_asymmetric_ratio",
@@ -130,7 +133,7 @@ def _orbit_mean_projection(n, consts, direction):
         den = (hi - i2) * (m2[circ] - e2 * lo)
         with np.errstate(divide="ignore", invalid="ignore"):
             k2 = np.clip(np.where(den > 0, num / den, 1.0), 0.0, 1.0)
-            kk = ellipk(k2)
+            kk = _special.ellipk(k2)
             mean = np.where(np.isfinite(kk), np.sqrt(np.clip(amp2, 0, None)) * np.pi / (2 * kk), 0)
         out[circ] = sgn * mean * direction[axis]
     return out

@@ -22,7 +22,10 @@ the tests against identities that do not depend on a phase convention):
 from __future__ import annotations
 
 import numpy as np
-from scipy import sparse
+
+from polarbeam._util.optional import lazy
+
+sparse = lazy("scipy.sparse", "numerical routines")
 
 __all__ = [
     "basis_states",

@@ -19,9 +19,11 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import erf
 
+from polarbeam._util.optional import lazy
 from polarbeam.constants import BOLTZMANN
+
+_special = lazy("scipy.special", "numerical routines")
 
 __all__ = [
     "Profile",
@@ -92,7 +94,7 @@ def expected_counts(
     def bin_integral(offset):
         lo = (x[:, None] - 0.5 * bin_width - centre - offset) / s2
         hi = (x[:, None] + 0.5 * bin_width - centre - offset) / s2
-        return 0.5 * (erf(hi) - erf(lo))
+        return 0.5 * (_special.erf(hi) - _special.erf(lo))
 
     if shifts is None:
         return background + amplitude * bin_integral(np.zeros(1))[:, 0]

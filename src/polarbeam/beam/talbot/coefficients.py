@@ -35,7 +35,11 @@ import math
 from typing import Literal
 
 import numpy as np
-from scipy import integrate, special
+
+from polarbeam._util.optional import lazy
+
+integrate = lazy("scipy.integrate", "numerical routines")
+special = lazy("scipy.special", "numerical routines")
 
 __all__ = [
     "ABSORBED_CHOICES",

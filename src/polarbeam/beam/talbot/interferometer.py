@@ -15,8 +15,8 @@ from typing import Literal
 
 import numpy as np
 from scipy import constants as _sc
-from scipy import special
 
+from polarbeam._util.optional import lazy
 from polarbeam.beam.distributions import GaussianVelocity, VelocityDistribution
 from polarbeam.beam.talbot.coefficients import (
     ABSORBED_CHOICES,
@@ -26,6 +26,8 @@ from polarbeam.beam.talbot.coefficients import (
     slit_coefficient,
 )
 from polarbeam.beam.talbot.light import mean_absorbed_photons, phase_amplitude
+
+special = lazy("scipy.special", "numerical routines")
 
 __all__ = [
     "LightGrating",

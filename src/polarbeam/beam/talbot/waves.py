@@ -19,9 +19,11 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import stats
 
+from polarbeam._util.optional import lazy
 from polarbeam.beam.talbot.coefficients import slit_coefficient
+
+stats = lazy("scipy.stats", "numerical routines")
 
 __all__ = ["ray_harmonics", "wave_harmonics"]
 

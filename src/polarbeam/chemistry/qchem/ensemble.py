@@ -21,12 +21,10 @@ from pathlib import Path
 from typing import Any, Literal
 
 import numpy as np
-from rdkit import Chem, rdBase
-from rdkit.Chem import AllChem
 from scipy import constants as _sc
 
 from polarbeam._util.atomic import write_text_atomic
-from polarbeam._util.optional import require
+from polarbeam._util.optional import lazy, require
 from polarbeam.chemistry.conformers import (
     CONFORMER_TIME_BUDGET_S,
     DEFAULT_SEED,
@@ -48,6 +46,10 @@ from polarbeam.chemistry.qchem.response import AU_DIPOLE_SI
 from polarbeam.chemistry.qchem.scf import run_scf_dipole
 from polarbeam.constants import BOLTZMANN, DEBYE_SI
 from polarbeam.errors import CalculationTooBigError, CompoundError, InputError
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
+rdBase = lazy("rdkit.rdBase", "reading molecules (SMILES, SDF)")
+AllChem = lazy("rdkit.Chem.AllChem", "reading molecules (SMILES, SDF)")
 
 __all__ = [
     "ENERGY_WINDOW_KCAL",

@@ -13,10 +13,13 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-from rdkit import Chem, rdBase
-from rdkit.Chem import AllChem
 
+from polarbeam._util.optional import lazy
 from polarbeam.errors import CompoundError, InputError
+
+Chem = lazy("rdkit.Chem", "reading molecules (SMILES, SDF)")
+rdBase = lazy("rdkit.rdBase", "reading molecules (SMILES, SDF)")
+AllChem = lazy("rdkit.Chem.AllChem", "reading molecules (SMILES, SDF)")
 
 __all__ = [
     "DEFAULT_SEED",

@@ -13,12 +13,14 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field
 
 import numpy as np
-import pandas as pd
 
+from polarbeam._util.optional import lazy
 from polarbeam.chemistry.computed import COMPUTED_COLUMNS, anisotropy
 from polarbeam.chemistry.qchem.geometry import Geometry
 from polarbeam.constants import alpha_a3_from_si, debye_from_si
 from polarbeam.errors import InputError
+
+pd = lazy("pandas", "reading and writing tables")
 
 __all__ = ["RESULT_SCHEMA", "ComputedResult", "results_table"]
 

@@ -10,9 +10,11 @@ vectorised into one :mod:`scipy.sparse` matrix.
 from __future__ import annotations
 
 import numpy as np
-import scipy.sparse as sp
 
+from polarbeam._util.optional import lazy
 from polarbeam.instrument.fields.geometry import CrossSection
+
+sp = lazy("scipy.sparse", "numerical routines")
 
 __all__ = ["assemble"]
 

@@ -16,8 +16,8 @@ from pathlib import Path
 from typing import Literal
 
 import numpy as np
-from scipy.integrate import trapezoid as _trapezoid  # np.trapezoid needs numpy >= 2
 
+from polarbeam._util.optional import lazy
 from polarbeam._util.tables import csv_records, text_problem
 from polarbeam._util.text import NOT_A_TABLE, looks_like_header
 from polarbeam.errors import InputError
@@ -25,6 +25,8 @@ from polarbeam.instrument.fields.checks import finite, fmt_mm
 from polarbeam.instrument.fields.geometry import CrossSection
 from polarbeam.instrument.fields.shapes import BoundaryBox, Polygon
 from polarbeam.instrument.fields.solve import SolverMode, solve_laplace
+
+_integrate = lazy("scipy.integrate", "numerical routines")
 
 __all__ = [
     "FringeResult",
@@ -132,7 +134,7 @@ def _midplane_profile(cs: CrossSection, cells: tuple[int, int], solver: str):
     E = np.abs((sol.phi[j0 + 1] - sol.phi[j0 - 1]) / (2 * sol.hy))
     Ec = float(np.interp(0.0, sol.x, E))
     g_rel = (E / Ec) ** 2
-    return sol.x, g_rel, float(_trapezoid(g_rel, sol.x))
+    return sol.x, g_rel, float(_integrate.trapezoid(g_rel, sol.x))
 
 
 def fringe_extension_numerical(
@@ -280,7 +282,7 @@ def effective_length_from_map(
     ref = float(g.max()) if reference is None else finite(reference, f"{where} reference")
     if ref <= 0:
         raise InputError(f"{where}: expected a positive reference field factor, found {ref!r}")
-    Leff = float(_trapezoid(g, z)) / ref
+    Leff = float(_integrate.trapezoid(g, z)) / ref
     return FringeResult(math.nan, Leff, math.nan, math.nan, z, g / ref, f"map integral ({where})")
 
 

@@ -12,12 +12,14 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.interpolate import RectBivariateSpline
 
+from polarbeam._util.optional import lazy
 from polarbeam.errors import InputError
 from polarbeam.instrument.fields.checks import finite, fmt_mm
 from polarbeam.instrument.fields.geometry import CrossSection
 from polarbeam.instrument.fields.shapes import BoundaryBox
+
+_interpolate = lazy("scipy.interpolate", "numerical routines")
 
 __all__ = ["FieldSolution", "grid_shape"]
 
@@ -109,7 +111,7 @@ class FieldSolution:
         ys = self.y[j0 + 1 : j1]
         out = {}
         for k, v in d.items():
-            spl = RectBivariateSpline(ys, xs, v, kx=3, ky=3, s=0)
+            spl = _interpolate.RectBivariateSpline(ys, xs, v, kx=3, ky=3, s=0)
             out[k] = spl.ev(py, px)
         return out
 
@@ -133,7 +135,7 @@ class FieldSolution:
 
     def potential_at(self, px, py):
         """Bicubic interpolation of ``phi`` (use only away from electrodes)."""
-        spl = RectBivariateSpline(self.y, self.x, self.phi, kx=3, ky=3, s=0)
+        spl = _interpolate.RectBivariateSpline(self.y, self.x, self.phi, kx=3, ky=3, s=0)
         return spl.ev(np.asarray(py, dtype=float), np.asarray(px, dtype=float))
 
 

@@ -11,13 +11,14 @@ import time
 from typing import Literal
 
 import numpy as np
-import scipy.sparse.linalg as spla
 
-from polarbeam._util.optional import has, require
+from polarbeam._util.optional import has, lazy, require
 from polarbeam.errors import InputError
 from polarbeam.instrument.fields.discretise import assemble
 from polarbeam.instrument.fields.geometry import CrossSection
 from polarbeam.instrument.fields.grid import FieldSolution, grid_shape
+
+spla = lazy("scipy.sparse.linalg", "numerical routines")
 
 __all__ = ["DIRECT_SOLVER_LIMIT", "BoundaryMode", "SolverMode", "solve_laplace"]
 
