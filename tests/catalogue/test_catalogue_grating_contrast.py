@@ -89,6 +89,24 @@ def _drop(column: str):
     return fn
 
 
+def _both(*fns):
+    def fn(rows):
+        for f in fns:
+            rows = f(rows)
+        return rows
+
+    return fn
+
+
+def _defaulted(folder: Path) -> None:
+    """An empty alpha_opt_A3 with a structure: the stated default (the structure's additive
+    static α) is used, the compound is analysed and the campaign notes say so."""
+    props = _props(folder)
+    assert all(p["status"] != "failed" for p in props.values()), props
+    text = (folder / "out" / "results.json").read_text(encoding="utf-8")
+    assert "cmp-1 has no alpha_opt_A3; the light grating's contrast uses the structure's" in text
+
+
 def _props(folder: Path) -> dict[str, dict[str, str]]:
     with (folder / "out" / "properties.csv").open(newline="", encoding="utf-8") as h:
         return {r["compound"]: r for r in csv.DictReader(h)}
@@ -119,8 +137,19 @@ CASES = [
         None,
         _fails_first(
             "compounds.csv line 2: column 'alpha_opt_A3' expected the optical polarizability in "
-            "Å³ (> 0) for the light grating's contrast per velocity, found ''"
+            "Å³ (> 0, or a smiles for the structure's default) for the light grating's contrast "
+            "per velocity, found ''"
         ),
+    ),
+    Case(
+        "optical-alpha-default-from-structure",
+        _edit_csv(
+            "compounds.csv",
+            _both(_set("alpha_opt_A3", "cmp-1", ""), _set("smiles", "cmp-1", "c1ccc2ccccc2c1")),
+        ),
+        0,
+        None,
+        _defaulted,
     ),
     Case(
         "optical-alpha-negative",

@@ -11,7 +11,12 @@ the deflection phasor multiplies into the class weights (docs/visibility.md §11
   keep no model contrast and the campaign gets a note), and the compound's optical
   polarizability ``alpha_opt_A3`` (Re α at the laser wavelength, Å³) and absorption
   cross-section ``sigma_abs_m2`` (default 0: no absorption) in compounds.csv — the columns the
-  planner reads, and the values optical.csv reports for a visibility campaign.
+  planner reads, and the values optical.csv reports for a visibility campaign. **Stated default**
+  for an empty ``alpha_opt_A3``: the structure's additive static polarizability (the default
+  scheme of :func:`polarbeam.chemistry.estimate`, from the compound's ``smiles``), which is the
+  optical value far from any absorption band (the electronic part of α barely disperses below
+  the first band); the campaign notes say which compounds use it. Without a structure the
+  compound fails with one line.
 
 A ``contrast`` column of velocities.csv, where given, takes precedence over the model. A missing
 or bad value fails its compound only, with one line naming the file, line and column.
@@ -25,12 +30,13 @@ from pathlib import Path
 
 from polarbeam._util.tables import read_table
 from polarbeam.beam.talbot import GratingContrast
+from polarbeam.chemistry.estimates import estimate
 from polarbeam.constants import ANGSTROM3_SI
 from polarbeam.contract.schema import SeriesData
 from polarbeam.contract.visibility import parse_gratings
 from polarbeam.errors import CompoundError, InputError
 
-__all__ = ["GRATING_CONTRAST_COLUMNS", "attach_grating_contrast"]
+__all__ = ["GRATING_CONTRAST_COLUMNS", "attach_grating_contrast", "default_optical_alpha_A3"]
 
 #: optional columns read here: shifts.csv (power), compounds.csv (optical α, σ_abs)
 GRATING_CONTRAST_COLUMNS = {
@@ -50,17 +56,40 @@ def _number(raw: str, where: str, column: str, expected: str, minimum: float, st
     return x
 
 
-def _optical(entry: dict, compounds_file: str, light: bool) -> tuple[float, float]:
+def default_optical_alpha_A3(name: str, smiles: str) -> float | None:
+    """The stated default optical polarizability (Å³) of a compound without ``alpha_opt_A3``:
+    its structure's additive static α, or None without a usable structure."""
+    if not (smiles or "").strip():
+        return None
+    value = estimate(smiles.strip(), name).alpha_additive_A3
+    return value if math.isfinite(value) and value > 0 else None
+
+
+def _optical(
+    entry: dict, compounds_file: str, light: bool, name: str = "?", notes: list[str] | None = None
+) -> tuple[float, float]:
     """(Re α SI, σ_abs m²) of a compound from its compounds.csv row."""
     if not light:
         return 0.0, 0.0
     extra = entry.get("extra", {})
     where = f"{compounds_file} line {entry.get('line', '?')}"
+    raw = extra.get("alpha_opt_A3", "")
+    if not (raw or "").strip():
+        default = default_optical_alpha_A3(name, extra.get("smiles", ""))
+        if default is not None:
+            raw = repr(default)
+            if notes is not None:
+                notes.append(
+                    f"{compounds_file} line {entry.get('line', '?')}: {name} has no "
+                    f"alpha_opt_A3; the light grating's contrast uses the structure's additive "
+                    f"static α, {default:.3g} Å³ (the stated default; docs/visibility.md §11)"
+                )
     alpha = _number(
-        extra.get("alpha_opt_A3", ""),
+        raw,
         where,
         "alpha_opt_A3",
-        "the optical polarizability in Å³ (> 0) for the light grating's contrast per velocity",
+        "the optical polarizability in Å³ (> 0, or a smiles for the structure's default) for "
+        "the light grating's contrast per velocity",
         0.0,
         True,
     )
@@ -132,7 +161,7 @@ def attach_grating_contrast(
             out[name] = items
             continue
         try:
-            alpha, sigma = _optical(entry, compounds_file, spec.light)
+            alpha, sigma = _optical(entry, compounds_file, spec.light, name, notes)
             new = []
             for s in items:
                 power = _series_power(s, cells or {}, shifts_path.name) if spec.light else 0.0
