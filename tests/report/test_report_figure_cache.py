@@ -35,9 +35,9 @@ def _counting(monkeypatch):
     drawn = []
     original = html_report.compound_figure_files
 
-    def counted(c):
+    def counted(c, *pdf_stem):
         drawn.append(c.compound)
-        return original(c)
+        return original(c, *pdf_stem)
 
     monkeypatch.setattr(html_report, "compound_figure_files", counted)
     return drawn
@@ -83,3 +83,41 @@ def test_a_missing_file_means_a_fresh_drawing(result, tmp_path, monkeypatch):
     write_html(result, tmp_path)
     assert drawn == ["cache-a"]
     assert next((tmp_path / "figures").glob("cache-a*-series.png")).stat().st_size > 0
+
+
+def test_pdf_on_request(result, tmp_path, monkeypatch):
+    """``pdf=True`` (``analyze --pdf``) adds a PDF of every figure; without it none is written;
+    a cached figure whose PDF is missing is drawn again."""
+    drawn = _counting(monkeypatch)
+    write_html(result, tmp_path)
+    assert not list((tmp_path / "figures").glob("*.pdf"))
+    drawn.clear()
+    write_html(result, tmp_path, pdf=True)
+    assert drawn == ["cache-a", "cache-b"]  # the SVG/PNG were cached, the PDFs were not there
+    svgs = {p.stem for p in (tmp_path / "figures").glob("*.svg")}
+    pdfs = {p.stem for p in (tmp_path / "figures").glob("*.pdf")}
+    assert pdfs == svgs and pdfs
+    for p in (tmp_path / "figures").glob("*.pdf"):
+        assert p.read_bytes()[:5] == b"%PDF-"
+    drawn.clear()
+    write_html(result, tmp_path, pdf=True)
+    assert drawn == []  # PDFs present and inputs unchanged: nothing redrawn
+
+
+def test_analyze_pdf_option_writes_pdfs(tmp_path):
+    from typer.testing import CliRunner
+
+    from polarbeam.cli.commands import app
+
+    comps = [CompoundTruth("pdf-a", 150.0, 25.0, 2.0, (300.0, 600.0))]
+    simulate_campaign(tmp_path / "c", comps, spec=InstrumentSpec.talbot_lau(), seed=5)
+    camp = str(tmp_path / "c" / "campaign.toml")
+    runner = CliRunner()
+    r = runner.invoke(app, ["analyze", camp, "--out", str(tmp_path / "plain"), "--quiet"])
+    assert r.exit_code == 0, r.output
+    assert not list((tmp_path / "plain" / "figures").glob("*.pdf"))
+    r = runner.invoke(app, ["analyze", camp, "--out", str(tmp_path / "o"), "--quiet", "--pdf"])
+    assert r.exit_code == 0, r.output
+    pdfs = sorted(p.name for p in (tmp_path / "o" / "figures").glob("*.pdf"))
+    svgs = sorted(p.name for p in (tmp_path / "o" / "figures").glob("*.svg"))
+    assert pdfs and [p[:-4] for p in pdfs] == [s[:-4] for s in svgs]

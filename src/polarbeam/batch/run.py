@@ -85,6 +85,7 @@ def _run_campaign(
     settings: Mapping[str, Any],
     html: bool,
     report_details: int | None,
+    pdf: bool = False,
 ) -> CampaignRun:
     c = load_campaign(path)
     if (
@@ -95,7 +96,9 @@ def _run_campaign(
     ):
         # campaign-level fits (reference calibration, photon recoil) tie the compounds
         # together: analyse the campaign in one piece
-        return _run_whole_campaign(name, path, out, c, html=html, report_details=report_details)
+        return _run_whole_campaign(
+            name, path, out, c, html=html, report_details=report_details, pdf=pdf
+        )
     ctx = build_context(c)
     key = campaign_key(c, settings)
     hashes = compound_hashes(c, key)
@@ -168,7 +171,7 @@ def _run_campaign(
     compounds = tuple(done[n] for n in names)
     result = computed_comparison(c, make_result(c, compounds, ctx))
     rendered: dict[int, dict] = {}
-    if html:
+    if html and not pdf:  # PDFs are drawn with the report, in this process
         idx = [i for i, n in enumerate(names) if n in kept and compounds[i].status != "failed"]
         idx = [i for i in idx if not figures_unchanged(out, result.compounds[i])]
         if idx and not isinstance(runner, InlineRunner):
@@ -179,7 +182,13 @@ def _run_campaign(
                 if not isinstance(got, BaseException):
                     rendered.update(dict(got))
     write_outputs(
-        result, out, reduction=c.reduction, html=html, details=report_details, rendered=rendered
+        result,
+        out,
+        reduction=c.reduction,
+        html=html,
+        details=report_details,
+        rendered=rendered,
+        pdf=pdf,
     )
     # records of compounds no longer in the campaign go with the other files of the previous run
     # that were not written again (only files polarbeam listed: polarbeam._util.outfolder)
@@ -195,11 +204,13 @@ def _run_campaign(
     return CampaignRun(name, path, out, result, None, reused, len(todo))
 
 
-def _run_whole_campaign(name, path, out, c, *, html: bool, report_details) -> CampaignRun:
+def _run_whole_campaign(
+    name, path, out, c, *, html: bool, report_details, pdf: bool = False
+) -> CampaignRun:
     """Analyse a campaign whose compounds are coupled (calibration, recoil) in one process."""
     out.mkdir(parents=True, exist_ok=True)
     result = computed_comparison(c, analyze_campaign(c))
-    write_outputs(result, out, reduction=c.reduction, html=html, details=report_details)
+    write_outputs(result, out, reduction=c.reduction, html=html, details=report_details, pdf=pdf)
     write_state(
         out,
         complete=True,
@@ -224,6 +235,7 @@ def run_batch(
     progress: Callable[[ProgressEvent], None] | None = None,
     html: bool = True,
     report_details: int | None = None,
+    pdf: bool = False,
     settings: Mapping[str, Any] | None = None,
     on_runner: Callable[[Any], None] | None = None,
 ) -> BatchOutcome:
@@ -249,6 +261,8 @@ def run_batch(
     report_details
         How many compounds get figures in ``report.html`` and ``figures/`` (None: the default of
         :func:`polarbeam.report.html.write_html`; -1: all).
+    pdf
+        Also write every figure as PDF in ``figures/`` (drawn with the report, in this process).
     settings
         Extra analysis settings that enter the input hashes.
 
@@ -286,6 +300,7 @@ def run_batch(
                             settings=settings,
                             html=html,
                             report_details=report_details,
+                            pdf=pdf,
                         )
                     runs.append(run)
                 except PolarbeamError as exc:
@@ -310,6 +325,7 @@ def run_cli(
     dashboard: bool = False,
     resume: bool = False,
     report_details: int | None = None,
+    pdf: bool = False,
     echo: Callable[..., None] = print,
     table_limit: int = 40,
 ) -> int:
@@ -343,6 +359,7 @@ def run_cli(
             resume=resume,
             progress=bar,
             report_details=report_details,
+            pdf=pdf,
             on_runner=on_runner,
         )
     except KeyboardInterrupt:

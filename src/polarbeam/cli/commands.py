@@ -85,6 +85,9 @@ def analyze(
         "--report-details",
         help="compounds given figures in report.html and figures/ (default 20; -1: all)",
     ),
+    pdf: bool = typer.Option(
+        False, "--pdf", help="also write every figure as PDF in figures/ (SVG and PNG always)"
+    ),
 ):
     """Analyse campaigns: α_eff per series, α and μ per compound, report and budgets."""
     try:
@@ -97,6 +100,7 @@ def analyze(
             dashboard=dashboard,
             resume=resume,
             report_details=report_details,
+            pdf=pdf,
             echo=typer.echo,
         )
     except PolarbeamError as exc:

@@ -21,9 +21,10 @@ def write_outputs(
     html: bool = True,
     details: int | None = None,
     rendered: Mapping[int, Mapping[str, tuple[str, bytes]]] | None = None,
+    pdf: bool = False,
 ) -> None:
     """:func:`write_report`, then ``phases.csv`` when the campaign was reduced from raw scans."""
     with output_folder(out):  # one run at a time; only polarbeam's own files are replaced
-        write_report(result, out, html=html, details=details, rendered=rendered)
+        write_report(result, out, html=html, details=details, rendered=rendered, pdf=pdf)
         if reduction is not None:  # the reduced phases, reusable as a shifts file
             write_phases(reduction, Path(out) / "phases.csv")

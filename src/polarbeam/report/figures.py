@@ -44,6 +44,7 @@ __all__ = [
     "series_figure",
     "styled",
     "time_of_flight_figure",
+    "to_pdf",
     "to_png",
     "to_svg",
     "velocity_figure",
@@ -166,6 +167,16 @@ def to_png(fig, dpi: int = PNG_DPI) -> bytes:
     buf = io.BytesIO()
     with matplotlib.rc_context(getattr(fig, "_polarbeam_style", {})):
         fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": "polarbeam"})
+    return buf.getvalue()
+
+
+def to_pdf(fig) -> bytes:
+    """The figure as PDF bytes (vector; no creation date, so a redraw gives the same file)."""
+    import matplotlib
+
+    buf = io.BytesIO()
+    with matplotlib.rc_context(getattr(fig, "_polarbeam_style", {})):
+        fig.savefig(buf, format="pdf", metadata={"Creator": "polarbeam", "CreationDate": None})
     return buf.getvalue()
 
 

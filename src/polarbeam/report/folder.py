@@ -27,6 +27,7 @@ def write_report(
     html: bool = True,
     details: int | None = None,
     rendered: Mapping[int, Mapping[str, tuple[str, bytes]]] | None = None,
+    pdf: bool = False,
 ) -> None:
     """Write the results folder of ``result``: CSV, JSON, Markdown and (unless ``html=False``)
     ``report.html`` with ``figures/``; ``details`` limits the compounds with figure sections and
@@ -41,7 +42,7 @@ def write_report(
         write_results(result, out)
         writer("velocities")(result, out)  # velocities.csv of time-of-flight fits, when any
         if html:
-            write_html(result, out, details=details, rendered=rendered)
+            write_html(result, out, details=details, rendered=rendered, pdf=pdf)
 
 
 register_writer("markdown", render_markdown)

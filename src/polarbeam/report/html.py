@@ -35,6 +35,7 @@ from polarbeam.report.figures import (
     have_matplotlib,
     parity_figure,
     predictions,
+    to_pdf,
     to_png,
     to_svg,
 )
@@ -346,13 +347,18 @@ def detail_indices(n_compounds: int, details: int | None) -> list[int]:
     return list(range(n_compounds if n < 0 else min(n, n_compounds)))
 
 
-def compound_figure_files(c: CompoundResult) -> dict[str, tuple[str, bytes]]:
-    """{kind: (SVG text, PNG bytes)} of one compound's figures ({} without matplotlib)."""
+def compound_figure_files(
+    c: CompoundResult, pdf_stem: Path | None = None
+) -> dict[str, tuple[str, bytes]]:
+    """{kind: (SVG text, PNG bytes)} of one compound's figures ({} without matplotlib); with
+    ``pdf_stem`` each is also written as ``<pdf_stem>-<kind>.pdf`` (atomically)."""
     if not have_matplotlib() or c.status == "failed":
         return {}
     out = {}
     for kind, fig in compound_figures(c).items():
         out[kind] = (to_svg(fig), to_png(fig))
+        if pdf_stem is not None:
+            write_bytes_atomic(pdf_stem.with_name(f"{pdf_stem.name}-{kind}.pdf"), to_pdf(fig))
         fig.clear()
     return out
 
@@ -364,6 +370,7 @@ def render_html(
     figure_dir: str | Path | None = None,
     rendered: Mapping[int, Mapping[str, tuple[str, bytes]]] | None = None,
     written: set[str] | None = None,
+    pdf: bool = False,
 ) -> str:
     """The report page as a string.
 
@@ -379,6 +386,9 @@ def render_html(
         compound index; the others are made here.
     written
         When given, the names of the files written to ``figure_dir`` are added to it.
+    pdf
+        Also write every figure as PDF in ``figure_dir`` (on request: ``analyze --pdf``); a
+        figure whose PDF is missing is drawn again rather than read back.
     """
     plots = have_matplotlib()
     fdir = Path(figure_dir) if figure_dir is not None else None
@@ -395,8 +405,19 @@ def render_html(
             files = (f"{rel}/{stem}.svg", f"{rel}/{stem}.png")
         return svg, files
 
+    pdf = pdf and fdir is not None
+
+    def has_pdfs(stems) -> bool:
+        return not pdf or all((fdir / f"{s}.pdf").is_file() for s in stems)
+
+    def note_pdfs(stems) -> None:
+        if pdf and written is not None:
+            written.update(f"{s}.pdf" for s in stems)
+
     def render(fig, stem):
         svg, png = to_svg(fig), (to_png(fig) if fdir is not None else b"")
+        if pdf:
+            write_bytes_atomic(fdir / f"{stem}.pdf", to_pdf(fig))
         fig.clear()
         return place(svg, png, stem)
 
@@ -412,7 +433,8 @@ def render_html(
             return None
         key = content_key(make.__name__, *args) if fdir is not None else None
         stored = stored_figures(fdir, stem, key) if key is not None else None
-        if stored is not None and "figure" in stored:
+        if stored is not None and "figure" in stored and has_pdfs([stem]):
+            note_pdfs([stem])
             return place(*stored["figure"], stem)  # same inputs as on disk: not redrawn
         try:
             fig = make(*args)
@@ -421,6 +443,7 @@ def render_html(
         if fig is None:
             return None
         out = render(fig, stem)
+        note_pdfs([stem])
         if key is not None:
             store_key(fdir, stem, key, {"figure": stem})
         return out
@@ -500,15 +523,23 @@ def render_html(
             stem = safe_name(c.compound)
             key = content_key("compound_figures", c) if plots and fdir is not None else None
             stored = stored_figures(fdir, stem, key) if key is not None else None
-            if i in rendered:
+            if stored is not None and not has_pdfs(f"{stem}-{kind}" for kind in stored):
+                stored = None  # PDFs asked for and missing: draw again
+            if i in rendered and not pdf:
                 made = rendered[i]
             elif stored is not None:
                 made = stored  # same inputs as the figures on disk: not redrawn
             else:
                 try:
-                    made = compound_figure_files(c) if plots else {}
+                    if not plots:
+                        made = {}
+                    elif pdf:
+                        made = compound_figure_files(c, fdir / stem)
+                    else:
+                        made = compound_figure_files(c)
                 except Exception:  # a figure that cannot be drawn must not cost the whole report
                     made = {}
+            note_pdfs(f"{stem}-{kind}" for kind in made)
             figs = {kind: place(svg, png, f"{stem}-{kind}") for kind, (svg, png) in made.items()}
             if key is not None and made:
                 store_key(fdir, stem, key, {kind: f"{stem}-{kind}" for kind in made})
@@ -567,15 +598,21 @@ def write_html(
     details: int | None = None,
     figure_files: bool = True,
     rendered: Mapping[int, Mapping[str, tuple[str, bytes]]] | None = None,
+    pdf: bool = False,
 ) -> Path:
-    """Write ``out/report.html`` (and ``out/figures/*.svg|png`` unless ``figure_files=False``)."""
+    """Write ``out/report.html`` (and ``out/figures/*.svg|png`` unless ``figure_files=False``;
+    with ``pdf`` also ``*.pdf``)."""
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
     fdir = out / "figures"
     # figures of compounds no longer shown are the results folder's business: the manifest of
     # polarbeam's files (polarbeam._util.outfolder) removes only those it wrote
     text = render_html(
-        result, details=details, figure_dir=fdir if figure_files else None, rendered=rendered
+        result,
+        details=details,
+        figure_dir=fdir if figure_files else None,
+        rendered=rendered,
+        pdf=pdf,
     )
     target = out / "report.html"
     write_text_atomic(target, text)
