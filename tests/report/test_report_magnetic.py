@@ -167,3 +167,37 @@ def test_curie_figure_draws_chi_dia_at_zero_and_the_line_through_the_points(magn
             assert abs(at - chi) < 3 * err, (c.compound, s.temperature_K)
         labels = [t.get_text() for t in ax.get_legend().get_texts()]
         assert any(re.match(r"moment (=|<) ", t) for t in labels)
+
+
+def test_failed_and_single_temperature_compounds_stay_magnetic(tmp_path):
+    """A compound that fails (negative current) and one measured at one temperature only: the
+    report still shows no stand-ins, and the single series keeps its χ_eff."""
+    src = EXAMPLE.parent
+    for name in ("campaign.toml", "compounds.csv"):
+        (tmp_path / name).write_text((src / name).read_text(encoding="utf-8"), encoding="utf-8")
+    rows = _rows(src / "shifts.csv")
+    first = next(i for i, r in enumerate(rows) if r["compound"] == "MG-301")
+    rows[first]["current_A"] = "-0.5"
+    rows = [r for r in rows if r["compound"] != "MG-201" or float(r["temperature_K"]) == 300]
+    with (tmp_path / "shifts.csv").open("w", newline="", encoding="utf-8") as fh:
+        w = csv.DictWriter(fh, fieldnames=list(rows[0]))
+        w.writeheader()
+        w.writerows(rows)
+    out = tmp_path / "out"
+    result = analyze(tmp_path / "campaign.toml", out=out)
+    status = {c.compound: c.status for c in result.compounds}
+    assert status["MG-301"] == "failed" and status["MG-201"] != "failed"
+    for name in ("report.md", "report.html", "report.tex"):
+        text = (out / name).read_text(encoding="utf-8").lower()
+        assert not [w for w in FORBIDDEN if w.lower() in text], name
+    doc = json.loads((out / "results.json").read_text(encoding="utf-8"))
+    by = {c["compound"]: c for c in doc["compounds"]}
+    assert not any(k.startswith(("alpha", "dipole")) for c in by.values() for k in c)
+    assert "current_A" in by["MG-301"]["message"]
+    single = by["MG-201"]
+    assert single["chi_dia"]["cm3_mol"] is None and single["moment"]["muB"] is None
+    (s,) = single["series"]
+    assert s["chi_eff"]["cm3_mol"] is not None and s["chi_eff"]["err_cm3_mol"] > 0
+    md = (out / "report.md").read_text(encoding="utf-8")
+    chi = value_error_text(s["chi_eff"]["cm3_mol"] * 1e6, s["chi_eff"]["err_cm3_mol"] * 1e6)
+    assert f"| {chi} |" in md
