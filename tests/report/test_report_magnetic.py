@@ -14,6 +14,8 @@ import numpy as np
 import pytest
 
 from polarbeam._util.optional import missing_reason
+from polarbeam.batch.records import encode_compound
+from polarbeam.batch.workers import render_chunk
 from polarbeam.pipeline.analysis import analyze
 from polarbeam.quantities import format_value_error, value_error_text
 
@@ -201,3 +203,16 @@ def test_failed_and_single_temperature_compounds_stay_magnetic(tmp_path):
     md = (out / "report.md").read_text(encoding="utf-8")
     chi = value_error_text(s["chi_eff"]["cm3_mol"] * 1e6, s["chi_eff"]["err_cm3_mol"] * 1e6)
     assert f"| {chi} |" in md
+
+
+def test_batch_workers_draw_the_magnetic_figures(magnetic):
+    """Figures made in worker processes (batch.workers.render_chunk) from compound records are
+    the magnetic ones, as the page made in-process draws them."""
+    result, _ = magnetic
+    items = [(i, encode_compound(c)) for i, c in enumerate(result.compounds)]
+    got = dict(render_chunk(items, True))
+    for i, c in enumerate(result.compounds):
+        assert set(got[i]) == {"series", "curie", "budget"}, c.compound
+        svg, png = got[i]["curie"]
+        assert svg.lstrip().startswith(("<?xml", "<svg")) and png[:4] == b"\x89PNG"
+    assert "debye" in dict(render_chunk(items[:1]))[0]  # the electric default is unchanged

@@ -428,14 +428,12 @@ def render_html(
         When given, each figure is also written there as SVG and PNG (atomically) and linked.
     rendered
         Figures already made (by :func:`compound_figure_files`, e.g. in worker processes), by
-        compound index; the others are made here.
+        compound index, with ``magnetic=True`` for a magnetic campaign; the others are made here.
     written
         When given, the names of the files written to ``figure_dir`` are added to it.
     """
     plots = have_matplotlib()
     kind = _renderers(result)
-    if kind is _MAGNETIC:  # figures made elsewhere (batch workers) are the electric ones
-        rendered = None
     fdir = Path(figure_dir) if figure_dir is not None else None
     rel = fdir.name if fdir is not None else None
     rendered = rendered or {}
