@@ -216,3 +216,17 @@ def test_batch_workers_draw_the_magnetic_figures(magnetic):
         svg, png = got[i]["curie"]
         assert svg.lstrip().startswith(("<?xml", "<svg")) and png[:4] == b"\x89PNG"
     assert "debye" in dict(render_chunk(items[:1]))[0]  # the electric default is unchanged
+
+
+def test_notebook_table_of_a_magnetic_campaign(magnetic):
+    result, out = magnetic
+    page = result._repr_html_()
+    assert "χ_dia (10⁻⁶ cm³/mol)" in page and "moment (μ_B)" in page
+    assert not [w for w in FORBIDDEN if w.lower() in page.lower()]
+    props = {r["compound"]: r for r in _rows(out / "properties.csv")}
+    for c in result.compounds:
+        p = props[c.compound]
+        shown = format_value_error(
+            float(p["chi_dia_cm3_mol"]) * 1e6, float(p["chi_dia_err_cm3_mol"]) * 1e6
+        )
+        assert f"<td>{shown}</td>" in page
