@@ -32,7 +32,16 @@ CHROMIUM = next(
     ),
     None,
 )
-KINDS = ["demo", "demo_scans", "timedomain", "recoil", "recoil/cw", "visibility", "supersonic"]
+KINDS = [
+    "demo",
+    "demo_scans",
+    "timedomain",
+    "recoil",
+    "recoil/cw",
+    "visibility",
+    "supersonic",
+    "magnetic",
+]
 KINDS = [k for k in KINDS if (EXAMPLES / k / "campaign.toml").exists()]
 
 
@@ -103,7 +112,13 @@ def test_every_kind_has_a_full_report(report, tmp_path):
         for c in result.compounds:
             assert c.compound in comp
         assert "<details" in comp and "residual/σ" in comp  # per-point tables, collapsed
-        if any(c.alpha_mu2_correlation is not None for c in result.compounds):
+        if result.deflector_field == "magnetic":  # χ, moments, currents (report/magnetic_html)
+            assert "correlation of χ_dia and C" in comp and "I (A)" in comp
+            assert "uncertainty budget of the moment" in comp
+            for word in ("Å³", "polarizab", " D)", "voltage", "α"):
+                assert word.lower() not in _text(dom).lower(), word
+            assert any(n.endswith("-curie.svg") for n in figs)
+        elif any(c.alpha_mu2_correlation is not None for c in result.compounds):
             assert "correlation of α and ⟨μ²⟩" in comp
             assert "uncertainty budget of μ" in comp or "uncertainty budget of ⟨μ²⟩" in comp
         assert any(n.endswith("-series.svg") for n in figs)

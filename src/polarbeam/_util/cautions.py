@@ -5,6 +5,7 @@ from __future__ import annotations
 
 __all__ = [
     "CAUTIONS",
+    "MAGNETIC_CAUTIONS",
 ]
 
 
@@ -19,4 +20,13 @@ CAUTIONS = (
     "specified for the wavelength and keep beam paths enclosed.",
     "These notes do not replace local codes, the lab's safety rules and the safety officer's "
     "authority; follow licensed practice for electrical, vacuum, laser and chemical work.",
+)
+
+#: A magnetic campaign ([deflector] field = "magnetic"): the magnet in place of the electrodes.
+MAGNETIC_CAUTIONS = (
+    "Strong electromagnets and permanent magnets pull tools, gas bottles and implants "
+    "(pacemakers, clips) with great force, and pulsed magnet currents store large energies in "
+    "coils and capacitor banks: keep ferromagnetic objects and people with implants away, "
+    "interlock the supplies and never open a live coil circuit.",
+    *CAUTIONS[1:],
 )

@@ -177,7 +177,8 @@ def _run_campaign(
         if idx and not isinstance(runner, InlineRunner):
             items = [(i, kept[names[i]]) for i in idx]
             step = max(1, math.ceil(len(items) / (2 * runner.workers)))
-            tasks = [(items[k : k + step],) for k in range(0, len(items), step)]
+            magnetic = result.deflector_field == "magnetic"  # χ and moment figures
+            tasks = [(items[k : k + step], magnetic) for k in range(0, len(items), step)]
             for _, got in runner.run(tasks, render_chunk):
                 if not isinstance(got, BaseException):
                     rendered.update(dict(got))

@@ -101,12 +101,15 @@ def analyze_chunk(
     return out
 
 
-def render_chunk(items: Sequence[tuple[int, dict]]) -> list[tuple[int, dict]]:
-    """Figures of recorded compounds: [(index, {kind: (svg, png)}), ...] (never raises)."""
+def render_chunk(
+    items: Sequence[tuple[int, dict]], magnetic: bool = False
+) -> list[tuple[int, dict]]:
+    """Figures of recorded compounds: [(index, {kind: (svg, png)}), ...] (never raises);
+    ``magnetic``: the figures of a magnetic campaign."""
     out = []
     for i, rec in items:
         try:
-            out.append((i, compound_figure_files(decode_compound(rec))))
+            out.append((i, compound_figure_files(decode_compound(rec), magnetic=magnetic)))
         except Exception:  # a figure that cannot be drawn leaves the section without it
             out.append((i, {}))
     return out

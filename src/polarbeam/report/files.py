@@ -13,14 +13,17 @@ from pathlib import Path
 import numpy as np
 
 from polarbeam._util.atomic import write_text_atomic
-from polarbeam._util.cautions import CAUTIONS
+from polarbeam._util.cautions import CAUTIONS, MAGNETIC_CAUTIONS
 from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE
 from polarbeam.quantities import value_error_text
 from polarbeam.report.latex import latex_table
 from polarbeam.report.magnetic import (
+    MAGNETIC_METHOD_LINES,
     MAGNETIC_PROPERTY_COLUMNS,
     MAGNETIC_SERIES_COLUMNS,
+    magnetic_compound_markdown,
     magnetic_markdown_lines,
+    magnetic_summary,
     magnetic_tables,
     magnetic_terminal_lines,
 )
@@ -100,7 +103,8 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
     only_other = not result.compounds and (
         getattr(result, "recoil", None) is not None or getattr(result, "optical", None) is not None
     )
-    if not only_other and getattr(result, "deflector_field", "electric") == "magnetic":
+    magnetic = getattr(result, "deflector_field", "electric") == "magnetic"  # report/magnetic.py
+    if not only_other and magnetic:
         series, props = magnetic_tables(result.series, result.properties)  # report/magnetic.py
         write_text_atomic(out / "series.csv", _csv(series, MAGNETIC_SERIES_COLUMNS))
         write_text_atomic(out / "properties.csv", _csv(props, MAGNETIC_PROPERTY_COLUMNS))
@@ -109,7 +113,13 @@ def write_results(result: CampaignResult, out: str | Path) -> None:
         write_text_atomic(out / "properties.csv", _csv(result.properties, PROPERTY_COLUMNS))
     write_text_atomic(
         out / "results.json",
-        json.dumps(_clean(result.summary()), indent=1, ensure_ascii=False, allow_nan=False) + "\n",
+        json.dumps(
+            _clean(magnetic_summary(result) if magnetic else result.summary()),
+            indent=1,
+            ensure_ascii=False,
+            allow_nan=False,
+        )
+        + "\n",
     )
     if result.comparison is not None and len(result.comparison):
         write_text_atomic(out / "comparison.csv", _csv(result.comparison.copy(), ()))
@@ -138,12 +148,17 @@ def render_markdown(result: CampaignResult) -> str:
             text += "\n" + "\n".join(optical_markdown_lines(optical)) + "\n"
         return text + "\n".join([*inputs_lines(result), *provenance_lines(result)]) + "\n"
     obs = "phase (rad)" if result.layout in ("talbot-lau", "time-domain") else "shift (m)"
-    lines = [
+    head = [
         f"# {md_escape(result.title)}",
         "",
         f"polarbeam {result.version} · layout `{result.layout}` · deflector `{result.model}` · "
         f"source {md_code(result.source)}",
         "",
+    ]
+    if getattr(result, "deflector_field", "electric") == "magnetic":  # report/magnetic.py
+        return _magnetic_markdown(result, head, obs)
+    lines = [
+        *head,
         "## Summary",
         "",
         "| compound | α (Å³) | μ (D) | status | message |",
@@ -162,8 +177,6 @@ def render_markdown(result: CampaignResult) -> str:
             f"{value_error_text(r['alpha_A3'], r['alpha_err_A3'])} | {dip} | "
             f"{c.status} | {md_escape(c.message)} |"
         )
-    if getattr(result, "deflector_field", "electric") == "magnetic":  # report/magnetic.py
-        lines += ["", *magnetic_markdown_lines(result, md_escape)]
     for note in result.notes:
         lines += ["", f"> {md_escape(note)}"]
     for c in result.compounds:
@@ -243,6 +256,19 @@ def render_markdown(result: CampaignResult) -> str:
         "",
     ]
     lines += [f"- {c}" for c in CAUTIONS]
+    lines += inputs_lines(result) + provenance_lines(result)
+    return "\n".join(lines) + "\n"
+
+
+def _magnetic_markdown(result: CampaignResult, head: list[str], obs: str) -> str:
+    """report.md of a magnetic campaign: the same layout in χ, moments and currents."""
+    lines = [*head, *magnetic_markdown_lines(result, md_escape)]
+    for note in result.notes:
+        lines += ["", f"> {md_escape(note)}"]
+    for c in result.compounds:
+        lines += magnetic_compound_markdown(c, md_escape, obs)
+    lines += ["", "## Notes on the method", ""] + [f"- {m}" for m in MAGNETIC_METHOD_LINES]
+    lines += ["", "## Cautions", ""] + [f"- {c}" for c in MAGNETIC_CAUTIONS]
     lines += inputs_lines(result) + provenance_lines(result)
     return "\n".join(lines) + "\n"
 

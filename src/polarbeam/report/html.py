@@ -14,11 +14,12 @@ from __future__ import annotations
 
 import html
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
 from pathlib import Path
 
 from polarbeam._util.atomic import write_bytes_atomic, write_text_atomic
-from polarbeam._util.cautions import CAUTIONS
+from polarbeam._util.cautions import CAUTIONS, MAGNETIC_CAUTIONS
 from polarbeam._util.text import safe_name
 from polarbeam.chemistry import ELECTRONIC_VS_VIBRATIONAL_NOTE as ELECTRONIC_NOTE
 from polarbeam.constants import alpha_a3_from_si, debye_from_si
@@ -38,6 +39,13 @@ from polarbeam.report.figures import (
     to_pdf,
     to_png,
     to_svg,
+)
+from polarbeam.report.magnetic_html import (
+    MAGNETIC_CAPTIONS,
+    MAGNETIC_METHOD_HTML,
+    magnetic_compound_figures,
+    magnetic_compound_section,
+    magnetic_summary_table,
 )
 from polarbeam.report.sections import (
     computed_section,
@@ -303,11 +311,16 @@ def _predictions_table(c: CompoundResult) -> str:
     )
 
 
-def _figure_html(kind: str, svg: str, files: tuple[str, str] | None) -> str:
+def _figure_html(kind: str, svg: str, files: tuple[str, str] | None, captions=None) -> str:
     links = ""
     if files:
         links = f' Files: <a href="{_e(files[0])}">SVG</a>, <a href="{_e(files[1])}">PNG</a>.'
-    return f"<figure>{svg}<figcaption>{_e(_CAPTIONS.get(kind, ''))}{links}</figcaption></figure>"
+    cap = (captions or _CAPTIONS).get(kind, "")
+    return f"<figure>{svg}<figcaption>{_e(cap)}{links}</figcaption></figure>"
+
+
+def _magnetic_figure_html(kind: str, svg: str, files: tuple[str, str] | None) -> str:
+    return _figure_html(kind, svg, files, MAGNETIC_CAPTIONS)
 
 
 def _compound_section(i, c, figs: dict[str, tuple[str, tuple[str, str] | None]]) -> str:
@@ -347,15 +360,57 @@ def detail_indices(n_compounds: int, details: int | None) -> list[int]:
     return list(range(n_compounds if n < 0 else min(n, n_compounds)))
 
 
+@dataclass(frozen=True)
+class _Renderers:
+    """The parts of the page that depend on the campaign's field kind (electric or magnetic)."""
+
+    summary_table: Callable[[CampaignResult, set[int]], str]
+    section: Callable[..., str]
+    figures: Callable[[CompoundResult], dict]
+    method: tuple[str, ...]
+    limits: str
+    cautions: tuple[str, ...]
+
+
+_ELECTRIC = _Renderers(
+    _summary_table,
+    _compound_section,
+    compound_figures,
+    (
+        "<li>α_eff = α + ⟨μ²⟩/(3kT) (Langevin–Debye, weak-field high-temperature limit); α is "
+        "the static polarizability including vibrational contributions.</li>",
+        "<li>Errors are 1σ standard uncertainties propagated linearly from every stated input "
+        "and the fit covariances; shared instrument inputs are correlated across series.</li>",
+    ),
+    "μ limits are upper limits at the stated confidence level.",
+    CAUTIONS,
+)
+_MAGNETIC = _Renderers(  # report/magnetic_html.py: χ (cm³/mol), moments (μ_B), currents (A)
+    lambda result, detailed: magnetic_summary_table(result, detailed, _anchor),
+    lambda i, c, figs: magnetic_compound_section(i, c, figs, _anchor, _magnetic_figure_html),
+    magnetic_compound_figures,
+    (MAGNETIC_METHOD_HTML,),
+    "moment limits are upper limits at the stated confidence level.",
+    MAGNETIC_CAUTIONS,
+)
+
+
+def _renderers(result: CampaignResult) -> _Renderers:
+    """The one place the page branches on the field kind ([deflector] field)."""
+    return _MAGNETIC if getattr(result, "deflector_field", "electric") == "magnetic" else _ELECTRIC
+
+
 def compound_figure_files(
-    c: CompoundResult, pdf_stem: Path | None = None
+    c: CompoundResult, pdf_stem: Path | None = None, *, magnetic: bool = False
 ) -> dict[str, tuple[str, bytes]]:
-    """{kind: (SVG text, PNG bytes)} of one compound's figures ({} without matplotlib); with
+    """{kind: (SVG text, PNG bytes)} of one compound's figures ({} without matplotlib);
+    ``magnetic``: the figures of a magnetic campaign (report/magnetic_html.py); with
     ``pdf_stem`` each is also written as ``<pdf_stem>-<kind>.pdf`` (atomically)."""
     if not have_matplotlib() or c.status == "failed":
         return {}
     out = {}
-    for kind, fig in compound_figures(c).items():
+    make = magnetic_compound_figures if magnetic else compound_figures
+    for kind, fig in make(c).items():
         out[kind] = (to_svg(fig), to_png(fig))
         if pdf_stem is not None:
             write_bytes_atomic(pdf_stem.with_name(f"{pdf_stem.name}-{kind}.pdf"), to_pdf(fig))
@@ -383,7 +438,7 @@ def render_html(
         When given, each figure is also written there as SVG and PNG (atomically) and linked.
     rendered
         Figures already made (by :func:`compound_figure_files`, e.g. in worker processes), by
-        compound index; the others are made here.
+        compound index, with ``magnetic=True`` for a magnetic campaign; the others are made here.
     written
         When given, the names of the files written to ``figure_dir`` are added to it.
     pdf
@@ -391,6 +446,7 @@ def render_html(
         figure whose PDF is missing is drawn again rather than read back.
     """
     plots = have_matplotlib()
+    kind = _renderers(result)
     fdir = Path(figure_dir) if figure_dir is not None else None
     rel = fdir.name if fdir is not None else None
     rendered = rendered or {}
@@ -484,8 +540,8 @@ def render_html(
             f'<span class="status-warning">{counts["warning"]} with warnings</span>'
             f'<span class="status-failed">{counts["failed"]} failed</span></p>',
             '<p class="note">Click a column heading to sort. Errors are 1σ standard '
-            "uncertainties; μ limits are upper limits at the stated confidence level.</p>",
-            f'<div class="wrap">{_summary_table(result, set(idx))}</div>',
+            f"uncertainties; {kind.limits}</p>",
+            f'<div class="wrap">{kind.summary_table(result, set(idx))}</div>',
         ]
     else:
         kinds = []
@@ -531,10 +587,13 @@ def render_html(
                 made = stored  # same inputs as the figures on disk: not redrawn
             else:
                 try:
+                    magnetic = kind is _MAGNETIC
                     if not plots:
                         made = {}
                     elif pdf:
-                        made = compound_figure_files(c, fdir / stem)
+                        made = compound_figure_files(c, fdir / stem, magnetic=magnetic)
+                    elif magnetic:
+                        made = compound_figure_files(c, magnetic=True)
                     else:
                         made = compound_figure_files(c)
                 except Exception:  # a figure that cannot be drawn must not cost the whole report
@@ -543,7 +602,7 @@ def render_html(
             figs = {kind: place(svg, png, f"{stem}-{kind}") for kind, (svg, png) in made.items()}
             if key is not None and made:
                 store_key(fdir, stem, key, {kind: f"{stem}-{kind}" for kind in made})
-            parts.append(_compound_section(i, c, figs))
+            parts.append(kind.section(i, c, figs))
         parts.append("</section>")
     elif not plots:
         parts.append('<p class="note">Figures need matplotlib: pip install "polarbeam[plots]".</p>')
@@ -576,13 +635,10 @@ def render_html(
     parts.append(provenance_section(result))
     parts += [
         '<section id="method"><h2>Method</h2><ul>',
-        "<li>α_eff = α + ⟨μ²⟩/(3kT) (Langevin–Debye, weak-field high-temperature limit); α is "
-        "the static polarizability including vibrational contributions.</li>",
-        "<li>Errors are 1σ standard uncertainties propagated linearly from every stated input "
-        "and the fit covariances; shared instrument inputs are correlated across series.</li>",
+        *kind.method,
         "</ul></section>",
         '<section id="cautions"><h2>Cautions</h2><ul>',
-        *[f"<li>{_e(c)}</li>" for c in CAUTIONS],
+        *[f"<li>{_e(c)}</li>" for c in kind.cautions],
         "</ul></section></main>",
         f'<footer><p class="meta">Written by polarbeam {_e(result.version)}; this page needs no '
         "network connection.</p></footer>",

@@ -43,8 +43,40 @@ def _pm(value: float | None, error: float | None) -> str:
     return "$" + format_value_error(value, error).replace("±", r"\pm") + "$"
 
 
+def _magnetic_rows(result: CampaignResult) -> tuple[list[str], float | None]:
+    """χ_dia (10⁻⁶ cm³/mol) and the moment (μ_B) of a magnetic campaign (separation/magnetic)."""
+    rows, limit_cl = [], None
+    for c in result.compounds:
+        if c.status == "failed":
+            continue
+        e = c.extra
+        chi, chi_err = e.get("chi_dia_cm3_mol"), e.get("chi_dia_err_cm3_mol")
+        chi_text = (
+            _pm(chi * 1e6, chi_err * 1e6) if chi is not None and chi_err is not None else "--"
+        )
+        if e.get("moment_muB") is not None:
+            mom = _pm(e["moment_muB"], e.get("moment_err_muB"))
+        elif e.get("moment_upper_muB") is not None:
+            mom = f"$<{e['moment_upper_muB']:.3g}$"
+            limit_cl = c.dipole_cl[1] if c.dipole_cl else limit_cl
+        else:
+            mom = "--"
+        temps = ", ".join(f"{s.temperature_K:g}" for s in c.series)
+        rows.append(f"{latex_escape(c.compound)} & {chi_text} & {mom} & {temps} \\\\")
+    return rows, limit_cl
+
+
 def latex_table(result: CampaignResult) -> str:
     """The properties of every compound with a result as a LaTeX ``table`` environment."""
+    if getattr(result, "deflector_field", "electric") == "magnetic":
+        rows, limit_cl = _magnetic_rows(result)
+        return _table(
+            result,
+            rows,
+            limit_cl,
+            "Diamagnetic susceptibilities $\\chi_\\mathrm{dia}$ and magnetic moments $m$",
+            r"compound & $\chi_\mathrm{dia}$ ($10^{-6}$ cm$^3$/mol) & $m$ ($\mu_B$) & $T$ (K) \\",
+        )
     rows = []
     limit_cl = None
     for c in result.compounds:
@@ -63,15 +95,24 @@ def latex_table(result: CampaignResult) -> str:
             f"{latex_escape(c.compound)} & {_pm(r['alpha_A3'], r['alpha_err_A3'])} & {dip} & "
             f"{temps} \\\\"
         )
+    return _table(
+        result,
+        rows,
+        limit_cl,
+        "Static polarizability volumes $\\alpha$ and dipole moments $\\mu$",
+        r"compound & $\alpha$ (\AA$^3$) & $\mu$ (D) & $T$ (K) \\",
+    )
+
+
+def _table(result: CampaignResult, rows, limit_cl, what: str, head: str) -> str:
     note = (
         f" Upper limits are at {100 * limit_cl:.0f}\\% confidence (unified intervals)."
         if limit_cl is not None
         else ""
     )
     caption = (
-        f"Static polarizability volumes $\\alpha$ and dipole moments $\\mu$ "
-        f"({latex_escape(result.title)}). Errors are one standard uncertainty including every "
-        f"stated systematic input.{note}"
+        f"{what} ({latex_escape(result.title)}). Errors are one standard uncertainty "
+        f"including every stated systematic input.{note}"
     )
     return "\n".join(
         [
@@ -83,7 +124,7 @@ def latex_table(result: CampaignResult) -> str:
             r"\caption{" + caption + "}",
             r"\begin{tabular}{lccl}",
             r"\toprule",
-            r"compound & $\alpha$ (\AA$^3$) & $\mu$ (D) & $T$ (K) \\",
+            head,
             r"\midrule",
             *rows,
             r"\bottomrule",

@@ -497,6 +497,8 @@ class CampaignResult:
         writer("folder")(self, path, html=html, details=details)
 
     def _repr_html_(self) -> str:
+        if self.deflector_field == "magnetic":  # χ and moments (separation.magnetic), not α/μ
+            return self._magnetic_html()
         rows = []
         for c in self.compounds:
             r = c.row()
@@ -519,6 +521,33 @@ class CampaignResult:
             f"<p><b>{html.escape(self.title)}</b> ({html.escape(self.layout)}, "
             f"{html.escape(self.model)} deflector)</p><table><thead><tr><th>compound</th>"
             "<th>α (Å³)</th><th>μ (D)</th><th>status</th><th>message</th></tr></thead><tbody>"
+            + "".join(rows)
+            + "</tbody></table>"
+        )
+
+    def _magnetic_html(self) -> str:
+        rows = []
+        for c in self.compounds:
+            e = c.extra
+            chi = (
+                format_value_error(e["chi_dia_cm3_mol"] * 1e6, e["chi_dia_err_cm3_mol"] * 1e6)
+                if e.get("chi_dia_cm3_mol") is not None
+                else "—"
+            )
+            if e.get("moment_muB") is not None:
+                mom = format_value_error(e["moment_muB"], e["moment_err_muB"])
+            elif e.get("moment_upper_muB") is not None:
+                mom = f"&lt; {e['moment_upper_muB']:.3g}"
+            else:
+                mom = "—"
+            rows.append(
+                f"<tr><td>{html.escape(c.compound)}</td><td>{chi}</td><td>{mom}</td>"
+                f"<td>{html.escape(c.status)}</td><td>{html.escape(c.message)}</td></tr>"
+            )
+        return (
+            f"<p><b>{html.escape(self.title)}</b> ({html.escape(self.layout)}, magnet)</p>"
+            "<table><thead><tr><th>compound</th><th>χ_dia (10⁻⁶ cm³/mol)</th>"
+            "<th>moment (μ_B)</th><th>status</th><th>message</th></tr></thead><tbody>"
             + "".join(rows)
             + "</tbody></table>"
         )

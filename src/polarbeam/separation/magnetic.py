@@ -151,6 +151,13 @@ def magnetic_compound(result: CompoundResult, field_per_ampere, settings) -> Com
     extra["chi_dia_m3_mol"] = _si_molar(cols["chi_dia_cm3_mol"]) if a is not None else None
     extra["chi_dia_err_m3_mol"] = _si_molar(cols["chi_dia_err_cm3_mol"]) if a is not None else None
     extra["m_B_over_kT"] = x
+    mu2 = result.mu2  # the Curie constant C = slope of χ_eff against 1/T (cm³ K/mol)
+    extra["curie_constant_cm3_K_mol"] = (
+        _cgs(mu2.nominal_value / (3 * BOLTZMANN)) if mu2 is not None else None
+    )
+    extra["curie_constant_err_cm3_K_mol"] = (
+        _cgs(mu2.std_dev / (3 * BOLTZMANN)) if mu2 is not None else None
+    )
     return dataclasses.replace(
         result,
         series=series,
