@@ -35,9 +35,9 @@ def _counting(monkeypatch):
     drawn = []
     original = html_report.compound_figure_files
 
-    def counted(c, *pdf_stem):
+    def counted(c, *args, **kwargs):
         drawn.append(c.compound)
-        return original(c, *pdf_stem)
+        return original(c, *args, **kwargs)
 
     monkeypatch.setattr(html_report, "compound_figure_files", counted)
     return drawn
