@@ -20,9 +20,11 @@ from dataclasses import dataclass
 from functools import lru_cache
 from importlib import resources
 
-from rdkit.Chem import Descriptors
-
+from polarbeam._util.optional import lazy
 from polarbeam.errors import CompoundError
+
+# RDKit loads on first use (loading a campaign never needs it)
+Descriptors = lazy("rdkit.Chem.Descriptors", "radical electrons from structures")
 
 __all__ = [
     "PASCAL_RELATIVE_ERROR",

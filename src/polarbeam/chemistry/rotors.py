@@ -28,12 +28,17 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.constants as sc
-from rdkit import Chem, rdBase
-from rdkit.Chem import AllChem, rdMolDescriptors
 
+from polarbeam._util.optional import lazy
 from polarbeam.chemistry.conformers import check_conformer_size
 from polarbeam.chemistry.molecules import as_mol
 from polarbeam.errors import CompoundError
+
+# RDKit loads on first use (a campaign without ``rotor = "auto"`` never needs it)
+Chem = lazy("rdkit.Chem", "rotor models from structures")
+rdBase = lazy("rdkit.rdBase", "rotor models from structures")
+AllChem = lazy("rdkit.Chem.AllChem", "rotor models from structures")
+rdMolDescriptors = lazy("rdkit.Chem.rdMolDescriptors", "rotor models from structures")
 
 __all__ = ["SYMMETRIC_TOLERANCE", "RotorDescription", "principal_axes", "rotor_description"]
 
