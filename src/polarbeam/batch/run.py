@@ -148,6 +148,7 @@ def _run_campaign(
             by_name = {cd.name: cd for cd in c.compounds}
             prime_worker_cache(str(path), key, (c, ctx, hashes, by_name))
         tasks = [(str(path), key, chunk, dict(settings)) for chunk in chunks(todo, runner.workers)]
+        saved: set[str] = set()  # records on disk from this run (counted before decoding)
         try:
             for task, got in runner.run(tasks):
                 if isinstance(got, BaseException):
@@ -155,16 +156,18 @@ def _run_campaign(
                     got = [failed_record(n, msg, None) for n in task[2]]
                 for cname, h, rec in got:
                     write_text_atomic(files[cname], record_text(cname, h, rec))
+                    saved.add(cname)
                     r = take(cname, rec)
                     if progress:
                         progress(ProgressEvent(name, len(done), total, cname, r.status, r.message))
         except KeyboardInterrupt:
+            # a Ctrl-C while a record was being decoded still counts the record on disk
             write_state(
                 out,
                 complete=False,
                 campaign=str(path),
                 compounds_total=total,
-                compounds_done=len(done),
+                compounds_done=reused + len(saved),
                 note="interrupted: run again with --resume to finish",
             )
             raise
