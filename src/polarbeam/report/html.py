@@ -48,6 +48,7 @@ from polarbeam.report.magnetic_html import (
     magnetic_summary_table,
 )
 from polarbeam.report.sections import (
+    compound_section_head,
     computed_section,
     correlation_line,
     dipole_budget_table,
@@ -324,20 +325,9 @@ def _magnetic_figure_html(kind: str, svg: str, files: tuple[str, str] | None) ->
 
 
 def _compound_section(i, c, figs: dict[str, tuple[str, tuple[str, str] | None]]) -> str:
-    out = [f'<section class="compound" id="{_anchor(i)}"><h3>{_e(c.compound)}</h3>']
-    meta = [f'<span class="status status-{_e(c.status)}">{_e(c.status)}</span>']
-    if c.mass_u is not None:
-        meta.append(f"mass {c.mass_u:.4f} u")
-    meta.append(f"method: {_e(c.method)}")
-    out.append(f'<p class="meta">{" · ".join(meta)}</p>')
-    if c.status == "failed":
-        out.append(f'<p class="failed-msg">{_e(c.message)}</p></section>')
+    out, closed = compound_section_head(_anchor(i), c, lambda: _values_line(c))
+    if closed:
         return "".join(out)
-    line = _values_line(c)
-    if line:
-        out.append(f'<p class="values">{line}</p>')
-    if c.message and c.message != "ok":
-        out.append(f'<p class="note">{_e(c.message)}</p>')
     out.append(correlation_line(c))
     out.append(_series_table(c))
     out.append(point_tables(c))

@@ -24,6 +24,7 @@ from polarbeam.report.figures import (
     plain_text,
     styled,
 )
+from polarbeam.report.sections import compound_section_head
 from polarbeam.uncertain import variance_budget
 
 __all__ = [
@@ -201,20 +202,9 @@ def _budget_tables(c) -> str:
 
 def magnetic_compound_section(i, c, figs, anchor, figure_html) -> str:
     """One compound's section of report.html in magnetic terms."""
-    out = [f'<section class="compound" id="{anchor(i)}"><h3>{_e(c.compound)}</h3>']
-    meta = [f'<span class="status status-{_e(c.status)}">{_e(c.status)}</span>']
-    if c.mass_u is not None:
-        meta.append(f"mass {c.mass_u:.4f} u")
-    meta.append(f"method: {_e(c.method)}")
-    out.append(f'<p class="meta">{" · ".join(meta)}</p>')
-    if c.status == "failed":
-        out.append(f'<p class="failed-msg">{_e(c.message)}</p></section>')
+    out, closed = compound_section_head(anchor(i), c, lambda: _values_line(c))
+    if closed:
         return "".join(out)
-    line = _values_line(c)
-    if line:
-        out.append(f'<p class="values">{line}</p>')
-    if c.message and c.message != "ok":
-        out.append(f'<p class="note">{_e(c.message)}</p>')
     r = c.alpha_mu2_correlation  # the same coefficient as of χ_dia and C (positive scalings)
     if r is not None and math.isfinite(r):
         out.append(

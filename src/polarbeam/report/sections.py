@@ -17,6 +17,7 @@ from polarbeam.quantities import format_value_error
 from polarbeam.uncertain import variance_budget
 
 __all__ = [
+    "compound_section_head",
     "computed_section",
     "correlation_line",
     "dipole_budget_table",
@@ -35,6 +36,27 @@ Rendered = tuple[str, tuple[str, str] | None]
 
 def _e(s) -> str:
     return html.escape(str(s), quote=True)
+
+
+def compound_section_head(anchor: str, c, values_line: Callable[[], str]) -> tuple[list[str], bool]:
+    """The opening of a compound's section of report.html, for every campaign kind: heading,
+    status, mass, method, then the values line and the message. ``closed`` is True for a failed
+    compound, whose section ends with its message."""
+    out = [f'<section class="compound" id="{anchor}"><h3>{_e(c.compound)}</h3>']
+    meta = [f'<span class="status status-{_e(c.status)}">{_e(c.status)}</span>']
+    if c.mass_u is not None:
+        meta.append(f"mass {c.mass_u:.4f} u")
+    meta.append(f"method: {_e(c.method)}")
+    out.append(f'<p class="meta">{" · ".join(meta)}</p>')
+    if c.status == "failed":
+        out.append(f'<p class="failed-msg">{_e(c.message)}</p></section>')
+        return out, True
+    line = values_line()
+    if line:
+        out.append(f'<p class="values">{line}</p>')
+    if c.message and c.message != "ok":
+        out.append(f'<p class="note">{_e(c.message)}</p>')
+    return out, False
 
 
 def _g(v, fmt: str = ".6g") -> str:
